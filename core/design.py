@@ -1,0 +1,282 @@
+"""From a parsed spec and a data frame to the design matrix: the one place that does it.
+
+Rows a transform cannot take, and rows with missing or infinite cells, are dropped and
+counted per column and reason, never silently. The ``Encoder`` maps original-unit values
+of the regressors to design rows; fitting, effects, curves and predictions all use it, so
+the model is evaluated exactly as it was estimated.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from core.errors import DataError
+from core.spec import ModelSpec, RegressorSpec
+from core.transforms import Category
+
+
+@dataclass(frozen=True)
+class Term:
+    """One design column: the intercept, a transformed regressor, a square or a dummy."""
+
+    name: str
+    column: str | None
+    transform: str | None
+    level: str | None = None
+    power: int | None = None
+
+
+@dataclass
+class Block:
+    """The design columns of one regressor: positions in X and, for categories, the levels."""
+
+    spec: RegressorSpec
+    start: int
+    stop: int
+    levels: list[str] = field(default_factory=list)  # category levels other than the reference
+    reference_level: str | None = None
+    binary: bool = False
+
+    @property
+    def is_category(self) -> bool:
+        return isinstance(self.spec.transform, Category)
+
+
+@dataclass
+class Encoder:
+    """Maps original-unit regressor values to design rows (intercept first)."""
+
+    blocks: list[Block]
+    width: int
+
+    def encode(self, values: dict[str, Any], n: int) -> np.ndarray:
+        """Design rows for n points; each value is an array of n or a scalar shared by all."""
+        X = np.empty((n, self.width))
+        X[:, 0] = 1.0
+        for block in self.blocks:
+            x = values[block.spec.column]
+            if block.is_category:
+                labels = np.broadcast_to(np.asarray(x).astype(str), (n,))
+                for j, level in enumerate(block.levels):
+                    X[:, block.start + j] = labels == level
+            else:
+                numbers = np.broadcast_to(np.asarray(x, dtype=float), (n,))
+                X[:, block.start : block.stop] = block.spec.transform.basis(numbers)
+        return X
+
+    def basis_derivative(self, column: str, x: np.ndarray) -> tuple[slice, np.ndarray]:
+        """Slice of X for ``column`` and d(basis)/dx at x, shape (len(x), width)."""
+        block = self.block(column)
+        return slice(block.start, block.stop), block.spec.transform.basis_derivative(np.asarray(x, dtype=float))
+
+    def block(self, column: str) -> Block:
+        for block in self.blocks:
+            if block.spec.column == column:
+                return block
+        raise KeyError(column)
+
+
+@dataclass
+class Design:
+    y: np.ndarray  # transformed outcome
+    y_raw: np.ndarray  # outcome in original units
+    X: np.ndarray
+    terms: list[Term]
+    encoder: Encoder
+    values: dict[str, np.ndarray]  # regressors in original units (str for categories), used rows
+    weights: np.ndarray | None
+    groups: np.ndarray | None
+    rows: np.ndarray  # positions of the used rows in the user's data (0-based)
+    n_total: int
+    dropped: list[dict[str, Any]]
+    warnings: list[str]
+    reference: dict[str, Any]
+
+
+def _numeric(series: pd.Series, column: str) -> np.ndarray:
+    """The column as floats; text that is not a number is an error naming the rows."""
+    if pd.api.types.is_bool_dtype(series):
+        return series.astype(float).to_numpy()
+    if pd.api.types.is_numeric_dtype(series):
+        return series.to_numpy(dtype=float, na_value=np.nan)
+    converted = pd.to_numeric(series, errors="coerce")
+    bad = converted.isna() & series.notna()
+    if bad.any():
+        positions = np.flatnonzero(bad.to_numpy())
+        examples = ", ".join(f"row {p + 1} ('{str(series.iloc[p])[:20]}')" for p in positions[:3])
+        more = f" and {len(positions) - 3} more" if len(positions) > 3 else ""
+        raise DataError(
+            f"column '{column}' is used as a number but holds text: {examples}{more}. "
+            "Fix or blank those cells, or use the column as a category."
+        )
+    return converted.to_numpy(dtype=float, na_value=np.nan)
+
+
+def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
+    """Transform, drop and encode: the design matrix for ``spec`` on ``data``."""
+    n_total = len(data)
+    if n_total == 0:
+        raise DataError("the data has no rows; load a file with a header row and at least a few data rows.")
+    dropped: list[dict[str, Any]] = []
+    warnings: list[str] = []
+    keep = np.ones(n_total, dtype=bool)
+
+    def drop(mask: np.ndarray, column: str, reason: str) -> None:
+        count = int(mask.sum())
+        if count:
+            dropped.append({"column": column, "reason": reason, "count": count})
+            keep[mask] = False
+
+    raw: dict[str, np.ndarray] = {}
+    category_columns = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
+    for column in spec.columns:
+        series = data[column]
+        if column in category_columns or column == spec.cluster:
+            missing = series.isna().to_numpy()
+            raw[column] = series.astype(object).where(~series.isna(), None).to_numpy()
+            drop(missing, column, "missing value")
+            continue
+        values = _numeric(series, column)
+        raw[column] = values
+        drop(np.isnan(values), column, "missing value")
+        drop(np.isinf(values), column, "infinite value")
+
+    y_transform = spec.outcome_transform
+    finite = np.isfinite(raw[spec.outcome_column])
+    bad, reason = y_transform.invalid(raw[spec.outcome_column])
+    drop(bad & finite, spec.outcome_column, reason)
+    for reg in spec.regressors:
+        if reg.column in category_columns:
+            continue
+        finite = np.isfinite(raw[reg.column])
+        bad, reason = reg.transform.invalid(raw[reg.column])
+        drop(bad & finite, reg.column, reason)
+    if spec.weights:
+        w = raw[spec.weights]
+        drop(np.isfinite(w) & ~(w > 0), spec.weights, "weights must be above zero")
+
+    for entry in dropped:
+        if entry["reason"] not in ("missing value", "infinite value"):
+            other = "level or inverse hyperbolic sine (ihs)" if "log" in entry["reason"] else "level"
+            warnings.append(
+                f"{entry['count']} row(s) dropped because {entry['reason']} in '{entry['column']}'; "
+                f"consider the {other} transform to keep them."
+            )
+    missing_total = sum(e["count"] for e in dropped if e["reason"] == "missing value")
+    if missing_total:
+        warnings.append(f"rows with missing cells in the model's columns were dropped ({missing_total} missing cell(s) in all).")
+
+    rows = np.flatnonzero(keep)
+    n = len(rows)
+    values = {reg.column: raw[reg.column][rows] for reg in spec.regressors}
+
+    blocks: list[Block] = []
+    terms = [Term(name="intercept", column=None, transform=None)]
+    width = 1
+    for reg in spec.regressors:
+        x = values[reg.column]
+        if isinstance(reg.transform, Category):
+            labels = np.asarray(x, dtype=object).astype(str)
+            values[reg.column] = labels
+            counts = pd.Series(labels).value_counts(sort=True)
+            present = sorted(counts.index.tolist(), key=_level_order)
+            if len(present) < 2:
+                raise DataError(
+                    f"category '{reg.column}' has a single level ('{present[0] if present else ''}') in the rows used; "
+                    "remove it from the regressors."
+                )
+            reference = reg.reference if reg.reference is not None else str(counts.index[0])
+            if reference not in present:
+                raise DataError(
+                    f"category '{reg.column}': the reference level '{reference}' does not occur in the rows used; "
+                    f"pick one of: {', '.join(present[:10])}."
+                )
+            levels = [lv for lv in present if lv != reference]
+            blocks.append(Block(reg, width, width + len(levels), levels=levels, reference_level=reference))
+            for level in levels:
+                terms.append(Term(f"{reg.column}[{level}]", reg.column, "category", level=level))
+            width += len(levels)
+            continue
+        spread = float(np.ptp(x)) if n else 0.0
+        if n and spread == 0:
+            raise DataError(
+                f"regressor '{reg.column}' has the same value ({x[0]:g}) in every row used, so its effect "
+                "cannot be estimated; remove it from the regressors."
+            )
+        binary = bool(n) and bool(np.isin(x, (0.0, 1.0)).all())
+        blocks.append(Block(reg, width, width + reg.transform.width, binary=binary))
+        for power in reg.transform.powers():
+            name = reg.column if reg.transform.code == "level" else f"{reg.transform.code}({reg.column})"
+            if power == 2:
+                name = f"{reg.column}^2"
+            elif power == 1:
+                name = reg.column
+            terms.append(Term(name, reg.column, reg.transform.code, power=power))
+        width += reg.transform.width
+
+    if n <= width:
+        raise DataError(
+            f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
+            "coefficients. Use fewer regressors or categories, or load more data."
+        )
+
+    encoder = Encoder(blocks, width)
+    X = encoder.encode(values, n)
+    y_raw = raw[spec.outcome_column][rows]
+    with np.errstate(all="ignore"):
+        y = y_transform.forward(y_raw)
+
+    reference = reference_point(spec, blocks, values)
+    return Design(
+        y=y,
+        y_raw=y_raw,
+        X=X,
+        terms=terms,
+        encoder=encoder,
+        values=values,
+        weights=raw[spec.weights][rows] if spec.weights else None,
+        groups=np.asarray(raw[spec.cluster][rows]).astype(str) if spec.cluster else None,
+        rows=rows,
+        n_total=n_total,
+        dropped=dropped,
+        warnings=warnings,
+        reference=reference,
+    )
+
+
+def _level_order(level: str) -> tuple[int, float, str]:
+    """Numeric-looking levels in numeric order, then the rest alphabetically."""
+    try:
+        return (0, float(level), level)
+    except ValueError:
+        return (1, 0.0, level)
+
+
+def reference_point(spec: ModelSpec, blocks: list[Block], values: dict[str, np.ndarray]) -> dict[str, Any]:
+    """Where effects are evaluated: ``at`` values, else sample means (modes for categories)."""
+    point: dict[str, Any] = {}
+    for block in blocks:
+        column = block.spec.column
+        if column in spec.at:
+            given = spec.at[column]
+            if block.is_category:
+                given = str(given)
+                if given not in block.levels and given != block.reference_level:
+                    raise DataError(f"spec.at.{column}: '{given}' is not a level of '{column}'.")
+            else:
+                if isinstance(given, str):
+                    raise DataError(f"spec.at.{column}: must be a number in the units of '{column}'.")
+                bad, reason = block.spec.transform.invalid(np.array([float(given)]))
+                if bad[0]:
+                    raise DataError(f"spec.at.{column}: {given:g} cannot be used because {reason}.")
+                given = float(given)
+            point[column] = given
+        elif block.is_category:
+            point[column] = str(pd.Series(values[column]).mode().iloc[0])
+        else:
+            point[column] = float(np.mean(values[column]))
+    return point

@@ -1,0 +1,356 @@
+"""Effects of regressor changes: exact, approximate, intervals. Written once for every pair.
+
+A change moves one regressor from x0 to x1 in original units, with every other regressor
+held at the reference point. The design rows X0 and X1 come from the same encoder the fit
+used, so the linear index moves by Δη = (X1 - X0)·b for any regressor transform (level, log,
+IHS, shifted log, square root, quadratic, category). The effect on y then depends only on
+the outcome transform g (SPEC §4):
+
+- level y:      exact = Δη                          (difference of predictions, y's units)
+- log y:        exact = 100·(exp(Δη) - 1)           (percent; Halvorsen & Palmquist 1980 for
+                                                     dummies; Wooldridge, Introductory
+                                                     Econometrics, 7th ed., §6.2 and eq. 7.10)
+- any other g:  exact = 100·(S(η1)/S(η0) - 1)       (percent), S(η) = (1/n)·Σᵢ g⁻¹(η + êᵢ), the
+                                                     smearing estimate of E[y | x] (Duan 1983).
+                For log y the smearing factor cancels and this equals the line above.
+
+The approximate effect is the first-order (derivative) effect times the change:
+dη = (∂basis/∂x at x0 · b)·(x1 - x0); level y: dη; log y: 100·dη; other g:
+100·S'(η0)·dη / S(η0). For the four level/log pairs this is the textbook reading
+(Wooldridge, Table 2.3): b·Δx, 100·b·Δx %, (b/100)·%Δx, b·%Δx %. For a category or a
+0/1 switch, where no derivative exists, dη is the index change itself (the 100·b % reading).
+
+Intervals. Δη = c'b is linear in b, so its t interval (se = sqrt(c'Vc)) is exact under the
+model's assumptions; for level and log y the exact effect is a monotone function of Δη, so
+that interval is carried through the function (for one coefficient this is the
+coefficient's own interval). For other g the delta method is used with residuals held fixed
+(Greene, Econometric Analysis, 8th ed., Theorem D.22).
+
+The small-sample adjusted dummy effect in a log model is 100·(exp(Δη - ½·Var(Δη)) - 1)
+(Kennedy 1981, AER 71(4)).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import stats
+
+from core.design import Block, Design
+from core.spec import Change
+from core.transforms import Transform
+
+# Cap on the (rows x residuals) grid evaluated at once when smearing, to bound memory.
+_SMEAR_CHUNK = 4_000_000
+# Rows and residual quantiles used for the sample-average effect when smearing is needed.
+_AVERAGE_ROWS = 2_000
+_AVERAGE_RESIDUALS = 2_000
+
+
+@dataclass
+class Model:
+    """A fitted model as the effect engine sees it."""
+
+    design: Design
+    coef: np.ndarray
+    cov: np.ndarray
+    df: int
+    outcome: Transform
+    resid: np.ndarray
+    confidence: float = 0.95
+
+    @property
+    def kind(self) -> str:
+        """'level', 'log' (closed forms) or 'smearing' (any other outcome transform)."""
+        if self.outcome.code == "level":
+            return "level"
+        if self.outcome.is_log_like:
+            return "log"
+        return "smearing"
+
+    @property
+    def units(self) -> str:
+        return "outcome" if self.kind == "level" else "percent"
+
+    @property
+    def t_crit(self) -> float:
+        return float(stats.t.ppf(0.5 + self.confidence / 2, self.df))
+
+    def encode(self, point: dict[str, Any], m: int) -> np.ndarray:
+        return self.design.encoder.encode(point, m)
+
+    # --- smearing estimate of E[y | x] and its derivative in the index -------------------
+    def smear(self, eta: np.ndarray, resid: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """S(η) = mean g⁻¹(η + ê) and S'(η) = mean (g⁻¹)'(η + ê), for each η (Duan 1983)."""
+        resid = self.resid if resid is None else resid
+        eta = np.asarray(eta, dtype=float)
+        level = np.empty_like(eta)
+        slope = np.empty_like(eta)
+        step = max(1, _SMEAR_CHUNK // max(len(resid), 1))
+        for start in range(0, len(eta), step):
+            block = eta[start : start + step, None] + resid[None, :]
+            level[start : start + step] = self.outcome.inverse(block).mean(axis=1)
+            slope[start : start + step] = self.outcome.inverse_derivative(block).mean(axis=1)
+        return level, slope
+
+
+@dataclass
+class EffectArrays:
+    exact: np.ndarray
+    approximate: np.ndarray
+    delta_index: np.ndarray
+    c: np.ndarray  # (m, k) rows X1 - X0
+    gradient: np.ndarray  # (m, k) d exact / d b
+
+
+def effect_arrays(
+    model: Model, block: Block, x0: np.ndarray, x1: np.ndarray, base: dict[str, Any], m: int, resid: np.ndarray | None = None
+) -> EffectArrays:
+    """Exact and approximate effects of moving ``block``'s regressor from x0 to x1 (arrays of m)."""
+    column = block.spec.column
+    point0 = dict(base, **{column: x0})
+    point1 = dict(base, **{column: x1})
+    X0 = model.encode(point0, m)
+    X1 = model.encode(point1, m)
+    b = model.coef
+    c = X1 - X0
+    eta0, eta1 = X0 @ b, X1 @ b
+    delta = eta1 - eta0
+    if block.is_category or block.binary:
+        first_order = delta
+    else:
+        cols, d_basis = model.design.encoder.basis_derivative(column, np.asarray(x0, dtype=float))
+        first_order = (d_basis @ b[cols]) * (np.asarray(x1, dtype=float) - np.asarray(x0, dtype=float))
+    if model.kind == "level":
+        return EffectArrays(delta, first_order, delta, c, c)
+    if model.kind == "log":
+        exact = 100.0 * np.expm1(delta)
+        return EffectArrays(exact, 100.0 * first_order, delta, c, 100.0 * np.exp(delta)[:, None] * c)
+    s0, ds0 = model.smear(eta0, resid)
+    s1, ds1 = model.smear(eta1, resid)
+    exact = 100.0 * (s1 / s0 - 1.0)
+    approximate = 100.0 * ds0 * first_order / s0
+    gradient = 100.0 * (ds1[:, None] * X1 * s0[:, None] - s1[:, None] * ds0[:, None] * X0) / (s0**2)[:, None]
+    return EffectArrays(exact, approximate, delta, c, gradient)
+
+
+def default_change(block: Block, x: np.ndarray) -> Change:
+    """A sensible change when the spec names none (common practice, no source): a 0->1
+    switch for dummies, +10 % for log-type scales, else one unit or a round step near 1 SD."""
+    if block.binary:
+        return Change(text="0->1", kind="switch", start=0.0, end=1.0)
+    if block.spec.transform.code != "level" and block.spec.transform.code != "quadratic":
+        return Change(text="+10%", kind="percent", amount=10.0)
+    sd = float(np.std(x))
+    if sd >= 1 or sd == 0:
+        return Change(text="+1", kind="units", amount=1.0)
+    step = float(f"{sd:.0e}")
+    return Change(text=f"+{step:g}", kind="units", amount=step)
+
+
+def _start_end(change: Change, x_ref: Any) -> tuple[Any, Any]:
+    if change.kind == "switch":
+        return change.start, change.end
+    return x_ref, change.apply(x_ref)
+
+
+def compute_effects(model: Model) -> tuple[list[dict[str, Any]], list[str]]:
+    """One effect per regressor (one per level for categories without a named change)."""
+    design = model.design
+    out: list[dict[str, Any]] = []
+    warnings: list[str] = []
+    for block in design.encoder.blocks:
+        column = block.spec.column
+        if block.is_category:
+            if block.spec.change is not None:
+                pairs = [(str(block.spec.change.start), str(block.spec.change.end), block.spec.change.text)]
+            else:
+                pairs = [(block.reference_level, lv, f"{block.reference_level}->{lv}") for lv in block.levels]
+            known = set(block.levels) | {block.reference_level}
+            for start, end, text in pairs:
+                for level in (start, end):
+                    if level not in known:
+                        raise_level(column, level, known)
+                out.append(_one_effect(model, block, start, end, text, warnings))
+            continue
+        change = block.spec.change or default_change(block, design.values[column])
+        if change.kind == "switch" and not all(isinstance(v, float) for v in (change.start, change.end)):
+            from core.errors import SpecError
+
+            raise SpecError(f"spec.regressors ({column}): '{change.text}' must go between two numbers for a numeric column.")
+        x0, x1 = _start_end(change, design.reference[column])
+        out.append(_one_effect(model, block, x0, x1, change.text, warnings))
+    return out, warnings
+
+
+def raise_level(column: str, level: str, known: set[str]) -> None:
+    from core.errors import SpecError
+
+    raise SpecError(f"spec.regressors ({column}): '{level}' is not a level of '{column}'; levels are {', '.join(sorted(known))}.")
+
+
+def _one_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, warnings: list[str]) -> dict[str, Any]:
+    design = model.design
+    column = block.spec.column
+    base = dict(design.reference)
+    base[column] = x0
+    entry: dict[str, Any] = {
+        "column": column,
+        "change": text,
+        "units": model.units,
+        "from": x0,
+        "to": x1,
+        "level": x1 if block.is_category else None,
+        "reference": base,
+    }
+    if not block.is_category:
+        bad0, reason = block.spec.transform.invalid(np.array([x0], dtype=float))
+        bad1, _ = block.spec.transform.invalid(np.array([x1], dtype=float))
+        if bad0[0] or bad1[0]:
+            warnings.append(
+                f"the change {text} of '{column}' (from {x0:g} to {x1:g}) leaves the range its transform takes: {reason}."
+            )
+            entry.update(
+                approximate=None,
+                exact=None,
+                ci_low=None,
+                ci_high=None,
+                adjusted=None,
+                average=None,
+                gap=None,
+                interval_method=None,
+                extrapolated=True,
+            )
+            return entry
+    arrays = effect_arrays(
+        model,
+        block,
+        np.array([x0], dtype=object if block.is_category else float),
+        np.array([x1], dtype=object if block.is_category else float),
+        base,
+        1,
+    )
+    exact = float(arrays.exact[0])
+    approximate = float(arrays.approximate[0])
+    c = arrays.c[0]
+    var_delta = float(c @ model.cov @ c)
+    t = model.t_crit
+    if model.kind == "smearing":
+        g = arrays.gradient[0]
+        se = float(np.sqrt(g @ model.cov @ g))
+        low, high = exact - t * se, exact + t * se
+        method = "delta method"
+    else:
+        se_delta = np.sqrt(var_delta)
+        d = float(arrays.delta_index[0])
+        low_d, high_d = d - t * se_delta, d + t * se_delta
+        if model.kind == "log":
+            low, high = 100.0 * np.expm1(low_d), 100.0 * np.expm1(high_d)
+        else:
+            low, high = low_d, high_d
+        single = int(np.count_nonzero(np.abs(c) > 0)) == 1
+        method = "coefficient interval carried through" if single else "interval of the index change carried through"
+    adjusted = None
+    if (
+        model.kind == "log"
+        and (block.is_category or block.binary)
+        and {float(x0) if not block.is_category else 0, float(x1) if not block.is_category else 1} == {0.0, 1.0}
+    ):
+        adjusted = float(100.0 * np.expm1(float(arrays.delta_index[0]) - 0.5 * var_delta))
+    entry.update(
+        approximate=approximate,
+        exact=exact,
+        ci_low=float(min(low, high)),
+        ci_high=float(max(low, high)),
+        adjusted=adjusted,
+        average=_average_effect(model, block, x0, x1, text, exact),
+        gap=approximate - exact,
+        interval_method=method,
+        extrapolated=_outside(design.values[column], x0, x1) if not block.is_category else False,
+    )
+    if entry["extrapolated"]:
+        warnings.append(
+            f"the effect of {text} in '{column}' reaches outside the observed range of '{column}'; it is an extrapolation."
+        )
+    return entry
+
+
+def _outside(x: np.ndarray, x0: float, x1: float) -> bool:
+    low, high = float(np.min(x)), float(np.max(x))
+    return bool(min(x0, x1) < low or max(x0, x1) > high)
+
+
+def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float) -> float | None:
+    """The effect averaged over the sample's rows (each row's own values, the change applied
+    to it), where it differs from the effect at the reference point; else None."""
+    design = model.design
+    column = block.spec.column
+    n = len(design.y)
+    rows = np.arange(n)
+    resid = None
+    if model.kind == "smearing" and n > _AVERAGE_ROWS:
+        rows = np.random.default_rng(0).choice(n, _AVERAGE_ROWS, replace=False)
+        resid = np.quantile(model.resid, (np.arange(_AVERAGE_RESIDUALS) + 0.5) / _AVERAGE_RESIDUALS)
+    base = {col: vals[rows] for col, vals in design.values.items()}
+    m = len(rows)
+    if block.is_category or text.find("->") >= 0:
+        start = np.full(m, x0, dtype=object if block.is_category else float)
+        end = np.full(m, x1, dtype=object if block.is_category else float)
+    else:
+        change = block.spec.change or default_change(block, design.values[column])
+        start = base[column].astype(float)
+        end = change.apply(start)
+        bad, _ = block.spec.transform.invalid(end)
+        if bad.any():
+            keep = ~bad
+            start, end = start[keep], end[keep]
+            base = {col: vals[keep] for col, vals in base.items()}
+            m = int(keep.sum())
+    if m == 0:
+        return None
+    arrays = effect_arrays(model, block, start, end, base, m, resid)
+    average = float(np.mean(arrays.exact))
+    if np.max(np.abs(arrays.exact - at_reference)) <= 1e-9 * (1.0 + abs(at_reference)):
+        return None
+    return average
+
+
+def gap_curve(model: Model, block: Block, points: int = 61) -> dict[str, Any] | None:
+    """Approximate and exact effect across change sizes, for the gap chart.
+
+    Percent changes run from -50 % to +100 %; unit changes from -L to +2L with L the larger
+    of the chosen change and one standard deviation. Categories and 0/1 switches have no
+    continuum of changes and get no curve.
+    """
+    if block.is_category or block.binary:
+        return None
+    design = model.design
+    column = block.spec.column
+    change = block.spec.change or default_change(block, design.values[column])
+    if change.kind == "percent":
+        x_ref = float(design.reference[column])
+        sizes = np.union1d(np.linspace(-50.0, 100.0, points), [change.amount])
+        x1 = x_ref * (1.0 + sizes / 100.0)
+    else:
+        if change.kind == "switch":
+            x_ref, amount = float(change.start), float(change.end) - float(change.start)
+        else:
+            x_ref, amount = float(design.reference[column]), change.amount
+        span = max(abs(amount), float(np.std(design.values[column])))
+        sizes = np.union1d(np.linspace(-span, 2.0 * span, points), [amount])
+        x1 = x_ref + sizes
+    bad, _ = block.spec.transform.invalid(x1)
+    sizes, x1 = sizes[~bad & (sizes != 0)], x1[~bad & (sizes != 0)]
+    arrays = effect_arrays(model, block, np.full(len(sizes), x_ref), x1, design.reference, len(sizes))
+    return {
+        "column": column,
+        "kind": "percent" if change.kind == "percent" else "units",
+        "units": model.units,
+        "from": x_ref,
+        "chosen": change.amount if change.kind != "switch" else amount,
+        "sizes": sizes.tolist(),
+        "approximate": arrays.approximate.tolist(),
+        "exact": arrays.exact.tolist(),
+    }

@@ -1,0 +1,82 @@
+"""Plain-language readings of coefficients, matched to the transform pair.
+
+The four level/log readings follow Wooldridge, Introductory Econometrics, 7th ed., Table 2.3;
+the dummy reading in a log model follows Halvorsen & Palmquist (1980); IHS readings follow
+Bellemare & Wichman (2020). Every reading says "goes with", not "causes": a coefficient is
+an association in this data, other regressors held fixed.
+"""
+
+from __future__ import annotations
+
+import math
+
+from core.design import Block, Term
+from core.transforms import Transform
+
+HELD = "other regressors held fixed"
+
+
+def _num(value: float) -> str:
+    if not math.isfinite(value):
+        return "n/a"
+    magnitude = abs(value)
+    if magnitude >= 1000:
+        return f"{value:,.0f}"
+    if magnitude >= 1:
+        return f"{value:.3g}" if magnitude < 100 else f"{value:.1f}"
+    return f"{value:.3g}"
+
+
+def _signed_pct(value: float) -> str:
+    return f"{'+' if value >= 0 else ''}{_num(value)} %"
+
+
+def _outcome_move(outcome: Transform, y: str, b: float) -> str:
+    """How a one-unit move in the index reads on the outcome."""
+    if outcome.code == "level":
+        return f"a change of {_num(b)} in {y}"
+    if outcome.is_log_like:
+        return f"about {_signed_pct(100 * b)} in {y} (exactly {_signed_pct(100 * math.expm1(b))})"
+    return f"a change of {_num(b)} in the {outcome.label(y)}; see the effects table for {y} itself"
+
+
+def reading(term: Term, estimate: float, outcome: Transform, y: str, block: Block | None) -> str:
+    """One sentence that reads ``estimate`` for ``term`` in a model whose outcome is g(y)."""
+    if term.column is None:
+        scale = y if outcome.code == "level" else outcome.label(y)
+        return (
+            f"Predicted {scale} when every regressor term is zero (categories at their reference level); "
+            "often outside the data and not meaningful on its own."
+        )
+    x = term.column
+    if term.level is not None:
+        ref = block.reference_level if block else "the reference level"
+        return f"Compared with {x} = {ref}, {x} = {term.level} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
+    if block is not None and block.binary and term.transform == "level":
+        return f"Rows with {x} = 1 compared with {x} = 0 go with {_outcome_move(outcome, y, estimate)}, {HELD}."
+    if term.power == 1:
+        return (
+            f"Together with the square term, the effect of {x} depends on its level: one more unit at {x} = 0 goes "
+            f"with {_outcome_move(outcome, y, estimate)}; use the effects table at the reference point."
+        )
+    if term.power == 2:
+        shape = "flattens then reverses" if estimate < 0 else "steepens"
+        return f"Curvature: as {x} grows its effect {shape} (square term {_num(estimate)} on the model's scale)."
+    tx = term.transform or "level"
+    log_like_x = tx == "log"
+    if tx == "level":
+        return f"One more unit of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
+    if log_like_x or tx == "ihs" or tx.startswith("shifted_log"):
+        caveat = ""
+        if tx == "ihs":
+            caveat = " for values of x well above 1 (IHS behaves like a log there); near zero the effect depends on x's units"
+        elif tx.startswith("shifted_log"):
+            caveat = " where the shift is small next to x; otherwise see the effects table"
+        if outcome.code == "level":
+            return f"A 1 % higher {x} goes with a change of about {_num(estimate / 100)} in {y}{caveat}, {HELD}."
+        if outcome.is_log_like:
+            return f"A 1 % higher {x} goes with about {_signed_pct(estimate)} in {y} (an elasticity){caveat}, {HELD}."
+        return f"A 1 % higher {x} moves the {outcome.label(y)} by about {_num(estimate / 100)}{caveat}, {HELD}."
+    if tx == "sqrt":
+        return f"One more unit of the square root of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
+    return f"One more unit of the {tx} of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
