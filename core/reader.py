@@ -63,7 +63,9 @@ def _read_text(raw: bytes, name: str) -> pd.DataFrame:
     try:
         frame = pd.read_csv(io.StringIO(text), sep=delimiter, na_values=MISSING_MARKERS, keep_default_na=False)
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as exc:
-        raise DataError(f"'{name}' could not be read as a table ({str(exc).splitlines()[0]}); check that it is a CSV file.") from None
+        raise DataError(
+            f"'{name}' could not be read as a table ({str(exc).splitlines()[0]}); check that it is a CSV file."
+        ) from None
     if frame.empty:
         raise DataError(f"'{name}' has a header row but no data rows; add data below the header.")
     return frame

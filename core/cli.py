@@ -1,0 +1,95 @@
+"""Command line: ``python -m core analyze DATA --spec SPEC.json`` and ``analyze --demo``.
+
+Success exits 0. Bad input exits 2 with one ``error: ...`` line on stderr; never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+from core.analysis import analyze
+from core.errors import FormwiseError
+from core.formats import to_json, to_markdown
+from core.reader import read_table
+
+DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
+DEMO_DATA = DEMO_DIR / "kiosks.csv"
+DEMO_SPEC = DEMO_DIR / "default_spec.json"
+FORMATS = {"json": to_json, "markdown": to_markdown}
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage problems as one clear line and exit code 2."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        raise FormwiseError(f"{message}. Run 'python -m core --help' for usage.")
+
+
+def load_spec(path: str | Path) -> dict[str, Any]:
+    """Read a spec file as JSON data only (no code is ever evaluated)."""
+    path = Path(path)
+    if not path.is_file():
+        raise FormwiseError(f"spec file not found: '{path}'. Check the path.")
+    try:
+        spec = json.loads(path.read_text(encoding="utf-8-sig"))
+    except UnicodeDecodeError:
+        raise FormwiseError(f"spec file '{path}' is not UTF-8 text; save it as UTF-8 JSON.") from None
+    except json.JSONDecodeError as exc:
+        raise FormwiseError(f"spec file '{path}' is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}).") from None
+    if not isinstance(spec, dict):
+        raise FormwiseError(f"spec file '{path}' must hold one JSON object with 'outcome' and 'regressors'.")
+    return spec
+
+
+def _parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="python -m core", description="Formwise: regressions with transformed variables.")
+    commands = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    run = commands.add_parser("analyze", help="fit a model and print its results")
+    run.add_argument("data", nargs="?", help="data file: .csv, .tsv, .txt or .xlsx")
+    run.add_argument("--spec", help="model spec file (JSON)")
+    run.add_argument("--demo", action="store_true", help="use the built-in demo data and its default spec")
+    run.add_argument("--sheet", help="sheet name, for .xlsx files")
+    run.add_argument("--format", choices=sorted(FORMATS), default="json")
+    run.add_argument("--out", help="write to this file instead of standard output")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    try:
+        args = _parser().parse_args(argv)
+        if args.command == "analyze":
+            if args.demo:
+                if args.data or args.spec:
+                    raise FormwiseError("--demo uses the built-in data and spec; leave out DATA and --spec.")
+                data, spec = read_table(DEMO_DATA), load_spec(DEMO_SPEC)
+            else:
+                if not args.data or not args.spec:
+                    raise FormwiseError("analyze needs a data file and --spec SPEC.json (or --demo).")
+                data, spec = read_table(args.data, sheet=args.sheet), load_spec(args.spec)
+            text = FORMATS[args.format](analyze(data, spec))
+            _emit(text, args.out)
+        return 0
+    except FormwiseError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("error: interrupted.", file=sys.stderr)
+        return 130
+    except Exception as exc:  # a bug, not bad input: still one line, and a distinct exit code
+        print(f"error: internal problem ({type(exc).__name__}: {exc}); please report it with the data and spec.", file=sys.stderr)
+        return 1
+
+
+def _emit(text: str, out: str | None) -> None:
+    if out is None:
+        sys.stdout.write(text if text.endswith("\n") else text + "\n")
+        return
+    target = Path(out)
+    try:
+        target.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise FormwiseError(f"cannot write '{target}': {exc.strerror}. Pick a writable path.") from None
