@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -11,14 +12,19 @@ import pandas as pd
 from scipy import stats
 
 from core.covariance import covariance
-from core.design import build_design
+from core.curves import effect_curve
+from core.design import Design, build_design
 from core.effects import Model, compute_effects, gap_curve
 from core.errors import DataError, FormwiseError
-from core.ols import NEAR_COLLINEAR, fit_ols
+from core.ols import NEAR_COLLINEAR, OLSFit, fit_ols
 from core.readings import reading
-from core.spec import parse_spec
+from core.spec import Change, ModelSpec, parse_spec
 
-ALL_PARTS = frozenset({"terms", "fit", "effects", "gap_curves"})
+ALL_PARTS = frozenset({"terms", "fit", "effects", "gap_curves", "curves", "units_check"})
+# Rescalings of an IHS or shifted-log regressor for the units check (Aihounton & Henningsen 2021).
+UNIT_FACTORS = (0.001, 0.01, 0.1, 10.0, 100.0, 1000.0)
+# Relative movement of an effect across rescalings above which the user is warned.
+UNITS_TOLERANCE = 0.10
 # Fewer rows than this, or than 10 per coefficient, and results are flagged (common practice, no source).
 SMALL_SAMPLE = 30
 
@@ -45,11 +51,8 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
         raise FormwiseError(f"unknown result part(s): {', '.join(sorted(unknown))}; use some of {', '.join(sorted(ALL_PARTS))}.")
 
     model_spec = parse_spec(spec, data)
-    design = build_design(data, model_spec)
-    names = [t.name for t in design.terms]
-    with np.errstate(all="ignore"):
-        fit = fit_ols(design.X, design.y, design.weights, names)
-        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
+    design, fit, model = fit_model(data, model_spec)
+    cov, df = model.cov, model.df
     warnings = list(design.warnings)
 
     result: dict[str, Any] = {
@@ -79,7 +82,6 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
             "condition_number": fit.condition_number,
             "df_resid": fit.df_resid,
         }
-    model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
     if "effects" in wanted:
         with np.errstate(all="ignore"):
             effects, effect_warnings = compute_effects(model)
@@ -89,9 +91,89 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
         with np.errstate(all="ignore"):
             curves = [gap_curve(model, block) for block in design.encoder.blocks]
         result["gap_curves"] = [c for c in curves if c is not None]
+    if "curves" in wanted:
+        with np.errstate(all="ignore"):
+            result["curves"] = [effect_curve(model, block) for block in design.encoder.blocks]
+    if "units_check" in wanted:
+        checks = []
+        for block in design.encoder.blocks:
+            code = block.spec.transform.code
+            if code == "ihs" or code.startswith("shifted_log"):
+                check = units_check(data, model_spec, block.spec.column)
+                checks.append(check)
+                if check["moves"]:
+                    warnings.append(
+                        f"the effect of '{block.spec.column}' ({code}) changes by up to {100 * check['max_relative_move']:.0f} % "
+                        "when the variable is rescaled (say from units to thousands): with this transform the result "
+                        "depends on the units of measurement. Consider log (if there are no zeros) or report the units."
+                    )
+        result["units_check"] = checks
     result["warnings"] = list(dict.fromkeys(warnings))
     result["cautions"] = CAUTIONS
     return json_safe(result)
+
+
+def fit_model(data: pd.DataFrame, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
+    """Design, least-squares fit and covariance: everything the effect engine needs."""
+    design = build_design(data, model_spec)
+    names = [t.name for t in design.terms]
+    with np.errstate(all="ignore"):
+        fit = fit_ols(design.X, design.y, design.weights, names)
+        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
+    model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
+    return design, fit, model
+
+
+def _rescaled_change(change: Change | None, factor: float) -> Change | None:
+    if change is None or change.kind == "percent":
+        return change
+    if change.kind == "units":
+        return Change(text=f"{change.amount * factor:+g}", kind="units", amount=change.amount * factor)
+    start, end = float(change.start) * factor, float(change.end) * factor
+    return Change(text=f"{start:g}->{end:g}", kind="switch", start=start, end=end)
+
+
+def units_check(data: pd.DataFrame, model_spec: ModelSpec, column: str) -> dict[str, Any]:
+    """Refit with ``column`` measured in other units and report how its effect moves.
+
+    A log regressor's slope does not depend on the units (rescaling only shifts the intercept);
+    IHS and shifted-log slopes do (Aihounton & Henningsen 2021, Econometrics Journal 24(2);
+    Chen & Roth 2024, QJE 139(2)). The change is rescaled with the variable, so the same real
+    change is asked each time; the reference point scales with it.
+    """
+    _, _, base_model = fit_model(data, model_spec)
+    base_effects, _ = compute_effects(base_model)
+    base = next(e for e in base_effects if e["column"] == column)
+    rows: list[dict[str, Any]] = [{"factor": 1.0, "exact": base["exact"], "elasticity": base.get("elasticity")}]
+    subset = data[model_spec.columns]
+    for factor in UNIT_FACTORS:
+        scaled = subset.copy()
+        scaled[column] = pd.to_numeric(scaled[column], errors="coerce") * factor
+        regressors = tuple(
+            replace(r, change=_rescaled_change(r.change, factor)) if r.column == column else r for r in model_spec.regressors
+        )
+        at = dict(model_spec.at)
+        if column in at:
+            at[column] = float(at[column]) * factor
+        try:
+            _, _, model = fit_model(scaled, replace(model_spec, regressors=regressors, at=at))
+            with np.errstate(all="ignore"):
+                effects, _ = compute_effects(model)
+            found = next(e for e in effects if e["column"] == column)
+            rows.append({"factor": factor, "exact": found["exact"], "elasticity": found.get("elasticity")})
+        except FormwiseError:
+            rows.append({"factor": factor, "exact": None, "elasticity": None})
+    reference = base["exact"]
+    moves = [abs(r["exact"] - reference) / abs(reference) for r in rows if r["exact"] is not None and reference not in (None, 0)]
+    largest = max(moves) if moves else None
+    return {
+        "column": column,
+        "change": base["change"],
+        "units": base["units"],
+        "rows": sorted(rows, key=lambda r: r["factor"]),
+        "max_relative_move": largest,
+        "moves": bool(largest is not None and largest > UNITS_TOLERANCE),
+    }
 
 
 def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:

@@ -1,0 +1,91 @@
+"""Effect curves: the predicted outcome on its original scale across a regressor's range.
+
+For a grid of values of one regressor, others held at the reference point, the index is
+η = x'b with standard error se(η) = sqrt(x'Vx). On the original scale:
+
+- naive retransform      g⁻¹(η)                          (biased for nonlinear g)
+- smearing retransform   S(η) = (1/n)·Σᵢ g⁻¹(η + êᵢ)     (Duan 1983, JASA 78)
+
+For a level outcome both equal η. The band is the t interval of η carried through S, which is
+monotone in η for every transform here (so the band is exact given the residuals). The grid
+runs 15 % of the observed range beyond each end, where the transform allows, and every point
+outside the observed range is flagged as an extrapolation. For large samples the smearing
+mean uses evenly spaced quantiles of the residuals instead of every residual, which changes
+S by far less than its own sampling error.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from core.design import Block
+from core.effects import Model
+
+GRID_POINTS = 121
+EXTEND = 0.15
+MAX_SMEAR_RESIDUALS = 5_000
+
+
+def _residuals_for_display(model: Model) -> np.ndarray:
+    resid = model.resid
+    if len(resid) <= MAX_SMEAR_RESIDUALS:
+        return resid
+    return np.quantile(resid, (np.arange(MAX_SMEAR_RESIDUALS) + 0.5) / MAX_SMEAR_RESIDUALS)
+
+
+def _predict(model: Model, X: np.ndarray, resid: np.ndarray) -> dict[str, list[float]]:
+    eta = X @ model.coef
+    se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", X, model.cov, X), 0, None))
+    t = model.t_crit
+    if model.kind == "level":
+        return {
+            "naive": eta.tolist(),
+            "smearing": eta.tolist(),
+            "ci_low": (eta - t * se).tolist(),
+            "ci_high": (eta + t * se).tolist(),
+        }
+    smear, _ = model.smear(eta, resid)
+    low, _ = model.smear(eta - t * se, resid)
+    high, _ = model.smear(eta + t * se, resid)
+    return {
+        "naive": model.outcome.inverse(eta).tolist(),
+        "smearing": smear.tolist(),
+        "ci_low": np.minimum(low, high).tolist(),
+        "ci_high": np.maximum(low, high).tolist(),
+    }
+
+
+def effect_curve(model: Model, block: Block) -> dict[str, Any]:
+    """The curve for one regressor (levels with their predictions for categories and dummies)."""
+    design = model.design
+    column = block.spec.column
+    resid = _residuals_for_display(model)
+    base = dict(design.reference)
+    if block.is_category or block.binary:
+        levels = ([block.reference_level] + block.levels) if block.is_category else [0.0, 1.0]
+        X = model.encode(dict(base, **{column: np.array(levels, dtype=object if block.is_category else float)}), len(levels))
+        return {
+            "column": column,
+            "kind": "levels",
+            "x": [str(v) if block.is_category else v for v in levels],
+            "outside": [False] * len(levels),
+            **_predict(model, X, resid),
+        }
+    x = design.values[column]
+    low, high = float(np.min(x)), float(np.max(x))
+    span = high - low
+    grid = np.linspace(low - EXTEND * span, high + EXTEND * span, GRID_POINTS)
+    bad, _ = block.spec.transform.invalid(grid)
+    grid = np.union1d(grid[~bad], [low, high])
+    X = model.encode(dict(base, **{column: grid}), len(grid))
+    return {
+        "column": column,
+        "kind": "continuous",
+        "x": grid.tolist(),
+        "observed_min": low,
+        "observed_max": high,
+        "outside": ((grid < low) | (grid > high)).tolist(),
+        **_predict(model, X, resid),
+    }
