@@ -11,16 +11,22 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from core.covariance import covariance
+from core.covariance import covariance, sandwich
 from core.curves import effect_curve
 from core.design import Design, build_design
+from core.diagnostics import diagnostics
 from core.effects import Model, compute_effects, gap_curve
 from core.errors import DataError, FormwiseError
 from core.ols import NEAR_COLLINEAR, OLSFit, fit_ols
+from core.ppml import fit_ppml
 from core.readings import reading
+from core.retransform import boxcox_profile, fit_on_original_scale, predict
 from core.spec import Change, ModelSpec, parse_spec
+from core.transforms import Log
 
-ALL_PARTS = frozenset({"terms", "fit", "effects", "gap_curves", "curves", "units_check"})
+ALL_PARTS = frozenset(
+    {"terms", "fit", "effects", "gap_curves", "curves", "units_check", "diagnostics", "boxcox", "retransform", "predictions"}
+)
 # Rescalings of an IHS or shifted-log regressor for the units check (Aihounton & Henningsen 2021).
 UNIT_FACTORS = (0.001, 0.01, 0.1, 10.0, 100.0, 1000.0)
 # Relative movement of an effect across rescalings above which the user is warned.
@@ -71,17 +77,45 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
             "individual coefficients are imprecise, though predictions may still be fine."
         )
 
+    ppml = model_spec.estimator == "ppml"
     if "terms" in wanted:
         result["terms"] = _terms(design, fit.coef, cov, df, model_spec)
-    if "fit" in wanted:
+    if "fit" in wanted or "retransform" in wanted:
+        measures = {
+            "r2_original_scale": None,
+            "loglik_original_scale": None,
+            "aic_original_scale": None,
+            "bic_original_scale": None,
+            "retransform": None,
+        }
+        if not ppml:
+            with np.errstate(all="ignore"):
+                measures = fit_on_original_scale(model, design.y_raw, fit.fitted, fit.loglik, fit.k)
         result["fit"] = {
             "r2": fit.r2,
             "adj_r2": fit.adj_r2,
+            "r2_original_scale": measures["r2_original_scale"] if not ppml else fit.r2,
             "loglik": fit.loglik,
+            "loglik_original_scale": measures["loglik_original_scale"],
+            "aic_original_scale": measures["aic_original_scale"],
+            "bic_original_scale": measures["bic_original_scale"],
             "sigma": fit.sigma,
             "condition_number": fit.condition_number,
             "df_resid": fit.df_resid,
         }
+        result["retransform"] = measures["retransform"]
+        if ppml:
+            warnings.append(
+                "PPML models the mean of the outcome directly: no retransformation is needed, and its Poisson "
+                "pseudo-likelihood is not comparable with the least-squares models' original-scale likelihoods."
+            )
+    if "diagnostics" in wanted:
+        result["diagnostics"] = None if ppml else diagnostics(design, fit)
+    if "boxcox" in wanted:
+        result["boxcox"] = None if ppml else boxcox_profile(design.y_raw, design.X, design.weights)
+    if "predictions" in wanted:
+        sigma = fit.sigma if not ppml else 0.0
+        result["predictions"] = predict(model, model_spec.predict, sigma) if model_spec.predict else []
     if "effects" in wanted:
         with np.errstate(all="ignore"):
             effects, effect_warnings = compute_effects(model)
@@ -114,13 +148,43 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
 
 
 def fit_model(data: pd.DataFrame, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
-    """Design, least-squares fit and covariance: everything the effect engine needs."""
+    """Design, fit and covariance: everything the effect engine needs.
+
+    For PPML the returned fit carries the Poisson estimates in the least-squares record
+    (residuals y - μ̂, fitted values the index x'b, r2 the squared correlation of y and μ̂), and
+    the model is seen by the effect engine as a log-link mean with no residual spread.
+    """
     design = build_design(data, model_spec)
     names = [t.name for t in design.terms]
     with np.errstate(all="ignore"):
-        fit = fit_ols(design.X, design.y, design.weights, names)
+        fit = fit_ols(design.X, design.y, design.weights, names)  # also screens for collinearity
+        if model_spec.estimator == "ppml":
+            return _fit_ppml(design, model_spec, fit)
         cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
     model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
+    return design, fit, model
+
+
+def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[Design, OLSFit, Model]:
+    ppml = fit_ppml(design.X, design.y_raw, design.weights)
+    w = design.weights if design.weights is not None else 1.0
+    root_mu = np.sqrt(w * ppml.mu)
+    u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
+    cov, df = sandwich(ppml.bread, design.X * root_mu[:, None], u, model_spec.covariance, design.groups, 1.0)
+    r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
+    fit = replace(
+        screen,
+        coef=ppml.coef,
+        resid=design.y_raw - ppml.mu,
+        fitted=design.X @ ppml.coef,
+        xtx_inv=ppml.bread,
+        r2=r2,
+        adj_r2=float("nan"),
+        sigma=float("nan"),
+        loglik=ppml.loglik,
+        ssr=float("nan"),
+    )
+    model = Model(design=design, coef=ppml.coef, cov=cov, df=df, outcome=Log(), resid=np.zeros(1))
     return design, fit, model
 
 
@@ -142,7 +206,7 @@ def units_check(data: pd.DataFrame, model_spec: ModelSpec, column: str) -> dict[
     change is asked each time; the reference point scales with it.
     """
     _, _, base_model = fit_model(data, model_spec)
-    base_effects, _ = compute_effects(base_model)
+    base_effects, _ = compute_effects(base_model, only=column, with_average=False)
     base = next(e for e in base_effects if e["column"] == column)
     rows: list[dict[str, Any]] = [{"factor": 1.0, "exact": base["exact"], "elasticity": base.get("elasticity")}]
     subset = data[model_spec.columns]
@@ -158,7 +222,7 @@ def units_check(data: pd.DataFrame, model_spec: ModelSpec, column: str) -> dict[
         try:
             _, _, model = fit_model(scaled, replace(model_spec, regressors=regressors, at=at))
             with np.errstate(all="ignore"):
-                effects, _ = compute_effects(model)
+                effects, _ = compute_effects(model, only=column, with_average=False)
             found = next(e for e in effects if e["column"] == column)
             rows.append({"factor": factor, "exact": found["exact"], "elasticity": found.get("elasticity")})
         except FormwiseError:
@@ -201,7 +265,7 @@ def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:
                 "reading": reading(
                     term,
                     float(coef[i]),
-                    model_spec.outcome_transform,
+                    Log() if model_spec.estimator == "ppml" else model_spec.outcome_transform,
                     model_spec.outcome_column,
                     blocks.get(term.column) if term.column else None,
                 ),

@@ -30,13 +30,19 @@ def leverage(X: np.ndarray, bread: np.ndarray, weights: np.ndarray | None = None
 
 
 def covariance(fit: OLSFit, X: np.ndarray, kind: str, groups: np.ndarray | None = None) -> tuple[np.ndarray, int]:
-    """Covariance matrix of the coefficients and the degrees of freedom for its t intervals."""
-    bread = fit.xtx_inv
-    n, k = fit.n, fit.k
+    """Covariance of least-squares coefficients and the degrees of freedom for t intervals."""
     u = fit.resid if fit.weights is None else fit.resid * np.sqrt(fit.weights)
     Xw = X if fit.weights is None else X * np.sqrt(fit.weights)[:, None]
+    return sandwich(fit.xtx_inv, Xw, u, kind, groups, fit.sigma**2)
+
+
+def sandwich(
+    bread: np.ndarray, Xw: np.ndarray, u: np.ndarray, kind: str, groups: np.ndarray | None, scale: float
+) -> tuple[np.ndarray, int]:
+    """V = B·M·B for rows x̃ᵢ (``Xw``) and residuals uᵢ; ``scale`` is s² for the classical type."""
+    n, k = Xw.shape
     if kind == "classical":
-        return fit.sigma**2 * bread, n - k
+        return scale * bread, n - k
     if kind in ("HC0", "HC1"):
         scores = Xw * u[:, None]
         factor = n / (n - k) if kind == "HC1" else 1.0

@@ -46,7 +46,7 @@ from core.transforms import Transform
 _SMEAR_CHUNK = 4_000_000
 # Rows and residual quantiles used for the sample-average effect when smearing is needed.
 _AVERAGE_ROWS = 2_000
-_AVERAGE_RESIDUALS = 2_000
+_AVERAGE_RESIDUALS = 1_000
 
 
 @dataclass
@@ -156,13 +156,15 @@ def _start_end(change: Change, x_ref: Any) -> tuple[Any, Any]:
     return x_ref, change.apply(x_ref)
 
 
-def compute_effects(model: Model) -> tuple[list[dict[str, Any]], list[str]]:
+def compute_effects(model: Model, only: str | None = None, with_average: bool = True) -> tuple[list[dict[str, Any]], list[str]]:
     """One effect per regressor (one per level for categories without a named change)."""
     design = model.design
     out: list[dict[str, Any]] = []
     warnings: list[str] = []
     for block in design.encoder.blocks:
         column = block.spec.column
+        if only is not None and column != only:
+            continue
         if block.is_category:
             if block.spec.change is not None:
                 pairs = [(str(block.spec.change.start), str(block.spec.change.end), block.spec.change.text)]
@@ -173,7 +175,7 @@ def compute_effects(model: Model) -> tuple[list[dict[str, Any]], list[str]]:
                 for level in (start, end):
                     if level not in known:
                         raise_level(column, level, known)
-                out.append(_one_effect(model, block, start, end, text, warnings))
+                out.append(_one_effect(model, block, start, end, text, warnings, with_average))
             continue
         change = block.spec.change or default_change(block, design.values[column])
         if change.kind == "switch" and not all(isinstance(v, float) for v in (change.start, change.end)):
@@ -181,7 +183,7 @@ def compute_effects(model: Model) -> tuple[list[dict[str, Any]], list[str]]:
 
             raise SpecError(f"spec.regressors ({column}): '{change.text}' must go between two numbers for a numeric column.")
         x0, x1 = _start_end(change, design.reference[column])
-        out.append(_one_effect(model, block, x0, x1, change.text, warnings))
+        out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average))
     return out, warnings
 
 
@@ -191,7 +193,9 @@ def raise_level(column: str, level: str, known: set[str]) -> None:
     raise SpecError(f"spec.regressors ({column}): '{level}' is not a level of '{column}'; levels are {', '.join(sorted(known))}.")
 
 
-def _one_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, warnings: list[str]) -> dict[str, Any]:
+def _one_effect(
+    model: Model, block: Block, x0: Any, x1: Any, text: str, warnings: list[str], with_average: bool = True
+) -> dict[str, Any]:
     design = model.design
     column = block.spec.column
     base = dict(design.reference)
@@ -267,7 +271,7 @@ def _one_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, warning
         ci_low=float(min(low, high)),
         ci_high=float(max(low, high)),
         adjusted=adjusted,
-        average=_average_effect(model, block, x0, x1, text, exact),
+        average=_average_effect(model, block, x0, x1, text, exact) if with_average else None,
         gap=approximate - exact,
         interval_method=method,
         extrapolated=_outside(design.values[column], x0, x1) if not block.is_category else False,
@@ -312,6 +316,7 @@ def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_
     resid = None
     if model.kind == "smearing" and n > _AVERAGE_ROWS:
         rows = np.random.default_rng(0).choice(n, _AVERAGE_ROWS, replace=False)
+    if model.kind == "smearing" and n > _AVERAGE_RESIDUALS:
         resid = np.quantile(model.resid, (np.arange(_AVERAGE_RESIDUALS) + 0.5) / _AVERAGE_RESIDUALS)
     base = {col: vals[rows] for col, vals in design.values.items()}
     m = len(rows)

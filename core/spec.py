@@ -16,10 +16,10 @@ import pandas as pd
 from core.errors import SpecError
 from core.transforms import Category, Transform, parse_transform
 
-TOP_KEYS = {"outcome", "regressors", "estimator", "covariance", "cluster", "weights", "at", "name"}
+TOP_KEYS = {"outcome", "regressors", "estimator", "covariance", "cluster", "weights", "at", "name", "predict"}
 OUTCOME_KEYS = {"column", "transform"}
 REGRESSOR_KEYS = {"column", "transform", "change", "reference"}
-ESTIMATORS = ("ols",)
+ESTIMATORS = ("ols", "ppml")
 COVARIANCES = ("classical", "HC0", "HC1", "HC2", "HC3", "cluster")
 
 _PERCENT = re.compile(r"^([+-])\s*(\d+(?:\.\d*)?|\.\d+)\s*%$")
@@ -75,6 +75,7 @@ class ModelSpec:
     weights: str | None = None
     at: dict[str, Any] = field(default_factory=dict)
     name: str | None = None
+    predict: tuple[dict[str, Any], ...] = ()
 
     @property
     def columns(self) -> list[str]:
@@ -184,6 +185,11 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
     estimator = spec.get("estimator") or "ols"
     if estimator not in ESTIMATORS:
         raise SpecError(f"spec.estimator: unknown estimator '{estimator}'; use one of: {', '.join(ESTIMATORS)}.")
+    if estimator == "ppml" and outcome_transform.code != "level":
+        raise SpecError(
+            "spec.outcome: with estimator 'ppml' give the outcome in levels (transform 'level'); "
+            "PPML models the log of its mean itself, zeros included."
+        )
 
     covariance = spec.get("covariance") or "HC1"
     by_lower = {c.lower(): c for c in COVARIANCES}
@@ -221,6 +227,16 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         if isinstance(value, float) and not math.isfinite(value):
             raise SpecError(f"spec.at.{key}: must be a finite number.")
 
+    predict = spec.get("predict") or []
+    if not isinstance(predict, list) or not all(isinstance(p, dict) for p in predict):
+        raise SpecError('spec.predict: must be a list of objects of regressor values, e.g. [{"drink_price": 5}].')
+    for i, point in enumerate(predict):
+        for key, value in point.items():
+            if key not in used:
+                raise SpecError(f"spec.predict[{i}]: '{key}' is not a regressor of this model.")
+            if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+                raise SpecError(f"spec.predict[{i}].{key}: must be a number (or a level name for a category).")
+
     name = spec.get("name")
     if name is not None and not isinstance(name, str):
         raise SpecError("spec.name: must be text.")
@@ -235,4 +251,5 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         weights=weights,
         at=dict(at),
         name=name,
+        predict=tuple(dict(p) for p in predict),
     )
