@@ -114,7 +114,7 @@ def test_ceosal2_retransformed_prediction() -> None:
     b = [t["estimate"] for t in result["terms"]]
     # Wooldridge, Introductory Econometrics (7th ed.), Example 6.7 (CEOSAL2): 4.504, .163, .109, .0117,
     # and a predicted log salary of 7.013 at sales = 5,000, mktval = 10,000, ceoten = 10.
-    for estimate, printed, half_unit in zip(b, [4.504, 0.163, 0.109, 0.0117], [0.0005, 0.0005, 0.0005, 0.00005]):
+    for estimate, printed, half_unit in zip(b, [4.504, 0.163, 0.109, 0.0117], [0.0005, 0.0005, 0.0005, 0.00005], strict=True):
         assert estimate == pytest.approx(printed, abs=half_unit)
     prediction = result["predictions"][0]
     assert prediction["index"] == pytest.approx(7.013, abs=0.0015)
