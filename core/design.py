@@ -133,9 +133,17 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
 
     raw: dict[str, np.ndarray] = {}
     category_columns = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
+    group_labels = None
+    if spec.cluster:
+        # Group labels are kept apart: the cluster column may also be a numeric regressor.
+        clusters = data[spec.cluster]
+        group_labels = clusters.astype(str).to_numpy()
+        drop(clusters.isna().to_numpy(), spec.cluster, "missing value")
     for column in spec.columns:
         series = data[column]
-        if column in category_columns or column == spec.cluster:
+        if column == spec.cluster and column not in {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}:
+            continue
+        if column in category_columns:
             missing = series.isna().to_numpy()
             raw[column] = series.astype(object).where(~series.isna(), None).to_numpy()
             drop(missing, column, "missing value")
@@ -160,7 +168,9 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         drop(np.isfinite(w) & ~(w > 0), spec.weights, "weights must be above zero")
 
     for entry in dropped:
-        if entry["reason"] not in ("missing value", "infinite value"):
+        if entry["column"] == spec.weights and entry["reason"] == "weights must be above zero":
+            warnings.append(f"{entry['count']} row(s) dropped because their weight in '{spec.weights}' is zero or negative.")
+        elif entry["reason"] not in ("missing value", "infinite value"):
             other = "level or inverse hyperbolic sine (ihs)" if "log" in entry["reason"] else "level"
             warnings.append(
                 f"{entry['count']} row(s) dropped because {entry['reason']} in '{entry['column']}'; "
@@ -227,6 +237,11 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
     encoder = Encoder(blocks, width)
     X = encoder.encode(values, n)
     y_raw = raw[spec.outcome_column][rows]
+    if float(np.ptp(y_raw)) == 0:
+        raise DataError(
+            f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
+            "there is nothing to explain. Pick another outcome."
+        )
     with np.errstate(all="ignore"):
         y = y_transform.forward(y_raw)
 
@@ -239,13 +254,32 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         encoder=encoder,
         values=values,
         weights=raw[spec.weights][rows] if spec.weights else None,
-        groups=np.asarray(raw[spec.cluster][rows]).astype(str) if spec.cluster else None,
+        groups=group_labels[rows] if group_labels is not None else None,
         rows=rows,
         n_total=n_total,
         dropped=dropped,
         warnings=warnings,
         reference=reference,
     )
+
+
+def match_level(given: Any, levels: list[str]) -> str | None:
+    """The category level ``given`` names: by its text, or by value for numeric-looking levels
+    (so 2, 2.0 and "2" all name level "2")."""
+    text = str(given)
+    if text in levels:
+        return text
+    try:
+        number = float(given)
+    except (TypeError, ValueError):
+        return None
+    for level in levels:
+        try:
+            if float(level) == number:
+                return level
+        except ValueError:
+            continue
+    return None
 
 
 def _level_order(level: str) -> tuple[int, float, str]:
@@ -264,9 +298,13 @@ def reference_point(spec: ModelSpec, blocks: list[Block], values: dict[str, np.n
         if column in spec.at:
             given = spec.at[column]
             if block.is_category:
-                given = str(given)
-                if given not in block.levels and given != block.reference_level:
-                    raise DataError(f"spec.at.{column}: '{given}' is not a level of '{column}'.")
+                known = [block.reference_level, *block.levels]
+                matched = match_level(given, known)
+                if matched is None:
+                    raise DataError(
+                        f"spec.at.{column}: '{given}' is not a level of '{column}'; levels are {', '.join(known[:10])}."
+                    )
+                given = matched
             else:
                 if isinstance(given, str):
                     raise DataError(f"spec.at.{column}: must be a number in the units of '{column}'.")

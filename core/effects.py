@@ -38,7 +38,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from core.design import Block, Design
+from core.design import Block, Design, match_level
 from core.spec import Change
 from core.transforms import Transform
 
@@ -166,15 +166,16 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
         if only is not None and column != only:
             continue
         if block.is_category:
+            known = [block.reference_level, *block.levels]
             if block.spec.change is not None:
-                pairs = [(str(block.spec.change.start), str(block.spec.change.end), block.spec.change.text)]
+                ends = [match_level(v, known) for v in (block.spec.change.start, block.spec.change.end)]
+                for given, level in zip((block.spec.change.start, block.spec.change.end), ends, strict=True):
+                    if level is None:
+                        raise_level(column, str(given), set(known))
+                pairs = [(ends[0], ends[1], block.spec.change.text)]
             else:
                 pairs = [(block.reference_level, lv, f"{block.reference_level}->{lv}") for lv in block.levels]
-            known = set(block.levels) | {block.reference_level}
             for start, end, text in pairs:
-                for level in (start, end):
-                    if level not in known:
-                        raise_level(column, level, known)
                 out.append(_one_effect(model, block, start, end, text, warnings, with_average))
             continue
         change = block.spec.change or default_change(block, design.values[column])
