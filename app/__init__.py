@@ -1,0 +1,1 @@
+"""Formwise Streamlit app: entry point app/main.py."""

@@ -1,0 +1,322 @@
+"""Formwise in the browser: widgets -> spec -> core.analyze -> tables and figures.
+
+Run from the repository root with ``streamlit run app/main.py``. The rules (grid <-> spec,
+defaults, wording) live in ``app.state`` and ``app.tables``; figures in ``app.charts``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+# `streamlit run app/main.py` puts app/ on sys.path, not the repository root that holds core/.
+ROOT = Path(__file__).resolve().parents[1]
+if str(ROOT) not in sys.path:
+    sys.path.insert(0, str(ROOT))
+
+import pandas as pd  # noqa: E402
+import streamlit as st  # noqa: E402
+
+import core  # noqa: E402
+from app import charts, state, tables  # noqa: E402
+from core.reader import read_table  # noqa: E402
+
+DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
+DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
+DEMO_ID = "demo:kiosks.csv"
+# Only the sections this screen shows, so a transform toggle refits quickly; units_check is
+# kept because it produces the warning about unit-dependent IHS and shifted-log effects.
+PARTS = frozenset({"terms", "fit", "effects", "gap_curves", "units_check"})
+
+
+# --- cached work ----------------------------------------------------------------------------
+@st.cache_data(max_entries=8, show_spinner=False)
+def read_bytes(raw: bytes, name: str) -> pd.DataFrame:
+    """Read a file's bytes once; reruns reuse the frame."""
+    return read_table(raw, name)
+
+
+@st.cache_data(max_entries=64, show_spinner=False)
+def run_model(data_id: str, spec_json: str, _frame: pd.DataFrame) -> dict[str, Any]:
+    """Fit once per (data, spec): the frame itself is not hashed, its identity is."""
+    return core.analyze(_frame, json.loads(spec_json), parts=PARTS)
+
+
+# --- data and grid state ------------------------------------------------------------------------
+def use_data(data_id: str, name: str, frame: pd.DataFrame, spec: dict[str, Any]) -> None:
+    """Make ``frame`` the working data, with the grid and error choices taken from ``spec``."""
+    ss = st.session_state
+    ss.data = {"id": data_id, "name": name, "frame": frame}
+    ss.grid_base = state.spec_to_grid(spec, frame)
+    ss.previous_grid = ss.grid_base
+    # A fresh editor key discards the old grid's pending edits.
+    ss.grid_version = ss.get("grid_version", 0) + 1
+    ss.grid_key = f"variables_{ss.grid_version}"
+    ss.at = dict(spec.get("at") or {})
+    ss.covariance = spec.get("covariance") or "HC1"
+    ss.cluster_column = spec.get("cluster") or state.suggest_cluster(frame)
+
+
+def load_demo() -> None:
+    frame = read_bytes(DEMO_CSV.read_bytes(), DEMO_CSV.name)
+    use_data(DEMO_ID, "demo: coffee kiosks (invented)", frame, json.loads(DEMO_SPEC.read_text()))
+
+
+def take_upload(upload: Any) -> None:
+    """Switch to an uploaded file once per upload; a bad file leaves the current data in place."""
+    ss = st.session_state
+    if upload.file_id == ss.get("upload_seen"):
+        return
+    ss.upload_seen = upload.file_id
+    ss.upload_error = None
+    raw = upload.getvalue()
+    try:
+        # Header cells such as 2024 arrive as numbers; the grid and the spec name columns as text.
+        frame = read_bytes(raw, upload.name).rename(columns=str)
+        spec = state.default_spec(frame)
+    except (core.FormwiseError, state.GridError) as exc:
+        ss.upload_error = f"Could not use '{upload.name}': {exc}"
+        return
+    data_id = f"upload:{upload.name}:{hashlib.sha256(raw).hexdigest()[:16]}"
+    use_data(data_id, upload.name, frame, spec)
+
+
+# --- sidebar --------------------------------------------------------------------------------------
+def sidebar() -> None:
+    ss = st.session_state
+    frame: pd.DataFrame = ss.data["frame"]
+    with st.sidebar:
+        st.markdown("### Data")
+        st.markdown(f"**{ss.data['name']}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
+        upload = st.file_uploader(
+            "Load your own table",
+            type=["csv", "tsv", "txt", "xlsx"],
+            key=f"upload_{ss.get('uploader_version', 0)}",
+            help="CSV, TSV or Excel (.xlsx). The file is read, never changed.",
+        )
+        if upload is not None:
+            take_upload(upload)
+        if ss.get("upload_error"):
+            st.error(ss.upload_error)
+            st.caption(f"Still working with: {ss.data['name']}.")
+        if ss.data["id"] != DEMO_ID and st.button("Back to the demo data", width="stretch"):
+            load_demo()
+            ss.uploader_version = ss.get("uploader_version", 0) + 1
+            ss.upload_seen = None
+            ss.upload_error = None
+            st.rerun()
+
+        st.markdown("### Standard errors")
+        st.selectbox(
+            "How to measure uncertainty",
+            state.COVARIANCES,
+            key="covariance",
+            format_func=lambda c: state.COVARIANCE_WORDS[c],
+        )
+        if ss.covariance == "cluster":
+            columns = [str(c) for c in frame.columns]
+            # The picker's state is dropped while it is hidden, so fall back to a good guess.
+            if ss.get("cluster_column") not in columns:
+                ss.cluster_column = state.suggest_cluster(frame) or columns[0]
+            st.selectbox("Groups are defined by", columns, key="cluster_column")
+        st.caption(
+            "Intervals are 95 % confidence intervals and p-values test a zero coefficient, both using the "
+            "standard errors chosen here. Robust (HC) errors allow the noise to differ between rows; "
+            "clustered errors also let rows of the same group move together."
+        )
+
+
+# --- the variables grid -----------------------------------------------------------------------------
+def variables_grid() -> pd.DataFrame:
+    ss = st.session_state
+    st.markdown("#### Variables")
+    st.caption(
+        "Pick one outcome, the regressors, and a transform for each. **Change** is the move the effects are "
+        "worked out for: `+10%` (relative), `+1` (in the variable's units), `0->1` or `Coast->Inland` "
+        "(from one value to another). Leave it blank for a sensible default."
+    )
+    extra = sorted(set(ss.grid_base["transform"].dropna()) - set(state.REGRESSOR_TRANSFORMS))
+    options = state.REGRESSOR_TRANSFORMS + extra
+    # Tall enough to show every row of a typical file without an inner scrollbar.
+    height = min(38 + 35 * len(ss.grid_base), 620)
+    grid = st.data_editor(
+        ss.grid_base,
+        height=height,
+        key=ss.grid_key,
+        hide_index=True,
+        num_rows="fixed",
+        disabled=["column", "about"],
+        width="stretch",
+        column_config={
+            "column": st.column_config.TextColumn("Column", width=170, pinned=True),
+            "about": st.column_config.TextColumn("What it holds", width=200),
+            "role": st.column_config.SelectboxColumn(
+                "Role", options=state.ROLES, required=True, width=120, help="Exactly one outcome; any number of regressors."
+            ),
+            "transform": st.column_config.SelectboxColumn(
+                "Transform",
+                options=options,
+                required=True,
+                width=190,
+                format_func=lambda t: state.TRANSFORM_WORDS.get(t, t),
+                help="The outcome takes level, log, IHS, log(x + 1) or square root.",
+            ),
+            "change": st.column_config.TextColumn("Change", width=130, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
+            "reference": st.column_config.TextColumn(
+                "Reference level", width=150, help="For categories: the level the others are compared with."
+            ),
+        },
+    )
+    resolved = state.resolve_outcome(grid, ss.previous_grid)
+    if resolved is not grid:
+        # A second outcome was picked: restart the editor on the resolved grid.
+        ss.grid_base = resolved
+        ss.grid_version += 1
+        ss.grid_key = f"variables_{ss.grid_version}"
+        ss.previous_grid = resolved
+        st.rerun()
+    ss.previous_grid = grid
+    levels = state.category_levels(ss.data["frame"], grid)
+    if levels:
+        st.caption(
+            "Category levels (most frequent first; blank reference = the most frequent): "
+            + " · ".join(f"**{col}**: {', '.join(vals)}" for col, vals in levels.items())
+        )
+    return grid
+
+
+# --- results --------------------------------------------------------------------------------------
+def show_results(result: dict[str, Any], spec: dict[str, Any], data_name: str) -> None:
+    with st.container(border=True):
+        st.markdown(f"##### {state.sentence_case(state.model_sentence(result))}")
+        st.markdown(
+            f"{state.rows_sentence(result)} · data: {data_name} · standard errors: "
+            f"{state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
+            + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
+            + state.fit_sentence(result)
+        )
+        for line in state.dropped_lines(result):
+            st.caption(f"Left out: {line}")
+    for warning in result.get("warnings") or []:
+        st.warning(state.sentence_case(warning))
+    st.caption(
+        "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
+        "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
+    )
+    with st.expander("More on reading these results"):
+        for caution in result.get("cautions") or []:
+            st.markdown(f"- {caution}")
+        st.markdown(
+            "- R² is measured on the scale of the outcome as transformed, so it cannot be compared between "
+            "a log and a level outcome."
+        )
+
+    coef_tab, effects_tab, check_tab = st.tabs(["Coefficients", "Effects of changes", "Approximation check"])
+    with coef_tab:
+        st.table(tables.styled(tables.coefficient_table(result, spec)), hide_index=True)
+    with effects_tab:
+        effects_view(result, spec)
+    with check_tab:
+        approximation_view(result, spec)
+
+
+def effects_view(result: dict[str, Any], spec: dict[str, Any]) -> None:
+    table = tables.effects_table(result, spec)
+    if table.empty:
+        st.info("Add a regressor to see the effect of changing it.")
+        return
+    st.caption(
+        "Each row moves one variable by the change in the grid, every other regressor held at its reference "
+        "value (sample mean; most frequent level for categories). The interval is for the exact effect. "
+        "“Small-sample adjusted” applies to 0/1 and category effects in log models; “Average over rows” "
+        "applies the change to every row and averages, where that differs from the effect at the reference."
+    )
+    st.table(tables.styled(table, tables.extrapolated_rows(result)), hide_index=True)
+    point = result.get("reference_point") or {}
+    if point:
+        st.caption(
+            "Reference values: " + ", ".join(f"{k} = {tables.sig(v, 4) if isinstance(v, float) else v}" for k, v in point.items())
+        )
+
+
+def approximation_view(result: dict[str, Any], spec: dict[str, Any]) -> None:
+    curves = result.get("gap_curves") or []
+    if not curves:
+        st.info(
+            "No continuous regressor in this model: 0/1 and category effects are single moves, so there is no "
+            "range of change sizes to compare. Their exact and approximate effects are in the effects table."
+        )
+        return
+    ss = st.session_state
+    transforms = {r["column"]: r.get("transform", "level") for r in spec.get("regressors", [])}
+    names = [c["column"] for c in curves]
+    if ss.get("gap_pick") not in names:
+        ss.gap_pick = names[0]
+    left, right = st.columns([2, 3])
+    with left:
+        pick = st.selectbox("Regressor", names, key="gap_pick", format_func=lambda c: state.variable_label(c, transforms.get(c)))
+    with right:
+        tolerance = st.slider(
+            "Tolerance: largest acceptable relative error (%)",
+            min_value=1,
+            max_value=50,
+            value=10,
+            key="gap_tolerance",
+            help="Marks the change sizes where |approximation − exact| / |exact| exceeds this share.",
+        )
+    curve = curves[names.index(pick)]
+    outcome = result["outcome"]
+    figure = charts.gap_figure(
+        curve,
+        tolerance,
+        regressor_label=state.variable_label(pick, transforms.get(pick)),
+        outcome_label=state.variable_label(outcome["column"], outcome["transform"], "outcome"),
+        outcome_column=outcome["column"],
+    )
+    st.plotly_chart(figure, theme=None, config={"displaylogo": False}, key="gap_chart")
+    st.markdown(charts.curve_summary(curve, tolerance))
+
+
+# --- page ------------------------------------------------------------------------------------------
+def main() -> None:
+    st.set_page_config(page_title="Formwise", layout="wide", initial_sidebar_state="expanded")
+    ss = st.session_state
+    if "data" not in ss:
+        load_demo()
+    sidebar()
+
+    st.markdown("## Formwise")
+    st.caption("Try a transform per variable and see at once how the estimates, effects and their approximations change.")
+    grid = variables_grid()
+
+    frame: pd.DataFrame = ss.data["frame"]
+    error: str | None = None
+    notes: list[str] = []
+    try:
+        spec, notes = state.grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"))
+        result = run_model(ss.data["id"], json.dumps(spec, sort_keys=True), frame)
+        ss.last_good = {"result": result, "spec": spec, "data_name": ss.data["name"], "data_id": ss.data["id"]}
+    except (core.FormwiseError, state.GridError) as exc:
+        error = state.sentence_case(str(exc))
+    except Exception as exc:  # a core bug must not become a traceback on screen
+        error = f"Formwise could not fit this model because of an internal problem ({type(exc).__name__}: {exc})."
+
+    for note in notes:
+        st.info(note)
+    good = ss.get("last_good")
+    if error:
+        st.error(error)
+        if good:
+            other_data = "" if good["data_id"] == ss.data["id"] else f" on {good['data_name']}"
+            st.info(
+                f"The results below belong to the previous valid model{other_data}, not to the grid as it is now. "
+                "Fix the problem above and they update."
+            )
+    if good:
+        show_results(good["result"], good["spec"], good["data_name"])
+
+
+main()
