@@ -44,8 +44,11 @@ from core.transforms import Transform
 
 # Cap on the (rows x residuals) grid evaluated at once when smearing, to bound memory.
 _SMEAR_CHUNK = 4_000_000
-# Rows and residual quantiles used for the sample-average effect when smearing is needed.
-_AVERAGE_ROWS = 2_000
+# The sample-average effect is taken over a seeded random sample of rows when the data are
+# larger than this (its sampling error is then far below the effect's own standard error) ...
+_AVERAGE_ROWS = 20_000
+# ... and, when smearing is needed, over fewer rows and residual quantiles, to bound the work.
+_AVERAGE_ROWS_SMEARING = 2_000
 _AVERAGE_RESIDUALS = 1_000
 
 
@@ -309,14 +312,16 @@ def _outside(x: np.ndarray, x0: float, x1: float) -> bool:
 
 def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float) -> float | None:
     """The effect averaged over the sample's rows (each row's own values, the change applied
-    to it), where it differs from the effect at the reference point; else None."""
+    to it), where it differs from the effect at the reference point; else None. Large samples
+    are averaged over a seeded random sample of rows (see ``_AVERAGE_ROWS``)."""
     design = model.design
     column = block.spec.column
     n = len(design.y)
     rows = np.arange(n)
     resid = None
-    if model.kind == "smearing" and n > _AVERAGE_ROWS:
-        rows = np.random.default_rng(0).choice(n, _AVERAGE_ROWS, replace=False)
+    limit = _AVERAGE_ROWS_SMEARING if model.kind == "smearing" else _AVERAGE_ROWS
+    if n > limit:
+        rows = np.sort(np.random.default_rng(0).choice(n, limit, replace=False))
     if model.kind == "smearing" and n > _AVERAGE_RESIDUALS:
         resid = np.quantile(model.resid, (np.arange(_AVERAGE_RESIDUALS) + 0.5) / _AVERAGE_RESIDUALS)
     base = {col: vals[rows] for col, vals in design.values.items()}
