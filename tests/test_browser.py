@@ -1,0 +1,135 @@
+"""End to end in Debian's Chromium: the app as a user meets it.
+
+In CI (CI=true) these tests fail when Chromium is missing; on a laptop without it they skip
+with a message saying how to enable them. Screenshots go to tests/screenshots/ (git-ignored).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterator
+from pathlib import Path
+
+import pytest
+
+from tests.browser_support import CHROMIUM_FLAGS, SCREENSHOTS, chromium_path, formwise_server
+
+pytestmark = pytest.mark.browser
+playwright_api = pytest.importorskip("playwright.sync_api")
+
+READY_TEXT = "What it means"  # header of the coefficient table: the page has finished a fit
+
+
+@pytest.fixture(scope="module")
+def server() -> Iterator[str]:
+    chromium_path()
+    with formwise_server() as url:
+        yield url
+
+
+@pytest.fixture(scope="module")
+def browser() -> Iterator[object]:
+    executable = chromium_path()
+    with playwright_api.sync_playwright() as driver:
+        launched = driver.chromium.launch(executable_path=executable, args=CHROMIUM_FLAGS, headless=True)
+        yield launched
+        launched.close()
+
+
+@pytest.fixture()
+def page(browser, server):
+    context = browser.new_context(viewport={"width": 1440, "height": 1000}, accept_downloads=True)
+    page = context.new_page()
+    page.problems = []  # type: ignore[attr-defined]
+    page.on("pageerror", lambda error: page.problems.append(f"page error: {error}"))
+    page.on("dialog", lambda dialog: (page.problems.append(f"dialog: {dialog.message}"), dialog.dismiss()))
+    page.goto(server)
+    page.get_by_text(READY_TEXT).first.wait_for(timeout=90_000)
+    yield page
+    context.close()
+
+
+def _shot(page, name: str) -> None:
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    page.screenshot(path=str(SCREENSHOTS / f"browser-{name}.png"), full_page=True)
+
+
+def _no_error_text(page) -> None:
+    assert page.locator('[data-testid="stException"]').count() == 0
+    assert page.get_by_text("Traceback").count() == 0
+
+
+def _wait_for_rerun(page) -> None:
+    # Streamlit shows a running indicator while a script rerun is in progress.
+    time.sleep(0.5)
+    page.wait_for_function(
+        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')"
+        " || !document.querySelector('[data-testid=\"stStatusWidget\"]').innerText.includes('Running')",
+        timeout=60_000,
+    )
+    time.sleep(0.5)
+
+
+def test_demo_loads_without_error(page) -> None:
+    _no_error_text(page)
+    assert page.get_by_text("log of drink_price").count() > 0
+    _shot(page, "demo")
+    assert page.problems == []
+
+
+def test_changing_a_transform_in_the_grid_changes_the_coefficients(page) -> None:
+    assert page.get_by_text("log of drink_price").count() > 0
+    grid = page.locator('[data-testid="stDataFrame"]').first
+    box = grid.bounding_box()
+    # Row 1 of the grid is drink_price (row height 35 px, header included); Transform is column 4.
+    page.mouse.click(box["x"] + 60, box["y"] + 35 + 35 + 17)
+    for _ in range(3):
+        page.keyboard.press("ArrowRight")
+    page.keyboard.press("Enter")
+    time.sleep(0.4)
+    page.keyboard.type("level")
+    page.keyboard.press("Enter")
+    _wait_for_rerun(page)
+    page.wait_for_function("() => !document.body.innerText.includes('log of drink_price')", timeout=60_000)
+    assert page.locator("td#glide-cell-3-1").inner_text().startswith("level")
+    _no_error_text(page)
+    _shot(page, "transform-changed")
+    assert page.problems == []
+
+
+def test_upload_through_the_file_chooser(page, tmp_path: Path) -> None:
+    data = tmp_path / "shop_sales.csv"
+    lines = ["units,price,shelf_days"] + [f"{50 + 3 * i % 17},{2 + (i % 7) * 0.25},{i % 11 + 1}" for i in range(60)]
+    data.write_text("\n".join(lines) + "\n")
+    page.locator('input[type="file"]').first.set_input_files(str(data))
+    page.get_by_text("shop_sales.csv").first.wait_for(timeout=60_000)
+    page.get_by_text(READY_TEXT).first.wait_for(timeout=60_000)
+    _no_error_text(page)
+    _shot(page, "uploaded")
+    assert page.problems == []
+
+
+def test_hostile_names_do_not_run_script(page, tmp_path: Path) -> None:
+    hostile = tmp_path / "hostile.csv"
+    long_name = "revenue_" + "x" * 300
+    header = [
+        long_name,
+        "<img src=x onerror=alert(1)>",
+        "<script>alert(2)</script>",
+        '=HYPERLINK("http://example.invalid","go")',
+        "größe_€",
+    ]
+    rows = [",".join(f'"{h}"' if "," in h or '"' in h else h for h in [h.replace('"', '""') for h in header])]
+    for i in range(40):
+        rows.append(f"{100 + 7 * i % 23},{1 + i % 5},{2 + i % 3},<b onmouseover=alert(3)>x{i % 2}</b>,{i % 9 + 0.5}")
+    hostile.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    page.locator('input[type="file"]').first.set_input_files(str(hostile))
+    page.get_by_text("hostile.csv").first.wait_for(timeout=60_000)
+    time.sleep(2)
+    _wait_for_rerun(page)
+    _no_error_text(page)
+    # Nothing the user named became markup: no injected image element, no dialog.
+    assert page.locator("img[src='x']").count() == 0
+    assert page.locator("b[onmouseover]").count() == 0
+    _shot(page, "hostile")
+    assert page.problems == []
