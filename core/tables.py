@@ -39,7 +39,7 @@ class Table:
     rows: list[list[Cell]]
 
 
-def _fmt(value: Cell, digits: int = 4) -> str:
+def format_cell(value: Cell, digits: int = 4) -> str:
     if value is None:
         return ""
     if isinstance(value, bool):
@@ -143,7 +143,9 @@ def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
         row: list[Cell] = [f"Effect of {column} {change}"]
         for n in names:
             found = next((e for e in results[n].get("effects", []) if e["column"] == column and e["change"] == change), None)
-            row.append(None if found is None else f"{_fmt(found['exact'])} {'%' if found['units'] == 'percent' else 'units'}")
+            row.append(
+                None if found is None else f"{format_cell(found['exact'])} {'%' if found['units'] == 'percent' else 'units'}"
+            )
         rows.append(row)
     return Table("Models compared", ["Measure", *names], rows)
 
@@ -176,7 +178,7 @@ def to_csv(table: Table) -> str:
 
 def to_markdown(table: Table) -> str:
     def clean(cell: Cell) -> str:
-        return _fmt(cell).replace("|", "\\|").replace("\n", " ")
+        return format_cell(cell).replace("|", "\\|").replace("\n", " ")
 
     lines = [f"**{table.title}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
     lines.append("|" + "|".join("---:" if _numeric_column(table, i) else "---" for i in range(len(table.header))) + "|")
@@ -200,7 +202,7 @@ def to_latex(table: Table) -> str:
         r"\midrule",
     ]
     for row in table.rows:
-        lines.append(" & ".join(latex_escape(_fmt(c)) for c in row) + r" \\")
+        lines.append(" & ".join(latex_escape(format_cell(c)) for c in row) + r" \\")
     lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}"]
     return "\n".join(lines) + "\n"
 
