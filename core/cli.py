@@ -1,4 +1,4 @@
-"""Command line: ``python -m core analyze DATA --spec SPEC.json`` and ``analyze --demo``.
+"""Command line: ``python -m core analyze DATA --spec SPEC.json``, ``analyze --demo`` and ``profile DATA``.
 
 Success exits 0. Bad input exits 2 with one ``error: ...`` line on stderr; never a traceback.
 """
@@ -14,7 +14,8 @@ from typing import Any
 from core.analysis import analyze
 from core.errors import FormwiseError
 from core.formats import to_json, to_markdown
-from core.reader import read_table
+from core.profile import profile_table
+from core.reader import read_table, read_table_with_notes
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 DEMO_DATA = DEMO_DIR / "kiosks.csv"
@@ -55,6 +56,9 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--sheet", help="sheet name, for .xlsx files")
     run.add_argument("--format", choices=sorted(FORMATS), default="json")
     run.add_argument("--out", help="write to this file instead of standard output")
+    look = commands.add_parser("profile", help="print each column's profile and suggested transform as JSON")
+    look.add_argument("data", help="data file: .csv, .tsv, .txt or .xlsx")
+    look.add_argument("--sheet", help="sheet name, for .xlsx files")
     return parser
 
 
@@ -72,6 +76,9 @@ def main(argv: list[str] | None = None) -> int:
                 data, spec = read_table(args.data, sheet=args.sheet), load_spec(args.spec)
             text = FORMATS[args.format](analyze(data, spec))
             _emit(text, args.out)
+        elif args.command == "profile":
+            frame, notes = read_table_with_notes(args.data, sheet=args.sheet)
+            _emit(to_json(profile_table(frame, notes)), None)
         return 0
     except FormwiseError as exc:
         print(f"error: {exc}", file=sys.stderr)

@@ -2,85 +2,775 @@
 
 Reading is separate from analysis so a file is read and converted once; the app keeps the
 frame and refits on it as the user edits the spec.
+
+Real spreadsheets arrive messy, so the reader detects the delimiter, the decimal mark and the
+text encoding, turns currency amounts, thousands separators, accounting negatives "(1,000)",
+percent strings and missing markers into numbers or missing values, and names every conversion
+it made in plain notes (``read_table_with_notes``). The file itself is only ever read.
+
+Clean numeric columns are parsed by pandas directly (fast); only columns that pandas leaves as
+text go through the cell-by-cell converter, and there each distinct value is parsed once.
 """
 
 from __future__ import annotations
 
+import codecs
 import csv
 import io
+import itertools
+import math
+import re
+import warnings
+from collections import Counter
+from dataclasses import dataclass, field
+from datetime import date, datetime, time
 from pathlib import Path
+from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from core.errors import DataError
 
 TEXT_SUFFIXES = {".csv", ".tsv", ".txt"}
 EXCEL_SUFFIXES = {".xlsx"}
-MISSING_MARKERS = ["", "NA", "N/A", "n/a", "na", "NaN", "nan", "#N/A", "null", "NULL", "None", "-", "."]
+# Kept for callers that used the old constant; matching below is case-insensitive.
+MISSING_MARKERS = ["", "NA", "N/A", "n/a", "na", "NaN", "nan", "#N/A", "null", "NULL", "None", "-", ".", "?", "missing"]
+# Product limit: beyond this a table is almost surely not a regression data set.
+MAX_COLUMNS = 500
+# Where frame.attrs keeps per-column facts for core.profile (currency removed, percent units, ...).
+ATTRS_KEY = "formwise_intake"
+
+_MISSING = {m.lower() for m in MISSING_MARKERS} | {"#na", "n.a.", "--", "none", "nil"}
+_SPREADSHEET_ERRORS = {"#div/0!", "#value!", "#ref!", "#name?", "#num!", "#null!", "#error!", "#getting_data"}
+_INFINITIES = {"inf": math.inf, "+inf": math.inf, "infinity": math.inf, "+infinity": math.inf, "∞": math.inf}
+_INFINITIES.update({"-inf": -math.inf, "-infinity": -math.inf, "−inf": -math.inf, "-∞": -math.inf})
+_DELIMITERS = (",", "\t", ";", "|")
+_DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
+_SNIFF_CHARS = 131_072
+_SNIFF_RECORDS = 300
+_OTHER_FORMATS = {
+    ".xls": "the old Excel format (.xls)",
+    ".xlsm": "a macro-enabled Excel workbook (.xlsm)",
+    ".ods": "an OpenDocument spreadsheet (.ods)",
+    ".numbers": "an Apple Numbers file",
+}
+# Leading bytes of binary formats people save or rename as .csv.
+_MAGIC = (
+    (b"PK\x03\x04", "a zip archive (an .xlsx workbook is one; if it is, rename it to .xlsx)"),
+    (b"\xd0\xcf\x11\xe0", "an old Excel .xls (or other Office) file; save it as .xlsx or CSV"),
+    (b"%PDF", "a PDF document; export the table from its source as CSV or XLSX"),
+    (b"\x89PNG", "a PNG image"),
+    (b"\xff\xd8\xff", "a JPEG image"),
+    (b"GIF8", "a GIF image"),
+)
+
+# Currency marks as prefix or suffix ("$1,234.50", "1 234,50 kr"); longest first so "US$" wins over "$".
+_CURRENCIES = sorted(
+    ["US$", "A$", "C$", "NZ$", "HK$", "R$", "$", "€", "£", "¥", "₹", "₩", "₽", "₺", "₪", "₱", "฿", "₫", "¢"]
+    + ["CHF", "USD", "EUR", "GBP", "JPY", "CNY", "SEK", "NOK", "DKK", "kr.", "kr", "Kr", "Kč", "zł", "Fr.", "Rs.", "Rs"],
+    key=len,
+    reverse=True,
+)
+_CURRENCY_ALT = "|".join(re.escape(c) for c in _CURRENCIES)
+_CURRENCY_PREFIX = re.compile(rf"^({_CURRENCY_ALT})\s*")
+_CURRENCY_SUFFIX = re.compile(rf"\s*({_CURRENCY_ALT})$")
+_SIGNS = {"-": -1.0, "−": -1.0, "+": 1.0}
+# A number's body under each decimal mark: digits, optional thousands groups (one separator
+# kind, used consistently), optional fraction and exponent. ASCII digits only on purpose.
+_NUMBER = {
+    ".": re.compile(
+        r"(?P<int>[0-9]{1,3}(?:(?P<sep>[,\u00a0\u202f '’])[0-9]{3})(?:(?P=sep)[0-9]{3})*|[0-9]+)?"
+        r"(?:\.(?P<frac>[0-9]*))?(?:[eE](?P<exp>[-+]?[0-9]{1,4}))?"
+    ),
+    ",": re.compile(
+        r"(?P<int>[0-9]{1,3}(?:(?P<sep>[.\u00a0\u202f '’])[0-9]{3})(?:(?P=sep)[0-9]{3})*|[0-9]+)?"
+        r"(?:,(?P<frac>[0-9]*))?(?:[eE](?P<exp>[-+]?[0-9]{1,4}))?"
+    ),
+}
+_MANTISSA = re.compile(r"[0-9][0-9.,\u00a0\u202f '’]*|[.,][0-9]+")
 
 
+@dataclass
+class _Cell:
+    """What one distinct cell value turned out to be."""
+
+    status: str  # "missing", "number", "text" or "date"
+    value: float = math.nan
+    text: str = ""
+    marker: str | None = None  # the missing marker or spreadsheet error as written
+    spreadsheet_error: bool = False
+    currency: str | None = None
+    thousands: bool = False
+    parens: bool = False
+    percent: bool = False
+    infinite: bool = False
+
+
+@dataclass
+class _Column:
+    """Facts about one converted column, kept for the profile (``frame.attrs``)."""
+
+    currency: list[str] = field(default_factory=list)
+    percent: bool = False
+    mixed_rows: list[int] = field(default_factory=list)
+
+
+# --- entry points -------------------------------------------------------------------------------
 def read_table(source: str | Path | bytes, name: str | None = None, sheet: str | None = None) -> pd.DataFrame:
     """Read a table from a path or from raw bytes (``name`` gives the file type for bytes)."""
+    return read_table_with_notes(source, name=name, sheet=sheet)[0]
+
+
+def read_table_with_notes(
+    source: str | Path | bytes, name: str | None = None, sheet: str | None = None
+) -> tuple[pd.DataFrame, list[str]]:
+    """Read a table and say, in plain notes, every conversion made on the way.
+
+    The notes are also kept, with per-column facts for ``core.profile``, in
+    ``frame.attrs["formwise_intake"]``. Bad input raises ``DataError`` saying what to do.
+    """
+    raw, name = _load(source, name)
+    suffix = Path(name).suffix.lower()
+    notes: list[str] = []
+    if suffix in EXCEL_SUFFIXES:
+        header, body, decimal = _excel_cells(raw, name, sheet, notes)
+    elif suffix in TEXT_SUFFIXES:
+        if sheet:
+            notes.append(f"sheet '{sheet}' was ignored: a text file holds a single table.")
+        header, body, decimal = _text_cells(raw, name, notes)
+    elif suffix in _OTHER_FORMATS:
+        raise DataError(f"'{name}' is {_OTHER_FORMATS[suffix]}, which Formwise does not read; save it as .xlsx or CSV.")
+    else:
+        raise DataError(f"'{name}' is not a supported file type; use .csv, .tsv, .txt or .xlsx.")
+    frame, facts = _tidy(header, body, name, decimal, notes)
+    frame.attrs[ATTRS_KEY] = {
+        "notes": list(notes),
+        "columns": {
+            col: {"currency": f.currency, "percent": f.percent, "mixed_rows": f.mixed_rows[:20]} for col, f in facts.items()
+        },
+    }
+    return frame, notes
+
+
+def _load(source: str | Path | bytes, name: str | None) -> tuple[bytes, str]:
     if isinstance(source, (str, Path)):
         path = Path(source)
         if not path.exists():
             raise DataError(f"file not found: '{path}'. Check the path and try again.")
         if path.is_dir():
             raise DataError(f"'{path}' is a folder, not a file; give the path of a .csv, .tsv, .txt or .xlsx file.")
-        raw = path.read_bytes()
-        name = name or path.name
-    else:
-        raw = bytes(source)
-        name = name or "upload.csv"
-    suffix = Path(name).suffix.lower()
-    if suffix in EXCEL_SUFFIXES:
-        return _read_excel(raw, name, sheet)
-    if suffix not in TEXT_SUFFIXES:
-        raise DataError(f"'{name}' is not a supported file type; use .csv, .tsv, .txt or .xlsx.")
-    return _read_text(raw, name)
-
-
-def _decode(raw: bytes, name: str) -> str:
-    if b"\x00" in raw[:4096]:
-        raise DataError(f"'{name}' looks like a binary file, not a text table; export it as CSV or XLSX.")
-    for encoding in ("utf-8-sig", "cp1252", "latin-1"):
         try:
-            return raw.decode(encoding)
-        except UnicodeDecodeError:
-            continue
-    raise DataError(f"'{name}' could not be decoded as text; save it as UTF-8 CSV.")
+            raw = path.read_bytes()  # read-only: the user's file is never opened for writing
+        except OSError as exc:
+            raise DataError(f"cannot read '{path}': {exc.strerror}. Check that the file is not locked or restricted.") from None
+        return raw, name or path.name
+    if isinstance(source, (bytes, bytearray, memoryview)):
+        return bytes(source), name or "upload.csv"
+    raise DataError("the data must be a file path or the bytes of a .csv, .tsv, .txt or .xlsx file.")
 
 
-def _read_text(raw: bytes, name: str) -> pd.DataFrame:
-    text = _decode(raw, name)
+# --- text files ---------------------------------------------------------------------------------
+def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.DataFrame, str]:
+    if not raw.strip():
+        raise DataError(f"'{name}' is empty; it needs a header row and data rows.")
+    text, encoding = _decode(raw, name)
+    _reject_non_tables(text, name)
     if not text.strip():
         raise DataError(f"'{name}' is empty; it needs a header row and data rows.")
-    sample = text[:20000]
+    delimiter, skip, header_fields, sample, hint = _sniff(text, name)
+    if len(header_fields) > MAX_COLUMNS:
+        raise _too_wide(name, len(header_fields))
+    decimal, ambiguous = _decimal_mark(itertools.chain.from_iterable(sample))
+    described = f"{_DELIMITER_NAMES.get(delimiter, repr(delimiter))}-separated text, {encoding}"
+    if decimal == ",":
+        described += ", decimal comma"
+    notes.append(f"read '{name}' as {described}.")
+    if hint:
+        notes.append(hint)
+    titles = sum(1 for line in text.splitlines()[:skip] if line.strip()) if not hint else 0
+    if titles:
+        notes.append(f"skipped {titles} line{'s' if titles > 1 else ''} above the header row (a title or note, not data).")
+    if ambiguous:
+        notes.append(ambiguous)
     try:
-        delimiter = csv.Sniffer().sniff(sample, delimiters=",;\t|").delimiter
-    except csv.Error:
-        delimiter = "\t" if name.lower().endswith(".tsv") else ","
+        with warnings.catch_warnings():
+            # A row longer than the header would lose cells silently; make that an error.
+            warnings.simplefilter("error", pd.errors.ParserWarning)
+            body = pd.read_csv(
+                io.StringIO(text),
+                sep=delimiter,
+                header=0,
+                skiprows=skip,
+                keep_default_na=False,
+                na_values=[""],
+                decimal=decimal,
+                low_memory=False,
+                index_col=False,
+                engine="c",
+            )
+    except pd.errors.EmptyDataError:
+        raise DataError(f"'{name}' has no header row or data; it needs a header row and data rows.") from None
+    except (pd.errors.ParserError, pd.errors.ParserWarning, ValueError, OverflowError, csv.Error) as exc:
+        raise _ragged(text, name, delimiter, skip, exc) from None
+    pandas_names = [str(c) for c in body.columns]
+    if len(header_fields) != len(pandas_names):
+        # The sniffed sample disagrees with pandas (e.g. a header spanning lines); trust pandas.
+        header_fields = ["" if re.fullmatch(r"Unnamed: \d+", c) else c for c in pandas_names]
+    body.columns = range(body.shape[1])
+    return header_fields, body, decimal
+
+
+def _decode(raw: bytes, name: str) -> tuple[str, str]:
+    """The text of the file and a plain name of its encoding."""
+    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        try:
+            return raw.decode("utf-16"), "UTF-16 encoding"
+        except UnicodeDecodeError:
+            raise DataError(f"'{name}' starts like UTF-16 text but does not decode; save it as UTF-8 CSV.") from None
+    for magic, what in _MAGIC:
+        if raw.startswith(magic):
+            raise DataError(f"'{name}' is not a text table: it looks like {what}.")
+    if b"\x00" in raw[:8192]:
+        raise DataError(f"'{name}' looks like a binary file, not a text table; export it as CSV or XLSX.")
+    if raw.startswith(codecs.BOM_UTF8):
+        try:
+            return raw[3:].decode("utf-8"), "UTF-8 encoding with byte-order mark"
+        except UnicodeDecodeError:
+            raw = raw[3:]
     try:
-        frame = pd.read_csv(io.StringIO(text), sep=delimiter, na_values=MISSING_MARKERS, keep_default_na=False)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as exc:
+        return raw.decode("utf-8"), "UTF-8 encoding"
+    except UnicodeDecodeError:
+        pass
+    try:
+        return raw.decode("cp1252"), "Windows-1252 encoding"
+    except UnicodeDecodeError:
+        return raw.decode("latin-1"), "Latin-1 encoding"
+
+
+def _reject_non_tables(text: str, name: str) -> None:
+    head = text[:8192].rstrip("\x1a")  # old DOS files end in Ctrl-Z
+    controls = sum(1 for ch in head if (ord(ch) < 32 and ch not in "\t\n\r\f\v") or 0x7F <= ord(ch) <= 0x9F)
+    # Random bytes are about 1 in 8 control characters; text has none, bar a stray few.
+    if controls > max(8, 0.01 * len(head)):
+        raise DataError(f"'{name}' looks like a binary file, not a text table; export it as CSV or XLSX.")
+    start = text.lstrip("\ufeff \t\r\n")[:2048].lower()
+    markup = start.startswith(("<!doctype", "<html", "<?xml", "<table", "<head", "<body", "<!--", "<div", "<meta"))
+    if markup or ("<html" in start and start.startswith("<")):
         raise DataError(
-            f"'{name}' could not be read as a table ({str(exc).splitlines()[0]}); check that it is a CSV file."
-        ) from None
-    if frame.empty:
-        raise DataError(f"'{name}' has a header row but no data rows; add data below the header.")
-    return frame
+            f"'{name}' holds a web page (HTML) or XML, not separated values. Open it in a spreadsheet or "
+            "browser and export the table as CSV or XLSX, or download the data file itself."
+        )
 
 
-def _read_excel(raw: bytes, name: str, sheet: str | None) -> pd.DataFrame:
+def _records(sample: str, delimiter: str) -> list[tuple[int, list[str]]]:
+    """Up to _SNIFF_RECORDS non-blank records of the sample, with the line each starts on."""
+    out: list[tuple[int, list[str]]] = []
+    reader = csv.reader(io.StringIO(sample), delimiter=delimiter, strict=False)
+    try:
+        start = 0
+        for row in reader:
+            if any(cell.strip() for cell in row):
+                out.append((start, row))
+                if len(out) >= _SNIFF_RECORDS:
+                    break
+            start = reader.line_num
+    except csv.Error:
+        pass  # a field too long or a stray NUL: judge on the records read so far
+    return out
+
+
+def _sniff(text: str, name: str) -> tuple[str, int, list[str], list[list[str]], str | None]:
+    """Delimiter, lines to skip above the header, header fields, sample data rows, hint note."""
+    sample = text[:_SNIFF_CHARS]
+    if len(text) > _SNIFF_CHARS and "\n" in sample:
+        sample = sample[: sample.rfind("\n") + 1]  # whole records only
+    first = sample.split("\n", 1)[0].strip().strip('"')
+    hinted = re.fullmatch(r"(?i)sep=(.)", first)
+    if hinted and hinted.group(1) not in "\"'\r\n":
+        # Excel's "sep=;" first line names the delimiter outright.
+        delimiter = hinted.group(1)
+        records = _records(sample, delimiter)[1:]
+        if not records:
+            raise DataError(f"'{name}' has no header row after its 'sep=' line; add a header row and data rows.")
+        return (
+            delimiter,
+            records[0][0],
+            records[0][1],
+            [r for _, r in records[1:]],
+            f"the first line '{first}' names the delimiter.",
+        )
+    preferred = "\t" if name.lower().endswith(".tsv") else ","
+    order = [preferred] + [d for d in _DELIMITERS if d != preferred]
+    best: tuple[tuple[bool, float, int], str, int, list[tuple[int, list[str]]]] | None = None
+    for rank, delimiter in enumerate(order):
+        records = _records(sample, delimiter)
+        if not records:
+            continue
+        counts = [len(r) for _, r in records]
+        data_counts = counts[1:] or counts
+        width = Counter(data_counts).most_common(1)[0][0]
+        if width < 2:
+            continue
+        head = _header_position(records, width)
+        if head is None:
+            continue
+        consistency = sum(c == width for c in counts[head:]) / len(counts[head:])
+        # A delimiter that needs no skipped title lines beats one that does, then consistency.
+        score = (head == 0, consistency, -rank)
+        if best is None or score > best[0]:
+            best = (score, delimiter, head, records)
+    if best is None:
+        # One column: pick a delimiter that never occurs, so nothing is split.
+        delimiter = next((d for d in order if d not in sample), preferred)
+        records = _records(sample, delimiter)
+        return delimiter, records[0][0] if records else 0, records[0][1] if records else [], [r for _, r in records[1:]], None
+    _, delimiter, head, records = best
+    return delimiter, records[head][0], records[head][1], [r for _, r in records[head + 1 :]], None
+
+
+def _header_position(records: list[tuple[int, list[str]]], width: int) -> int | None:
+    """Index of the header record: the first, or the first full-width one below a short title."""
+    counts = [len(r) for _, r in records]
+    if counts[0] == width:
+        return 0
+    if counts[0] == width - 1 and len(records) > 1 and all(r[-1].strip() == "" for _, r in records[1:] if len(r) == width):
+        return 0  # every data line ends with a trailing delimiter; pandas drops that empty field
+    for index in range(1, min(len(records), 11)):
+        if counts[index] == width:
+            title_lines = all(sum(bool(c.strip()) for c in r) <= 1 for _, r in records[:index])
+            header_is_text = sum(_looks_numeric(c) for c in records[index][1]) < width / 2
+            return index if title_lines and header_is_text else None
+    return None
+
+
+def _looks_numeric(cell: str) -> bool:
+    peeled = _peel(cell.strip())
+    return peeled is not None and bool(_MANTISSA.fullmatch(peeled[0]))
+
+
+def _too_wide(name: str, width: int) -> DataError:
+    return DataError(
+        f"'{name}' has {width:,} columns; Formwise reads at most {MAX_COLUMNS}. "
+        "Keep the columns you need (or transpose a table stored sideways) and load it again."
+    )
+
+
+def _ragged(text: str, name: str, delimiter: str, skip: int, exc: Exception) -> DataError:
+    """Name the first line that has more fields than the header, if there is one."""
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter, strict=False)
+    width = None
+    try:
+        for _ in range(skip):
+            next(reader, None)
+        line = reader.line_num + 1
+        for row in reader:
+            if row and any(c.strip() for c in row):
+                if width is None:
+                    width = len(row)
+                elif len(row) > width and any(c.strip() for c in row[width:]):
+                    shown = _DELIMITER_NAMES.get(delimiter, repr(delimiter))
+                    return DataError(
+                        f"'{name}': line {line} has {len(row)} fields but the header has {width} ({shown}-separated). "
+                        "Quote values that contain the delimiter, or remove the extra delimiters on that line."
+                    )
+            line = reader.line_num + 1
+    except csv.Error:
+        pass
+    first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return DataError(f"'{name}' could not be read as a table ({first}); check that it is a CSV file with one header row.")
+
+
+# --- Excel workbooks ----------------------------------------------------------------------------
+def _excel_cells(raw: bytes, name: str, sheet: str | None, notes: list[str]) -> tuple[list[str], pd.DataFrame, str]:
+    if not raw.startswith(b"PK\x03\x04"):
+        if not raw.strip():
+            raise DataError(f"'{name}' is empty; save the workbook again from your spreadsheet program.")
+        if raw.startswith(b"\xd0\xcf\x11\xe0"):
+            raise DataError(f"'{name}' is in the old Excel format (.xls) despite its name; save it as .xlsx or CSV.")
+        if b"\x00" not in raw[:4096]:
+            raise DataError(f"'{name}' is not an Excel workbook: it looks like a text file. Rename it to .csv and load it again.")
+        raise DataError(f"'{name}' is not a readable .xlsx workbook; open it in a spreadsheet and save it again.")
     try:
         book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
-    except Exception:  # openpyxl raises several unrelated types for a broken file
-        raise DataError(f"'{name}' is not a readable .xlsx workbook; open it in a spreadsheet and save it again.") from None
-    sheets = book.sheet_names
-    chosen = sheet if sheet is not None else sheets[0]
-    if chosen not in sheets:
-        raise DataError(f"'{name}' has no sheet '{sheet}'; its sheets are: {', '.join(sheets)}.")
-    frame = book.parse(chosen, na_values=MISSING_MARKERS, keep_default_na=False)
-    if frame.empty:
-        raise DataError(f"sheet '{chosen}' of '{name}' has no data rows.")
-    return frame
+        sheets = [str(s) for s in book.sheet_names]
+    except Exception:  # openpyxl raises many unrelated types for a broken workbook
+        raise DataError(
+            f"'{name}' is not a readable .xlsx workbook (it may be damaged); open it in a spreadsheet and save it again."
+        ) from None
+    if not sheets:
+        raise DataError(f"'{name}' has no sheets; save a workbook with the data on a sheet.")
+    if sheet is None:
+        chosen = sheets[0]
+    elif sheet in sheets:
+        chosen = sheet
+    else:
+        # Forgive case and surrounding spaces, which are invisible in most sheet tabs.
+        close = [s for s in sheets if s.strip().lower() == str(sheet).strip().lower()]
+        if not close:
+            raise DataError(f"'{name}' has no sheet '{sheet}'; its sheets are: {', '.join(sheets)}. Pick one of those.")
+        chosen = close[0]
+    try:
+        grid = pd.read_excel(book, sheet_name=chosen, header=None, dtype=object, keep_default_na=False, na_values=[""])
+    except Exception:
+        raise DataError(f"sheet '{chosen}' of '{name}' could not be read (the workbook may be damaged); save it again.") from None
+    listed = f" (sheets: {', '.join(sheets)})" if len(sheets) > 1 else ""
+    notes.append(f"read sheet '{chosen}' of '{name}'{listed}.")
+    grid = grid.dropna(how="all").reset_index(drop=True)
+    if grid.empty:
+        raise DataError(f"sheet '{chosen}' of '{name}' is empty; put a header row and data rows on it.")
+    filled = grid.notna().sum(axis=1).to_numpy()
+    head = 0
+    # A one-cell title above the real header (common in reports) is skipped, not read as a header.
+    if filled[0] <= 1 and len(filled) > 1 and filled.max() >= 2:
+        head = int(np.argmax(filled >= 2))
+        if head > 10:
+            head = 0
+        elif head:
+            notes.append(f"skipped {head} row{'s' if head > 1 else ''} above the header row (a title, not data).")
+    header = [_header_text(v) for v in grid.iloc[head].tolist()]
+    body = grid.iloc[head + 1 :].reset_index(drop=True)
+    body.columns = range(body.shape[1])
+    body = body.infer_objects()
+    strings = (v for col in body.columns if body[col].dtype == object for v in body[col].head(2000) if isinstance(v, str))
+    decimal, ambiguous = _decimal_mark(strings)
+    if ambiguous:
+        notes.append(ambiguous)
+    return header, body, decimal
+
+
+def _header_text(value: Any) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return ""
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))  # a year typed as a header cell comes back as 2019.0
+    if isinstance(value, (datetime, date)):
+        return value.isoformat()[:10] if isinstance(value, datetime) and value.time() == time() else value.isoformat()
+    return str(value)
+
+
+# --- tidying: names, empty rows, conversions ----------------------------------------------------
+def _tidy(
+    header: list[str], body: pd.DataFrame, name: str, decimal: str, notes: list[str]
+) -> tuple[pd.DataFrame, dict[str, _Column]]:
+    header = list(header) + [""] * (body.shape[1] - len(header))
+    blank = _blank_cells(body)
+    empty_cols = [j for j in range(body.shape[1]) if not str(header[j]).strip() and bool(blank[j].all())]
+    if empty_cols:
+        body = body.drop(columns=empty_cols)
+        blank = blank.drop(columns=empty_cols)
+        notes.append(
+            f"dropped {len(empty_cols)} empty column{'s' if len(empty_cols) > 1 else ''} with no name (trailing delimiters or blank cells)."
+        )
+        header = [h for j, h in enumerate(header) if j not in set(empty_cols)]
+    if body.shape[1] > MAX_COLUMNS:
+        raise _too_wide(name, body.shape[1])
+    empty_rows = blank.all(axis=1).to_numpy() if body.shape[1] else np.ones(len(body), dtype=bool)
+    if empty_rows.any() and not empty_rows.all():
+        body = body.loc[~empty_rows].reset_index(drop=True)
+        count = int(empty_rows.sum())
+        notes.append(f"dropped {count:,} empty row{'s' if count > 1 else ''}.")
+    elif empty_rows.all():
+        body = body.iloc[0:0]
+    if body.shape[1] == 0:
+        raise DataError(f"'{name}' has no columns; it needs a header row and data rows.")
+    if len(body) == 0:
+        raise DataError(f"'{name}' has a header row but no data rows; add data below the header.")
+    if len(body) == 1:
+        raise DataError(
+            f"'{name}' has only one data row; a regression needs at least a few rows (and more rows than variables). "
+            "Add more rows of data."
+        )
+    names = _unique_names(header, notes)
+    if all(_looks_numeric(n) for n in names):
+        shown = ", ".join(f"'{n}'" for n in names[:3])
+        notes.append(f"the header row holds only numbers ({shown}, ...); if the file has no header row, add one above the data.")
+    columns: dict[str, pd.Series] = {}
+    facts: dict[str, _Column] = {}
+    for j, column in zip(body.columns, names, strict=True):
+        series = body[j]
+        if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
+            values = series.to_numpy()
+            if values.dtype.kind == "f":
+                n_inf = int(np.isinf(values).sum())
+                if n_inf:
+                    notes.append(
+                        f"{column}: {n_inf:,} infinite value{'s' if n_inf > 1 else ''} kept as infinity; a model leaves those rows out."
+                    )
+            columns[column] = series
+            facts[column] = _Column()
+        elif pd.api.types.is_bool_dtype(series) or pd.api.types.is_datetime64_any_dtype(series):
+            columns[column] = series
+            facts[column] = _Column()
+        else:
+            columns[column], column_notes, facts[column] = _clean_column(series, column, decimal)
+            notes.extend(column_notes)
+    frame = pd.DataFrame(columns)
+    frame.columns = names
+    return frame, facts
+
+
+def _blank_cells(body: pd.DataFrame) -> pd.DataFrame:
+    """True where a cell is empty or only whitespace."""
+    out = {}
+    for j in body.columns:
+        col = body[j]
+        blank = col.isna().to_numpy()
+        if col.dtype == object or pd.api.types.is_string_dtype(col):
+            # Judge each distinct value once; NaN cells get code -1, the appended True.
+            codes, uniques = pd.factorize(col.to_numpy(dtype=object), use_na_sentinel=True)
+            empty = np.array([isinstance(u, str) and not u.strip() for u in uniques] + [True], dtype=bool)
+            blank = empty[codes]
+        out[j] = blank
+    return pd.DataFrame(out, index=body.index)
+
+
+def _unique_names(header: list[str], notes: list[str]) -> list[str]:
+    """Column names with no blanks and no repeats, each change noted."""
+    cleaned: list[str] = []
+    for position, raw in enumerate(header, start=1):
+        text = str(raw).replace("\ufeff", "")
+        flat = re.sub(r"[\r\n\t]+", " ", text).strip()
+        if flat != text.strip() and flat:
+            notes.append(f"column {position}: line breaks in its name were replaced by spaces ('{flat}').")
+        cleaned.append(flat)
+    taken = {n for n in cleaned if n}
+    names: list[str] = []
+    seen: set[str] = set()
+    for position, base in enumerate(cleaned, start=1):
+        if not base:
+            candidate = f"column_{position}"
+            suffix = 2
+            while candidate in taken or candidate in seen:
+                candidate, suffix = f"column_{position}_{suffix}", suffix + 1
+            notes.append(f"column {position} had no name; it is now '{candidate}'.")
+        elif base in seen:
+            suffix = 2
+            while f"{base}_{suffix}" in taken or f"{base}_{suffix}" in seen:
+                suffix += 1
+            candidate = f"{base}_{suffix}"
+            notes.append(f"column {position} repeats the name '{base}'; it is now '{candidate}'.")
+        else:
+            candidate = base
+        names.append(candidate)
+        seen.add(candidate)
+    return names
+
+
+# --- cell conversion ----------------------------------------------------------------------------
+def _peel(text: str) -> tuple[str, float, bool, str | None, bool] | None:
+    """Split "-($1,234.50)" style text into (number body, sign, parentheses, currency, percent)."""
+    sign, parens, currency, percent = 1.0, False, None, False
+    if len(text) >= 2 and text[0] == "(" and text[-1] == ")":
+        parens, text = True, text[1:-1].strip()
+    if text[:1] in _SIGNS:
+        sign, text = _SIGNS[text[0]], text[1:].lstrip()
+    match = _CURRENCY_PREFIX.match(text)
+    if match:
+        currency, text = match.group(1), text[match.end() :]
+        if text[:1] in _SIGNS and sign == 1.0:
+            sign, text = _SIGNS[text[0]], text[1:].lstrip()
+    if text.endswith("%"):
+        percent, text = True, text[:-1].rstrip()
+    match = _CURRENCY_SUFFIX.search(text)
+    if match and currency is None:
+        currency, text = match.group(1), text[: match.start()]
+        if not percent and text.endswith("%"):
+            percent, text = True, text[:-1].rstrip()
+    if not text:
+        return None
+    return text, sign, parens, currency, percent
+
+
+def _evidence(body: str) -> str | None:
+    """Which decimal mark one number body points to: '.', ',' or None when it cannot tell."""
+    mantissa = re.split(r"[eE]", body, maxsplit=1)[0]
+    if not _MANTISSA.fullmatch(mantissa):
+        return None
+    dots, commas = mantissa.count("."), mantissa.count(",")
+    if dots and commas:
+        last = "." if mantissa.rfind(".") > mantissa.rfind(",") else ","
+        return last if mantissa.count(last) == 1 else None
+    for mark, count in ((".", dots), (",", commas)):
+        if count > 1:
+            return "," if mark == "." else "."  # repeated: it groups thousands
+        if count == 1:
+            whole, fraction = mantissa.split(mark)
+            digits = re.sub(r"\D", "", whole)
+            # Thousands groups have exactly three digits and never follow a bare 0 or 4+ digits.
+            if len(fraction) != 3 or digits in ("", "0") or (len(digits) > 3 and whole.isdigit()):
+                return mark
+    return None
+
+
+def _decimal_mark(cells: Any) -> tuple[str, str | None]:
+    """The decimal mark the cells use ('.' unless decimal commas win), and a note if unclear."""
+    votes: Counter[str] = Counter()
+    ambiguous: str | None = None
+    for cell in itertools.islice(cells, 50_000):
+        peeled = _peel(cell.strip()) if isinstance(cell, str) else None
+        if peeled is None:
+            continue
+        mark = _evidence(peeled[0])
+        if mark:
+            votes[mark] += 1
+        elif ambiguous is None and re.fullmatch(r"[0-9]{1,3}[.,][0-9]{3}", peeled[0]):
+            ambiguous = peeled[0]
+    decimal = "," if votes[","] > votes["."] else "."
+    note = None
+    if ambiguous and not votes:
+        reading = "the decimal mark" if ambiguous[-4] == "." else "a thousands separator"
+        note = (
+            f"numbers such as '{ambiguous}' could use '{ambiguous[-4]}' for decimals or for thousands; "
+            f"read '{ambiguous[-4]}' as {reading}. Check a few values against the source."
+        )
+    return decimal, note
+
+
+def _parse_cell(value: Any, decimal: str) -> _Cell:
+    if value is None or value is pd.NA or value is pd.NaT:
+        return _Cell("missing", marker="")
+    if isinstance(value, (bool, np.bool_)):
+        return _Cell("number", value=float(value))
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        number = float(value)
+        if math.isnan(number):
+            return _Cell("missing", marker="")
+        return _Cell("number", value=number, infinite=math.isinf(number))
+    if isinstance(value, (datetime, date, time, pd.Timestamp)):
+        return _Cell("date", text=str(value))
+    text = str(value).strip()
+    low = text.lower()
+    if low in _MISSING:
+        return _Cell("missing", marker=text)
+    if low in _SPREADSHEET_ERRORS:
+        return _Cell("missing", marker=text, spreadsheet_error=True)
+    if low in _INFINITIES:
+        return _Cell("number", value=_INFINITIES[low], text=text, infinite=True)
+    peeled = _peel(text)
+    if peeled is not None:
+        body, sign, parens, currency, percent = peeled
+        match = _NUMBER[decimal].fullmatch(body)
+        if match and (match.group("int") or match.group("frac")) and not (match.group("sep") and match.group("exp")):
+            digits = (match.group("int") or "0").replace(match.group("sep") or "\x00", "")
+            literal = f"{digits}.{match.group('frac') or '0'}" + (f"e{match.group('exp')}" if match.group("exp") else "")
+            number = float(literal) * (-1.0 if parens else sign)
+            return _Cell(
+                "number",
+                value=number,
+                text=text,
+                currency=currency,
+                thousands=bool(match.group("sep")),
+                parens=parens,
+                percent=percent,
+                infinite=math.isinf(number),
+            )
+    return _Cell("text", text=text)
+
+
+def _clean_column(series: pd.Series, column: str, decimal: str) -> tuple[pd.Series, list[str], _Column]:
+    """Turn a text column into numbers when its cells are numbers in disguise; note each change."""
+    codes, uniques = pd.factorize(series.to_numpy(dtype=object), use_na_sentinel=True)
+    cells = [_parse_cell(u, decimal) for u in uniques]
+    counts = np.bincount(codes[codes >= 0], minlength=len(cells))
+    status = np.array([c.status for c in cells] + ["missing"], dtype=object)  # index -1: NaN cells
+    per_row = status[codes]
+    n_number = int((per_row == "number").sum())
+    n_text = int((per_row == "text").sum())
+    n_date = int((per_row == "date").sum())
+    notes: list[str] = []
+    facts = _Column()
+
+    def tally(test: Any) -> int:
+        return int(sum(int(counts[i]) for i, c in enumerate(cells) if test(c)))
+
+    def examples(test: Any, limit: int = 4) -> str:
+        shown = [c.marker if c.marker is not None else c.text for c in cells if test(c)][:limit]
+        return ", ".join(f"'{s}'" for s in shown)
+
+    markers = tally(lambda c: c.status == "missing" and c.marker and not c.spreadsheet_error)
+    if markers:
+        notes.append(
+            f"{column}: {markers:,} missing marker{'s' if markers > 1 else ''} ({examples(lambda c: c.status == 'missing' and c.marker and not c.spreadsheet_error)}) read as missing."
+        )
+    errors = tally(lambda c: c.spreadsheet_error)
+    if errors:
+        notes.append(
+            f"{column}: {errors:,} spreadsheet error value{'s' if errors > 1 else ''} ({examples(lambda c: c.spreadsheet_error)}) read as missing."
+        )
+
+    if n_number + n_text + n_date == 0:
+        notes.append(f"{column}: no values (every cell is blank or a missing marker).")
+        return pd.Series(np.full(len(series), np.nan)), notes, facts
+
+    if n_text == 0 and n_date == 0:
+        values = np.array([c.value for c in cells] + [np.nan])[codes]
+        symbols = sorted({c.currency for c in cells if c.currency}, key=str)
+        money = tally(lambda c: c.status == "number" and (c.currency or c.thousands))
+        if money:
+            parts = []
+            if symbols:
+                parts.append(f"currency symbol{'s' if len(symbols) > 1 else ''} " + ", ".join(f"'{s}'" for s in symbols))
+            if tally(lambda c: c.status == "number" and c.thousands):
+                parts.append("thousands separators")
+            notes.append(f"{column}: removed {' and '.join(parts)} in {money:,} cell{'s' if money > 1 else ''}.")
+        negative = tally(lambda c: c.parens)
+        if negative:
+            notes.append(
+                f"{column}: read {negative:,} amount{'s' if negative > 1 else ''} in parentheses "
+                f"(such as {examples(lambda c: c.parens, 1)}) as negative numbers (accounting style)."
+            )
+        percent = tally(lambda c: c.percent)
+        if percent:
+            note = f"{column}: removed '%' from {percent:,} cell{'s' if percent > 1 else ''}; the numbers are in percent units (12 % is read as 12)."
+            if percent < n_number:
+                note += f" {n_number - percent:,} other cells had no '%'; check that they use the same units."
+            notes.append(note)
+        infinite = tally(lambda c: c.infinite)
+        if infinite:
+            notes.append(
+                f"{column}: {infinite:,} infinite value{'s' if infinite > 1 else ''} ({examples(lambda c: c.infinite)}) kept as infinity; a model leaves those rows out."
+            )
+        facts.currency = symbols
+        facts.percent = percent * 2 >= n_number
+        finite = values[np.isfinite(values)]
+        if (
+            not np.isnan(values).any()
+            and len(finite) == len(values)
+            and np.all(finite == np.round(finite))
+            and np.all(np.abs(finite) < 2**53)
+        ):
+            return pd.Series(values.astype(np.int64)), notes, facts
+        return pd.Series(values), notes, facts
+
+    if n_date and n_number == 0 and n_text == 0:
+        return pd.to_datetime(series, errors="coerce"), notes, facts
+
+    # Some cells are text: the column stays text, with the converter's reading of each cell.
+    shown = np.array([_as_text(u, c) for u, c in zip(uniques, cells, strict=True)] + [None], dtype=object)
+    out = shown[codes]
+    trimmed = sum(
+        int(counts[i]) for i, u in enumerate(uniques) if isinstance(u, str) and cells[i].status != "missing" and u != u.strip()
+    )
+    if trimmed:
+        notes.append(f"{column}: removed spaces around the text in {trimmed:,} cell{'s' if trimmed > 1 else ''}.")
+    if n_number >= n_text:
+        rows = np.flatnonzero(per_row == "text")
+        facts.mixed_rows = [int(r) + 1 for r in rows[:20]]
+        listed = ", ".join(str(r + 1) for r in rows[:8]) + (f" and {len(rows) - 8:,} more" if len(rows) > 8 else "")
+        notes.append(
+            f"column '{column}' is mostly numbers but row{'s' if len(rows) > 1 else ''} {listed} "
+            f"hold{'s' if len(rows) == 1 else ''} text ({examples(lambda c: c.status == 'text')}); it stays text. "
+            "Fix or blank those cells to use it as a number."
+        )
+    return pd.Series(out, dtype=object).infer_objects(), notes, facts
+
+
+def _as_text(raw: Any, cell: _Cell) -> str | None:
+    if cell.status == "missing":
+        return None
+    if isinstance(raw, str):
+        return raw.strip()
+    if isinstance(raw, float) and raw.is_integer():
+        return str(int(raw))
+    return str(raw)
