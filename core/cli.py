@@ -1,4 +1,4 @@
-"""Command line: ``python -m core analyze DATA --spec SPEC.json``, ``analyze --demo`` and ``profile DATA``.
+"""Command line: ``analyze DATA --spec SPEC.json`` (or ``--demo``), ``report`` and ``profile DATA``.
 
 Success exits 0. Bad input exits 2 with one ``error: ...`` line on stderr; never a traceback.
 """
@@ -6,21 +6,21 @@ Success exits 0. Bad input exits 2 with one ``error: ...`` line on stderr; never
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 from pathlib import Path
 from typing import Any
 
 from core.analysis import analyze
 from core.errors import FormwiseError
-from core.formats import to_json, to_markdown
+from core.formats import FORMATS, to_json
 from core.profile import profile_table
 from core.reader import read_table, read_table_with_notes
+from core.report import build_report
+from core.specfile import read_spec_file
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 DEMO_DATA = DEMO_DIR / "kiosks.csv"
 DEMO_SPEC = DEMO_DIR / "default_spec.json"
-FORMATS = {"json": to_json, "markdown": to_markdown}
 
 
 class _Parser(argparse.ArgumentParser):
@@ -31,19 +31,20 @@ class _Parser(argparse.ArgumentParser):
 
 
 def load_spec(path: str | Path) -> dict[str, Any]:
-    """Read a spec file as JSON data only (no code is ever evaluated)."""
-    path = Path(path)
-    if not path.is_file():
-        raise FormwiseError(f"spec file not found: '{path}'. Check the path.")
-    try:
-        spec = json.loads(path.read_text(encoding="utf-8-sig"))
-    except UnicodeDecodeError:
-        raise FormwiseError(f"spec file '{path}' is not UTF-8 text; save it as UTF-8 JSON.") from None
-    except json.JSONDecodeError as exc:
-        raise FormwiseError(f"spec file '{path}' is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}).") from None
-    if not isinstance(spec, dict):
-        raise FormwiseError(f"spec file '{path}' must hold one JSON object with 'outcome' and 'regressors'.")
-    return spec
+    """Read the current spec of a spec file as JSON data only (no code is ever evaluated)."""
+    return read_spec_file(path)[0]
+
+
+def _data_and_spec(args: argparse.Namespace) -> tuple[Any, dict[str, Any], dict[str, dict[str, Any]], str]:
+    if args.demo:
+        if args.data or args.spec:
+            raise FormwiseError("--demo uses the built-in data and spec; leave out DATA and --spec.")
+        spec, saved = read_spec_file(DEMO_SPEC)
+        return read_table(DEMO_DATA), spec, saved, DEMO_DATA.name
+    if not args.data or not args.spec:
+        raise FormwiseError(f"{args.command} needs a data file and --spec SPEC.json (or --demo).")
+    spec, saved = read_spec_file(args.spec)
+    return read_table(args.data, sheet=args.sheet), spec, saved, Path(args.data).name
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -56,6 +57,12 @@ def _parser() -> argparse.ArgumentParser:
     run.add_argument("--sheet", help="sheet name, for .xlsx files")
     run.add_argument("--format", choices=sorted(FORMATS), default="json")
     run.add_argument("--out", help="write to this file instead of standard output")
+    paper = commands.add_parser("report", help="write a self-contained HTML report")
+    paper.add_argument("data", nargs="?", help="data file: .csv, .tsv, .txt or .xlsx")
+    paper.add_argument("--spec", help="model spec file (JSON); saved models in it are compared")
+    paper.add_argument("--demo", action="store_true", help="use the built-in demo data and its default spec")
+    paper.add_argument("--sheet", help="sheet name, for .xlsx files")
+    paper.add_argument("--out", required=True, help="the HTML file to write")
     look = commands.add_parser("profile", help="print each column's profile and suggested transform as JSON")
     look.add_argument("data", help="data file: .csv, .tsv, .txt or .xlsx")
     look.add_argument("--sheet", help="sheet name, for .xlsx files")
@@ -66,16 +73,11 @@ def main(argv: list[str] | None = None) -> int:
     try:
         args = _parser().parse_args(argv)
         if args.command == "analyze":
-            if args.demo:
-                if args.data or args.spec:
-                    raise FormwiseError("--demo uses the built-in data and spec; leave out DATA and --spec.")
-                data, spec = read_table(DEMO_DATA), load_spec(DEMO_SPEC)
-            else:
-                if not args.data or not args.spec:
-                    raise FormwiseError("analyze needs a data file and --spec SPEC.json (or --demo).")
-                data, spec = read_table(args.data, sheet=args.sheet), load_spec(args.spec)
-            text = FORMATS[args.format](analyze(data, spec))
-            _emit(text, args.out)
+            data, spec, _, _ = _data_and_spec(args)
+            _emit(FORMATS[args.format](analyze(data, spec)), args.out)
+        elif args.command == "report":
+            data, spec, saved, name = _data_and_spec(args)
+            _emit(build_report(data, spec, name, saved or None), args.out)
         elif args.command == "profile":
             frame, notes = read_table_with_notes(args.data, sheet=args.sheet)
             _emit(to_json(profile_table(frame, notes)), None)

@@ -99,3 +99,34 @@ def test_invalid_json_spec_names_the_line(tmp_path: Path) -> None:
     spec.write_text('{"outcome": {"column": "weekly_revenue",\n "transform": }}')
     done = run("analyze", "demo_data/kiosks.csv", "--spec", str(spec))
     assert done.returncode == 2 and "line 2" in done.stderr
+
+
+@pytest.mark.parametrize(("fmt", "needle"), [("csv", "Term,Estimate"), ("latex", r"\toprule"), ("markdown", "| Term |")])
+def test_table_formats(fmt: str, needle: str) -> None:
+    done = run("analyze", "--demo", "--format", fmt)
+    assert done.returncode == 0, done.stderr
+    assert needle in done.stdout
+
+
+def test_report_command_writes_a_self_contained_file(tmp_path: Path) -> None:
+    out = tmp_path / "report.html"
+    done = run("report", "--demo", "--out", str(out))
+    assert done.returncode == 0, done.stderr
+    html = out.read_text()
+    assert html.startswith("<!DOCTYPE html>") and "<svg" in html and "<script" not in html
+
+
+def test_spec_document_with_saved_models_round_trips(tmp_path: Path) -> None:
+    from core.specfile import parse_spec_document, spec_document
+
+    spec = json.loads((ROOT / "demo_data" / "default_spec.json").read_text())
+    level = json.loads(json.dumps(spec))
+    level["outcome"]["transform"] = "level"
+    text = spec_document(spec, {"log revenue": spec, "level revenue": level})
+    assert parse_spec_document(text) == (spec, {"log revenue": spec, "level revenue": level})
+    path = tmp_path / "workspace.json"
+    path.write_text(text)
+    done = run("analyze", "demo_data/kiosks.csv", "--spec", str(path))
+    assert done.returncode == 0, done.stderr
+    direct = json.loads(run("analyze", "--demo").stdout)
+    assert [t["estimate"] for t in json.loads(done.stdout)["terms"]] == [t["estimate"] for t in direct["terms"]]
