@@ -1,0 +1,280 @@
+"""Refit speed at 1,000,000 rows x 10 regressors with HC1 (SPEC §8), measured side by side.
+
+    .venv/bin/python bench/refit.py                 # 1,000,000 rows, 5 timed repetitions each
+    .venv/bin/python bench/refit.py --rows 200000 --repeats 5 --no-profile
+
+Times (median of --repeats calls, interleaved round-robin after one untimed warm-up call of each,
+all in this one process, on the same DataFrame; wall and CPU time):
+
+  (a)  core.analyze(data, spec, parts={"terms", "fit", "effects"})    the app's quick refit
+  (a1) core.analyze(..., parts={"terms"})                           design, fit, HC1, coefficient table
+  (a2) core.analyze(..., parts={"fit"})                            the same plus original-scale fit
+                                                                   measures, without the table
+  (a3) core.analyze(..., parts={"terms", "fit"})                   the refit without effects
+  (a4) (a), but each call alternates 'price' between log and level  a transform toggle as the app
+                                                                   sends it (a spec not just seen)
+  (b)  statsmodels.formula.api.ols(formula, data).fit(cov_type="HC1")  formula with np.log,
+                                                                       np.arcsinh and C()
+  (c)  a bare numpy floor, INCLUDING: pulling the columns out of the DataFrame, log / arcsinh of
+       the regressors and the outcome, dummies from the category column (pandas.factorize),
+       assembling X (n x 13), X'X, X'y, Cholesky solve, residuals, (X'X)^-1 and the HC1 sandwich.
+       EXCLUDING what core adds on top: spec parsing, missing/domain screening and the dropped-row
+       report, centring/scaling and the refinement step, the collinearity check, fit measures,
+       p-values and intervals, effects, JSON conversion.
+
+Ratios printed: (b)/(a) against the target >= 10, (a)/(c) against the target <= 2, and the same
+for (a1)-(a4); wall-time ratios are the headline, CPU-time ratios are printed beside them because
+other work on a shared machine inflates wall times. Agreement: maximum relative difference of
+coefficients and HC1 standard errors, core (and the floor) against statsmodels. Then one cProfile run of (a) with the top hotspots.
+
+No timed assertions: this prints what it measures.
+"""
+
+from __future__ import annotations
+
+import argparse
+import cProfile
+import io
+import pstats
+import time
+
+import numpy as np
+import pandas as pd
+import scipy.linalg as sla
+from _common import (
+    CATEGORY_COLUMN,
+    CATEGORY_LEVELS,
+    IHS_COLUMN,
+    LEVEL_COLUMNS,
+    LOG_COLUMNS,
+    OUTCOME,
+    ROOT,
+    load_line,
+    machine_line,
+    make_data,
+    make_formula,
+    make_spec,
+    round_robin,
+    statsmodels_name,
+)
+
+import core  # noqa: E402  (path set up by _common)
+
+REFIT_PARTS = {"terms", "fit", "effects"}
+REFERENCE_LEVEL = "Coast"
+
+
+def numpy_floor(data: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, list[str]]:
+    """Least squares with HC1 by hand: transforms, X, normal equations, sandwich. See module doc."""
+    n = len(data)
+    codes, uniques = pd.factorize(data[CATEGORY_COLUMN])
+    levels = [lv for lv in CATEGORY_LEVELS if lv != REFERENCE_LEVEL]
+    k = 1 + len(LOG_COLUMNS) + 1 + len(LEVEL_COLUMNS) + len(levels)
+    X = np.empty((n, k))
+    X[:, 0] = 1.0
+    j = 1
+    for c in LOG_COLUMNS:
+        np.log(data[c].to_numpy(dtype=float), out=X[:, j])
+        j += 1
+    np.arcsinh(data[IHS_COLUMN].to_numpy(dtype=float), out=X[:, j])
+    j += 1
+    for c in LEVEL_COLUMNS:
+        X[:, j] = data[c].to_numpy(dtype=float)
+        j += 1
+    positions = {str(u): i for i, u in enumerate(uniques)}
+    for lv in levels:
+        X[:, j] = codes == positions[lv]
+        j += 1
+    y = np.log(data[OUTCOME].to_numpy(dtype=float))
+
+    xtx = X.T @ X
+    factor = sla.cho_factor(xtx, lower=False, check_finite=False)
+    coef = sla.cho_solve(factor, X.T @ y, check_finite=False)
+    u = y - X @ coef
+    bread = sla.cho_solve(factor, np.eye(k), check_finite=False)
+    scores = X * u[:, None]
+    cov = n / (n - k) * (bread @ (scores.T @ scores) @ bread)
+    names = (
+        ["Intercept"]
+        + [f"np.log({c})" for c in LOG_COLUMNS]
+        + [f"np.arcsinh({IHS_COLUMN})"]
+        + LEVEL_COLUMNS
+        + [f"C({CATEGORY_COLUMN}, Treatment(reference='{REFERENCE_LEVEL}'))[T.{lv}]" for lv in levels]
+    )
+    return coef, np.sqrt(np.diag(cov)), names
+
+
+def statsmodels_fit(data: pd.DataFrame, formula: str):
+    import statsmodels.formula.api as smf
+
+    result = smf.ols(formula, data).fit(cov_type="HC1")
+    _ = result.bse  # make sure the standard errors are computed inside the timing
+    return result
+
+
+def max_rel_diff(ours: dict[str, float], theirs: pd.Series) -> float:
+    return max(abs(ours[name] - theirs[name]) / max(abs(theirs[name]), 1e-300) for name in ours)
+
+
+def verdict(value: float, target: float, higher_is_better: bool) -> str:
+    ok = value >= target if higher_is_better else value <= target
+    return "meets target" if ok else "MISSES target"
+
+
+def profile_core(data: pd.DataFrame, spec: dict, top: int) -> str:
+    profiler = cProfile.Profile()
+    profiler.enable()
+    core.analyze(data, spec, parts=REFIT_PARTS)
+    profiler.disable()
+    out = io.StringIO()
+    stats = pstats.Stats(profiler, stream=out)
+    total = stats.total_tt
+    out.write(f"cProfile of one core.analyze(parts={sorted(REFIT_PARTS)}) call: {total:.3f} s under the profiler\n")
+
+    out.write("\n-- stages (cumulative time under the profiler; nested stages overlap) --\n")
+    wanted = [
+        ("core/analysis.py", "analyze"),
+        ("core/spec.py", "parse_spec"),
+        ("core/analysis.py", "fit_model"),
+        ("core/design.py", "build_design"),
+        ("core/design.py", "encode"),
+        ("core/design.py", "reference_point"),
+        ("core/ols.py", "fit_ols"),
+        ("core/covariance.py", "covariance"),
+        ("core/retransform.py", "fit_on_original_scale"),
+        ("core/analysis.py", "_terms"),
+        ("core/effects.py", "compute_effects"),
+        ("core/effects.py", "_average_effect"),
+        ("core/effects.py", "effect_arrays"),
+        ("core/analysis.py", "json_safe"),
+    ]
+    found: dict[tuple[str, str], tuple[int, float, float]] = {}
+    for (filename, _line, func), (_cc, nc, tt, ct, _callers) in stats.stats.items():
+        for path, name in wanted:
+            if func == name and filename.replace("\\", "/").endswith(path):
+                prev = found.get((path, name))
+                if prev is None or ct > prev[2]:
+                    found[(path, name)] = (nc, tt, ct)
+    whole = found.get(("core/analysis.py", "analyze"), (1, 0.0, total))[2] or total
+    out.write(f"{'stage':<45}{'calls':>7}{'cum s':>9}{'share':>8}\n")
+    for path, name in wanted:
+        if (path, name) in found:
+            nc, _tt, ct = found[(path, name)]
+            out.write(f"{path + ':' + name:<45}{nc:>7}{ct:>9.3f}{100 * ct / whole:>7.1f}%\n")
+
+    root = str(ROOT) + "/"
+    for key, label in (("tottime", "own time"), ("cumulative", "cumulative time")):
+        buf = io.StringIO()
+        pstats.Stats(profiler, stream=buf).sort_stats(key).print_stats(top)
+        lines = [ln.replace(root, "") for ln in buf.getvalue().splitlines()]
+        start = next((i for i, ln in enumerate(lines) if ln.strip().startswith("ncalls")), 0)
+        out.write(f"\n-- top {top} by {label} --\n")
+        out.write("\n".join(ln[:150] for ln in lines[start:] if ln.strip()) + "\n")
+    return out.getvalue()
+
+
+def toggled(spec: dict, column: str, transform: str) -> dict:
+    out = dict(spec, regressors=[dict(r) for r in spec["regressors"]])
+    for r in out["regressors"]:
+        if r["column"] == column:
+            r["transform"] = transform
+            r.pop("change", None)
+    return out
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--rows", type=int, default=1_000_000)
+    parser.add_argument("--repeats", type=int, default=5, help="timed repetitions per measurement (median reported)")
+    parser.add_argument("--no-profile", action="store_true", help="skip the cProfile run")
+    parser.add_argument("--top", type=int, default=15, help="rows in each profile table")
+    args = parser.parse_args()
+    started = time.perf_counter()
+
+    print("Formwise refit benchmark (SPEC §8: refit >= 10x faster than statsmodels at 1,000,000 x 10, HC1)")
+    print(machine_line())
+    print(f"at start: {load_line()}")
+    t0 = time.perf_counter()
+    data = make_data(args.rows)
+    spec = make_spec("HC1")
+    formula = make_formula()
+    print(
+        f"data: {len(data):,} rows; 10 regressors (4 log, 1 ihs with {int((data[IHS_COLUMN] == 0).sum()):,} zeros, "
+        f"4 level, 1 category with 4 levels) -> 13 coefficients; log outcome; HC1 "
+        f"(made in {time.perf_counter() - t0:.1f} s)"
+    )
+    print(f"formula (b): {formula}")
+    print(
+        f"timing: {args.repeats} timed calls of each, interleaved round-robin after 1 warm-up call of each; "
+        "median wall time (perf_counter) and median CPU time of this process (process_time, all threads)\n"
+    )
+
+    # (a4): what a transform toggle in the app costs: every call is a spec core has not just seen.
+    flip = {"state": False}
+    spec_level = toggled(spec, LOG_COLUMNS[0], "level")
+
+    def toggle_refit():
+        flip["state"] = not flip["state"]
+        return core.analyze(data, spec_level if flip["state"] else spec, parts=REFIT_PARTS)
+
+    jobs = {
+        "a": ("(a)  core.analyze parts={terms,fit,effects}", lambda: core.analyze(data, spec, parts=REFIT_PARTS)),
+        "a1": ("(a1) core.analyze parts={terms}", lambda: core.analyze(data, spec, parts={"terms"})),
+        "a2": ("(a2) core.analyze parts={fit}", lambda: core.analyze(data, spec, parts={"fit"})),
+        "a3": ("(a3) core.analyze parts={terms,fit}", lambda: core.analyze(data, spec, parts={"terms", "fit"})),
+        "a4": (f"(a4) refit, toggling {LOG_COLUMNS[0]} log<->level", toggle_refit),
+        "b": ("(b)  statsmodels ols(...).fit(HC1)", lambda: statsmodels_fit(data, formula)),
+        "c": ("(c)  numpy floor (transforms+X+solve+HC1)", lambda: numpy_floor(data)),
+    }
+    t = round_robin(jobs, args.repeats)
+
+    print(f"{'what':<46}{'wall median':>12}{'wall min':>10}{'cpu median':>12}   all wall runs (s)")
+    for timing in t.values():
+        runs = ", ".join(f"{r:.3f}" for r in timing.wall)
+        print(f"{timing.label:<46}{timing.median:>10.3f} s{min(timing.wall):>8.3f} s{timing.cpu_median:>10.3f} s   {runs}")
+
+    print("\nratios (same process, same data, interleaved runs; wall medians, CPU medians beside)")
+    ratio_rows = [
+        ("(b)/(a)   statsmodels / core refit", "b", "a", 10.0, True),
+        ("(a)/(c)   core refit / numpy floor", "a", "c", 2.0, False),
+        ("(b)/(a1)  statsmodels / core terms only", "b", "a1", 10.0, True),
+        ("(a1)/(c)  core terms only / numpy floor", "a1", "c", 2.0, False),
+        ("(b)/(a2)  statsmodels / core fit only", "b", "a2", 10.0, True),
+        ("(a2)/(c)  core fit only / numpy floor", "a2", "c", 2.0, False),
+        ("(b)/(a3)  statsmodels / core terms+fit", "b", "a3", 10.0, True),
+        ("(b)/(a4)  statsmodels / core toggled refit", "b", "a4", 10.0, True),
+        ("(b)/(c)   statsmodels / numpy floor", "b", "c", None, True),
+    ]
+    for label, num, den, target, higher in ratio_rows:
+        value = t[num].median / t[den].median
+        cpu_value = t[num].cpu_median / t[den].cpu_median
+        goal = "" if target is None else f"   target {'>=' if higher else '<='} {target:g}: {verdict(value, target, higher)}"
+        print(f"{label:<44}{value:8.2f}x   (cpu {cpu_value:6.2f}x){goal}")
+    ceiling = t["b"].median / t["c"].median
+    print(
+        f"note: with statsmodels at {ceiling:.1f}x the floor, the 10x target needs core within {ceiling / 10:.2f}x of the floor"
+    )
+
+    print("\nagreement with statsmodels (max relative difference over the 13 coefficients)")
+    result_a = t["a"].result
+    sm = t["b"].result
+    core_est = {statsmodels_name(term): term["estimate"] for term in result_a["terms"]}
+    core_se = {statsmodels_name(term): term["std_error"] for term in result_a["terms"]}
+    floor_coef, floor_se, floor_names = t["c"].result
+    print(f"  core  estimates       {max_rel_diff(core_est, sm.params):.2e}")
+    print(f"  core  HC1 std errors  {max_rel_diff(core_se, sm.bse):.2e}")
+    print(f"  floor estimates       {max_rel_diff(dict(zip(floor_names, floor_coef, strict=True)), sm.params):.2e}")
+    print(f"  floor HC1 std errors  {max_rel_diff(dict(zip(floor_names, floor_se, strict=True)), sm.bse):.2e}")
+    same_terms = [x["estimate"] for x in t["a1"].result["terms"]] == [x["estimate"] for x in result_a["terms"]]
+    print(f"  core parts={{terms}} gives the same estimates as the refit: {same_terms}")
+    print(f"  core n_obs {result_a['n_obs']:,}, n_dropped {result_a['n_dropped']}, warnings: {result_a['warnings'] or 'none'}")
+    print(f"at end of timing: {load_line()}")
+
+    if not args.no_profile:
+        print()
+        print(profile_core(data, spec, args.top))
+    print(f"total benchmark time {time.perf_counter() - started:.0f} s")
+
+
+if __name__ == "__main__":
+    main()
