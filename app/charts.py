@@ -12,6 +12,7 @@ from typing import Any
 
 import numpy as np
 import plotly.graph_objects as go
+from plotly.subplots import make_subplots
 
 BLUE = "#0072B2"
 ORANGE = "#E69F00"
@@ -22,6 +23,12 @@ GREEN = "#009E73"
 INK = "#1F2933"
 GRID = "#E4E7EB"
 FONT = "Source Sans Pro, Segoe UI, Helvetica, Arial, sans-serif"
+
+
+def plain(text: Any) -> str:
+    """User text (column names, category levels) as literal text in a figure: Plotly reads a
+    few HTML tags in titles, labels and legends, so '<', '>' and '&' are escaped."""
+    return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def _arrays(curve: dict[str, Any]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -139,6 +146,14 @@ def curve_summary(curve: dict[str, Any], tolerance_pct: float) -> str:
     return f"{first} {second}"
 
 
+def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool) -> str:
+    """'Effect as % change in weekly_revenue (model of log of weekly_revenue), other regressors
+    held at their reference values': the effect is on the outcome itself, whatever its transform."""
+    what = f"% change in {outcome_column}" if percent_effect else f"change in {outcome_column} (its own units)"
+    model = f" (model of {outcome_label})" if outcome_label != outcome_column else ""
+    return f"Effect as {what}{model}, other regressors held at their reference values"
+
+
 def gap_figure(
     curve: dict[str, Any],
     tolerance_pct: float,
@@ -148,9 +163,11 @@ def gap_figure(
 ) -> go.Figure:
     """Approximate and exact effect across change sizes, the gap shaded between them, the
     user's change marked, and shaded bands where the approximation misses by more than the
-    tolerance."""
+    tolerance. Effects are on the outcome itself (a % change or a change in its units), so the
+    subtitle names the outcome, and the model's transform of it only as the model."""
     sizes, approx, exact = _arrays(curve)
-    column = curve["column"]
+    column = plain(curve["column"])
+    regressor_label, outcome_label, outcome_column = plain(regressor_label), plain(outcome_label), plain(outcome_column)
     percent_change = curve["kind"] == "percent"
     percent_effect = curve["units"] == "percent"
     chosen = float(curve["chosen"])
@@ -259,7 +276,7 @@ def gap_figure(
         title={
             "text": f"How far the shortcut drifts: changing {regressor_label}",
             "subtitle": {
-                "text": f"Effect on {outcome_label}, other regressors held at their reference values",
+                "text": effect_subtitle(outcome_column, outcome_label, percent_effect),
                 "font": {"size": 15, "color": "#52606D"},
             },
             "x": 0.01,
@@ -280,3 +297,637 @@ def gap_figure(
         hovermode="closest",
     )
     return fig
+
+
+# --- shared look of the views' charts ------------------------------------------------------------------
+GREY = "#7B8794"
+SHADE = "#9AA5B1"
+SUBTLE = "#52606D"
+CONFIG = {"displaylogo": False}
+
+
+def _floats(values: list[Any] | None) -> np.ndarray:
+    return np.array([np.nan if v is None else float(v) for v in values or []], dtype=float)
+
+
+def _style(
+    fig: go.Figure,
+    title: str,
+    subtitle: str,
+    x_title: str,
+    y_title: str,
+    height: int = 520,
+    legend: bool = True,
+    title_size: int = 21,
+) -> go.Figure:
+    """The look every chart shares: white, large type, a plain-word title with a subtitle, and
+    the legend under the plot, where long plain-word entries have room."""
+    top = 100 if title_size >= 20 else 92
+    bottom = 130 if legend else 70
+    # The legend sits a fixed distance under the plot, clear of the x-axis title, whatever the height.
+    plot_height = max(height - top - bottom, 100)
+    fig.update_layout(
+        template="plotly_white",
+        paper_bgcolor="white",
+        plot_bgcolor="white",
+        font={"family": FONT, "size": 16, "color": INK},
+        title={
+            "text": title,
+            "subtitle": {"text": subtitle, "font": {"size": 15, "color": SUBTLE}},
+            "x": 0.01,
+            "xanchor": "left",
+            "font": {"size": title_size},
+        },
+        xaxis={"title": {"text": x_title}, "gridcolor": GRID, "zeroline": False},
+        yaxis={"title": {"text": y_title}, "gridcolor": GRID, "zeroline": False},
+        showlegend=legend,
+        legend={
+            "orientation": "h",
+            "yanchor": "top",
+            "y": -78 / plot_height,
+            "x": 0.0,
+            "font": {"size": 15},
+            "traceorder": "normal",
+            "entrywidth": 0,
+        },
+        margin={"l": 80, "r": 30, "t": top, "b": bottom},
+        height=height,
+        hovermode="closest",
+    )
+    return fig
+
+
+def _legend_dot(fig: go.Figure, name: str, colour: str, size: int = 8) -> None:
+    """A legend entry for faint dots, drawn at full strength so it can be seen."""
+    fig.add_trace(
+        go.Scatter(x=[None], y=[None], mode="markers", name=name, marker={"color": colour, "size": size}, hoverinfo="skip")
+    )
+
+
+def point_count(fig: go.Figure) -> int:
+    """Data points a figure sends to the browser (for the 20,000-point budget)."""
+    total = 0
+    for trace in fig.data:
+        for axis in ("x", "y"):
+            values = getattr(trace, axis, None)
+            if values is not None:
+                total += len(values)
+                break
+    return total
+
+
+# --- effect curves ---------------------------------------------------------------------------------------
+SMEARING_NAME = "Smearing (Duan) — expected value"
+NAIVE_NAME = "Naive back-transform — closer to the median"
+
+
+def _model_words(outcome_label: str, ppml: bool) -> str:
+    return f"PPML model of the mean of {outcome_label}" if ppml else f"Model of {outcome_label}"
+
+
+def _y_range(curves: list[np.ndarray], points: np.ndarray) -> tuple[float, float]:
+    """Room for every curve and band, and for the data points up to their 1st and 99th
+    percentiles, so a few extreme rows do not flatten the curve."""
+    values = [c[np.isfinite(c)] for c in curves]
+    finite = np.concatenate([v for v in values if v.size] or [np.array([0.0])])
+    low, high = float(finite.min()), float(finite.max())
+    pts = points[np.isfinite(points)] if points.size else points
+    if pts.size:
+        low = min(low, float(np.percentile(pts, 1)))
+        high = max(high, float(np.percentile(pts, 99)))
+    pad = 0.05 * ((high - low) or abs(high) or 1.0)
+    return low - pad, high + pad
+
+
+def curve_figure(
+    curve: dict[str, Any],
+    *,
+    regressor_label: str,
+    outcome_column: str,
+    outcome_label: str,
+    points: dict[str, Any] | None = None,
+    show_naive: bool = True,
+    overlay: dict[str, Any] | None = None,
+    overlay_label: str | None = None,
+    ppml: bool = False,
+) -> go.Figure:
+    """The predicted outcome on its original scale across one regressor's range (others at the
+    reference point): the CI band, the smearing and the naive retransform, a light sample of the
+    data, the stretches beyond the observed data shaded, and optionally the smearing curve of
+    another transform of the same regressor."""
+    regressor_label, outcome_column, outcome_label = plain(regressor_label), plain(outcome_column), plain(outcome_label)
+    if curve["kind"] == "levels":
+        return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml)
+    column = plain(curve["column"])
+    x = _floats(curve["x"])
+    smear, naive = _floats(curve["smearing"]), _floats(curve["naive"])
+    low, high = _floats(curve["ci_low"]), _floats(curve["ci_high"])
+    observed_min, observed_max = float(curve["observed_min"]), float(curve["observed_max"])
+    # A variable that is never negative is not drawn below zero, even where its transform allows it.
+    keep = x >= 0 if observed_min >= 0 else np.ones_like(x, dtype=bool)
+    x, smear, naive, low, high = (a[keep] for a in (x, smear, naive, low, high))
+
+    fig = go.Figure()
+    pts_y = np.array([], dtype=float)
+    if points and points.get("x"):
+        pts_y = _floats(points["y"])
+        fig.add_trace(
+            go.Scatter(
+                x=points["x"],
+                y=points["y"],
+                mode="markers",
+                showlegend=False,
+                marker={"color": GREY, "size": 5, "opacity": 0.28},
+                hovertemplate=f"{column} %{{x:.4g}}<br>{outcome_column} %{{y:.4g}}<extra>data</extra>",
+            )
+        )
+        _legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    fig.add_trace(go.Scatter(x=x, y=high, mode="lines", line={"width": 0}, showlegend=False, hoverinfo="skip"))
+    fig.add_trace(
+        go.Scatter(
+            x=x,
+            y=low,
+            mode="lines",
+            line={"width": 0},
+            fill="tonexty",
+            fillcolor="rgba(86, 180, 233, 0.30)",
+            name="95 % confidence band",
+            hoverinfo="skip",
+        )
+    )
+    if ppml:
+        main_name = "Predicted mean (PPML models it directly)"
+    elif show_naive:
+        main_name = SMEARING_NAME
+    else:
+        main_name = f"Predicted {outcome_column} (expected value)"
+    fig.add_trace(
+        go.Scatter(
+            x=x,
+            y=smear,
+            mode="lines",
+            name=main_name,
+            line={"color": BLUE, "width": 3.5},
+            hovertemplate=f"{column} %{{x:.4g}}<br>expected {outcome_column} %{{y:,.4g}}<extra></extra>",
+        )
+    )
+    curves = [smear, low, high]
+    if show_naive:
+        fig.add_trace(
+            go.Scatter(
+                x=x,
+                y=naive,
+                mode="lines",
+                name=NAIVE_NAME,
+                line={"color": ORANGE, "width": 3, "dash": "dash"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>naive %{{y:,.4g}}<extra></extra>",
+            )
+        )
+        curves.append(naive)
+    if overlay is not None:
+        ox = _floats(overlay["x"])
+        oy = _floats(overlay["smearing"])
+        okeep = ox >= 0 if observed_min >= 0 else np.ones_like(ox, dtype=bool)
+        fig.add_trace(
+            go.Scatter(
+                x=ox[okeep],
+                y=oy[okeep],
+                mode="lines",
+                name=plain(overlay_label or "Other transform"),
+                line={"color": VERMILLION, "width": 3, "dash": "dashdot"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>%{{y:,.4g}}<extra>other transform</extra>",
+            )
+        )
+        curves.append(oy[okeep])
+
+    x_low, x_high = float(np.nanmin(x)), float(np.nanmax(x))
+    for left, right, side in ((x_low, observed_min, "left"), (observed_max, x_high, "right")):
+        if right - left <= 1e-12 * max(1.0, abs(right)):
+            continue
+        fig.add_vrect(x0=left, x1=right, fillcolor=SHADE, opacity=0.16, line_width=0, layer="below")
+        fig.add_annotation(
+            x=right if side == "left" else left,
+            xanchor="right" if side == "left" else "left",
+            y=1.0,
+            yref="paper",
+            yanchor="top",
+            text="beyond the data",
+            showarrow=False,
+            font={"size": 14, "color": SUBTLE},
+            xshift=-4 if side == "left" else 4,
+        )
+
+    y_low, y_high = _y_range(curves, pts_y)
+    _style(
+        fig,
+        title=f"Predicted {outcome_column} as {column} varies",
+        subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
+        x_title=f"{column} (as recorded)",
+        y_title=f"{outcome_column} (original units)",
+        height=620,
+    )
+    fig.update_layout(
+        xaxis={"range": [x_low - 0.01 * (x_high - x_low), x_high + 0.01 * (x_high - x_low)]},
+        yaxis={"range": [y_low, y_high]},
+    )
+    return fig
+
+
+def _levels_figure(
+    curve: dict[str, Any],
+    regressor_label: str,
+    outcome_column: str,
+    outcome_label: str,
+    points: dict[str, Any] | None,
+    show_naive: bool,
+    ppml: bool,
+) -> go.Figure:
+    """Categories and 0/1 variables: one point per level with its 95 % interval as error bars,
+    the data as a light jittered strip behind."""
+    column = plain(curve["column"])
+    levels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in curve["x"]]
+    ticks = [plain(f"{lv} (reference)" if i == 0 and len(levels) > 2 else lv) for i, lv in enumerate(levels)]
+    positions = np.arange(len(levels), dtype=float)
+    smear, naive = _floats(curve["smearing"]), _floats(curve["naive"])
+    low, high = _floats(curve["ci_low"]), _floats(curve["ci_high"])
+    fig = go.Figure()
+    pts_y = np.array([], dtype=float)
+    if points and points.get("x"):
+        labels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in points["x"]]
+        where = {lv: i for i, lv in enumerate(levels)}
+        pairs = [(where[lv], y) for lv, y in zip(labels, points["y"], strict=True) if lv in where]
+        if pairs:
+            jitter = np.random.default_rng(0).uniform(-0.28, 0.28, len(pairs))
+            px = np.array([p for p, _ in pairs], dtype=float) + jitter
+            pts_y = np.array([y for _, y in pairs], dtype=float)
+            fig.add_trace(
+                go.Scatter(
+                    x=px,
+                    y=pts_y,
+                    mode="markers",
+                    showlegend=False,
+                    marker={"color": GREY, "size": 5, "opacity": 0.25},
+                    hovertemplate=f"{outcome_column} %{{y:.4g}}<extra>data</extra>",
+                )
+            )
+            _legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    main_name = (
+        "Predicted mean (PPML)" if ppml else (SMEARING_NAME if show_naive else f"Predicted {outcome_column} (expected value)")
+    )
+    offset = 0.1 if show_naive else 0.0
+    fig.add_trace(
+        go.Scatter(
+            x=positions - offset,
+            y=smear,
+            mode="markers",
+            name=main_name + " with 95 % interval",
+            marker={"color": BLUE, "size": 15, "line": {"color": "white", "width": 1.5}},
+            error_y={
+                "type": "data",
+                "symmetric": False,
+                "array": high - smear,
+                "arrayminus": smear - low,
+                "color": BLUE,
+                "thickness": 3,
+                "width": 10,
+            },
+            hovertemplate="%{y:,.4g}<extra>expected value</extra>",
+        )
+    )
+    curves = [smear, low, high]
+    if show_naive:
+        fig.add_trace(
+            go.Scatter(
+                x=positions + offset,
+                y=naive,
+                mode="markers",
+                name=NAIVE_NAME,
+                marker={"color": ORANGE, "size": 14, "symbol": "diamond", "line": {"color": "white", "width": 1.5}},
+                hovertemplate="%{y:,.4g}<extra>naive</extra>",
+            )
+        )
+        curves.append(naive)
+    y_low, y_high = _y_range(curves, pts_y)
+    _style(
+        fig,
+        title=f"Predicted {outcome_column} by {column}",
+        subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
+        x_title=column,
+        y_title=f"{outcome_column} (original units)",
+        height=600,
+    )
+    fig.update_layout(
+        xaxis={"tickmode": "array", "tickvals": positions.tolist(), "ticktext": ticks, "range": [-0.6, len(levels) - 0.4]},
+        yaxis={"range": [y_low, y_high]},
+    )
+    return fig
+
+
+# --- units check ----------------------------------------------------------------------------------------
+def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[str]) -> go.Figure:
+    """The exact effect of the same real change when the variable is recorded in other units."""
+    rows = check["rows"]
+    column, outcome_column = plain(check["column"]), plain(outcome_column)
+    factors = [r["factor"] for r in rows]
+    exact = _floats([r["exact"] for r in rows])
+    percent = check["units"] == "percent"
+    colours = [VERMILLION if math.isclose(f, 1.0) else BLUE for f in factors]
+    sizes = [15 if math.isclose(f, 1.0) else 11 for f in factors]
+    fig = go.Figure(
+        go.Scatter(
+            x=factors,
+            y=exact,
+            mode="lines+markers",
+            line={"color": BLUE, "width": 3},
+            marker={"color": colours, "size": sizes, "line": {"color": "white", "width": 1.5}},
+            hovertemplate="%{text}<br>effect %{y:.3g}" + (" %" if percent else "") + "<extra></extra>",
+            text=tick_words,
+            showlegend=False,
+        )
+    )
+    for factor, value in zip(factors, exact, strict=True):
+        if math.isclose(factor, 1.0) and math.isfinite(value):
+            fig.add_annotation(
+                x=0.0,
+                xref="x",
+                y=value,
+                text="units in the data",
+                showarrow=True,
+                arrowhead=0,
+                ax=0,
+                ay=34,
+                font={"size": 14, "color": VERMILLION},
+                bgcolor="rgba(255,255,255,0.85)",
+            )
+    y_title = f"% change in {outcome_column}" if percent else f"change in {outcome_column}"
+    _style(
+        fig,
+        title=f"Effect of {plain(check['change'])} in {column}, by units",
+        subtitle="A flat line would mean the units do not matter",
+        x_title=f"{column} rescaled",
+        y_title=y_title,
+        height=400,
+        legend=False,
+        title_size=18,
+    )
+    fig.update_layout(
+        xaxis={"type": "log", "tickmode": "array", "tickvals": factors, "ticktext": tick_words, "tickangle": 0},
+        yaxis={"ticksuffix": " %" if percent else "", "rangemode": "tozero"},
+    )
+    return fig
+
+
+# --- residual checks ----------------------------------------------------------------------------------------
+def _dot_opacity(n: int) -> float:
+    return 0.6 if n <= 2_000 else 0.35 if n <= 8_000 else 0.2
+
+
+def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
+    fitted_label = plain(fitted_label)
+    fig = go.Figure()
+    fig.add_trace(
+        go.Scatter(
+            x=data["fitted"],
+            y=data["resid"],
+            mode="markers",
+            name="Rows",
+            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(data["shown"])},
+            hovertemplate="fitted %{x:.4g}<br>residual %{y:.3g}<extra></extra>",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=data["trend"]["x"],
+            y=data["trend"]["y"],
+            mode="lines",
+            name="Average residual",
+            line={"color": VERMILLION, "width": 3},
+            hoverinfo="skip",
+        )
+    )
+    fig.add_hline(y=0, line={"color": INK, "width": 1.2})
+    return _style(
+        fig,
+        "Residuals against fitted values",
+        "Good: an even cloud around zero, flat red line",
+        f"Fitted {fitted_label}",
+        "Residual",
+        height=430,
+        title_size=19,
+    )
+
+
+def qq_figure(data: dict[str, Any]) -> go.Figure:
+    theory = _floats(data["qq_theory"])
+    sample = _floats(data["qq_sample"])
+    edge = float(np.nanmax(np.abs(np.concatenate([theory, sample])))) if theory.size else 3.0
+    fig = go.Figure()
+    fig.add_trace(
+        go.Scatter(
+            x=[-edge, edge],
+            y=[-edge, edge],
+            mode="lines",
+            name="Normal residuals would lie here",
+            line={"color": ORANGE, "width": 3, "dash": "dash"},
+            hoverinfo="skip",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=theory,
+            y=sample,
+            mode="markers",
+            name="Residuals, in order",
+            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(len(theory))},
+            hovertemplate="normal %{x:.3g}<br>residual %{y:.3g}<extra></extra>",
+        )
+    )
+    return _style(
+        fig,
+        "Residuals against a normal curve (Q–Q)",
+        "Good: points along the dashed line",
+        "Where a normal curve puts them (standard units)",
+        "Standardised residual",
+        height=430,
+        title_size=19,
+    )
+
+
+def residual_histogram(data: dict[str, Any]) -> go.Figure:
+    counts = np.array(data["hist_counts"], dtype=float)
+    edges = np.array(data["hist_edges"], dtype=float)
+    centres = (edges[:-1] + edges[1:]) / 2
+    width = float(edges[1] - edges[0]) if len(edges) > 1 else 1.0
+    sigma = float(data["sigma"]) or 1.0
+    grid = np.linspace(edges[0], edges[-1], 120)
+    density = data["n"] * width * np.exp(-0.5 * (grid / sigma) ** 2) / (sigma * np.sqrt(2 * np.pi))
+    fig = go.Figure()
+    fig.add_trace(
+        go.Bar(
+            x=centres,
+            y=counts,
+            width=width * 0.96,
+            name="Residuals",
+            marker={"color": SKY, "line": {"width": 0}},
+            hovertemplate="residual %{x:.3g}<br>%{y:,} rows<extra></extra>",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=grid,
+            y=density,
+            mode="lines",
+            name="Normal curve, same spread",
+            line={"color": ORANGE, "width": 3},
+            hoverinfo="skip",
+        )
+    )
+    return _style(
+        fig,
+        "How the residuals are spread",
+        f"Every one of the {data['n']:,} rows counted",
+        "Residual",
+        "Rows",
+        height=430,
+        title_size=19,
+    )
+
+
+def scale_location_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
+    fitted_label = plain(fitted_label)
+    fig = go.Figure()
+    fig.add_trace(
+        go.Scatter(
+            x=data["fitted"],
+            y=data["root_abs"],
+            mode="markers",
+            name="Rows",
+            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(data["shown"])},
+            hovertemplate="fitted %{x:.4g}<br>%{y:.3g}<extra></extra>",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=data["spread_trend"]["x"],
+            y=data["spread_trend"]["y"],
+            mode="lines",
+            name="Average",
+            line={"color": VERMILLION, "width": 3},
+            hoverinfo="skip",
+        )
+    )
+    return _style(
+        fig,
+        "Spread of residuals against fitted values",
+        "Good: a flat red line; rising or falling means the spread changes",
+        f"Fitted {fitted_label}",
+        "√|standardised residual|",
+        height=430,
+        title_size=19,
+    )
+
+
+def distribution_figure(item: dict[str, Any]) -> go.Figure:
+    """One variable's histogram as recorded and, beside it, as transformed."""
+    panels = [("raw", f"As recorded<br>skewness {_skew_text(item['skew_raw'])}")]
+    if item.get("transformed"):
+        panels.append(("transformed", f"As {plain(item['label'])}<br>skewness {_skew_text(item['skew_transformed'])}"))
+    fig = make_subplots(rows=1, cols=len(panels), subplot_titles=[t for _, t in panels], horizontal_spacing=0.1)
+    for i, (key, _) in enumerate(panels, start=1):
+        hist = item[key]
+        edges = np.array(hist["edges"], dtype=float)
+        centres = (edges[:-1] + edges[1:]) / 2
+        fig.add_trace(
+            go.Bar(
+                x=centres,
+                y=hist["counts"],
+                width=float(edges[1] - edges[0]) * 0.96,
+                marker={"color": SKY if key == "raw" else BLUE, "line": {"width": 0}},
+                showlegend=False,
+                hovertemplate="%{x:.4g}<br>%{y:,} rows<extra></extra>",
+            ),
+            row=1,
+            col=i,
+        )
+    fig.update_layout(
+        template="plotly_white",
+        paper_bgcolor="white",
+        plot_bgcolor="white",
+        font={"family": FONT, "size": 14, "color": INK},
+        title={"text": f"{plain(item['column'])} ({item['role']})", "x": 0.01, "xanchor": "left", "font": {"size": 18}},
+        margin={"l": 60, "r": 20, "t": 110, "b": 40},
+        height=320,
+        bargap=0.02,
+    )
+    fig.update_annotations(font={"size": 14, "color": SUBTLE})
+    fig.update_xaxes(gridcolor=GRID, zeroline=False)
+    fig.update_yaxes(gridcolor=GRID, zeroline=False, title_text="Rows", row=1, col=1)
+    return fig
+
+
+def _skew_text(value: float | None) -> str:
+    return "n/a" if value is None else f"{value:.2f}".replace("-", "\u2212")
+
+
+def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
+    """The profile log-likelihood of the Box-Cox power λ, with λ̂, its 95 % interval and the
+    two powers people usually choose between: 0 (log) and 1 (level)."""
+    outcome_column = plain(outcome_column)
+    lam = _floats(boxcox["profile"]["lambda"])
+    loglik = _floats(boxcox["profile"]["loglik"])
+    best, low, high = boxcox["lambda"], boxcox.get("ci_low"), boxcox.get("ci_high")
+    fig = go.Figure()
+    if low is not None and high is not None:
+        fig.add_vrect(x0=low, x1=high, fillcolor=SKY, opacity=0.3, line_width=0, layer="below")
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=f"95 % interval: {_skew_text(low)} to {_skew_text(high)}",
+                marker={"symbol": "square", "size": 16, "color": "rgba(86, 180, 233, 0.45)"},
+                hoverinfo="skip",
+            )
+        )
+    fig.add_trace(
+        go.Scatter(
+            x=lam,
+            y=loglik,
+            mode="lines",
+            name="Profile log-likelihood",
+            line={"color": BLUE, "width": 3.5},
+            hovertemplate="λ %{x:.2f}<br>log-likelihood %{y:,.1f}<extra></extra>",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=[best],
+            y=[boxcox.get("loglik_max")],
+            mode="markers",
+            name=f"Best power λ̂ = {_skew_text(best)}",
+            marker={"color": VERMILLION, "size": 14, "line": {"color": "white", "width": 1.5}},
+            hovertemplate="λ̂ %{x:.3f}<extra></extra>",
+        )
+    )
+    for value, word in ((0.0, "λ = 0: log"), (1.0, "λ = 1: level")):
+        fig.add_vline(x=value, line={"color": INK, "width": 1.5, "dash": "dot"})
+        fig.add_annotation(
+            x=value,
+            y=0.02,
+            yref="paper",
+            yanchor="bottom",
+            xanchor="left",
+            xshift=5,
+            text=word,
+            showarrow=False,
+            font={"size": 15, "color": INK},
+            bgcolor="rgba(255,255,255,0.85)",
+        )
+    return _style(
+        fig,
+        f"Which power of {outcome_column} fits best (Box-Cox)",
+        f"Higher is better; {outcome_column} is modelled on the regressors as they are transformed now",
+        "Power λ of the outcome (0 = log, 0.5 ≈ square root, 1 = level)",
+        "Profile log-likelihood",
+        height=480,
+    )

@@ -21,15 +21,12 @@ import pandas as pd  # noqa: E402
 import streamlit as st  # noqa: E402
 
 import core  # noqa: E402
-from app import charts, state, tables  # noqa: E402
+from app import state, views  # noqa: E402
 from core.reader import read_table  # noqa: E402
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
 DEMO_ID = "demo:kiosks.csv"
-# Only the sections this screen shows, so a transform toggle refits quickly; units_check is
-# kept because it produces the warning about unit-dependent IHS and shifted-log effects.
-PARTS = frozenset({"terms", "fit", "effects", "gap_curves", "units_check"})
 
 
 # --- cached work ----------------------------------------------------------------------------
@@ -37,12 +34,6 @@ PARTS = frozenset({"terms", "fit", "effects", "gap_curves", "units_check"})
 def read_bytes(raw: bytes, name: str) -> pd.DataFrame:
     """Read a file's bytes once; reruns reuse the frame."""
     return read_table(raw, name)
-
-
-@st.cache_data(max_entries=64, show_spinner=False)
-def run_model(data_id: str, spec_json: str, _frame: pd.DataFrame) -> dict[str, Any]:
-    """Fit once per (data, spec): the frame itself is not hashed, its identity is."""
-    return core.analyze(_frame, json.loads(spec_json), parts=PARTS)
 
 
 # --- data and grid state ------------------------------------------------------------------------
@@ -58,6 +49,7 @@ def use_data(data_id: str, name: str, frame: pd.DataFrame, spec: dict[str, Any])
     ss.at = dict(spec.get("at") or {})
     ss.covariance = spec.get("covariance") or "HC1"
     ss.cluster_column = spec.get("cluster") or state.suggest_cluster(frame)
+    ss.ppml = spec.get("estimator") == "ppml"
 
 
 def load_demo() -> None:
@@ -188,15 +180,55 @@ def variables_grid() -> pd.DataFrame:
     return grid
 
 
+# --- the PPML offer -------------------------------------------------------------------------------
+def restart_grid(grid: pd.DataFrame) -> None:
+    """Show ``grid`` in a fresh editor (pending edits are already part of it)."""
+    ss = st.session_state
+    ss.grid_base = grid
+    ss.grid_version += 1
+    ss.grid_key = f"variables_{ss.grid_version}"
+    ss.previous_grid = grid
+
+
+def ppml_switched() -> None:
+    # PPML takes the outcome in levels: show that in the grid rather than overriding it silently.
+    if st.session_state.get("ppml"):
+        restart_grid(state.with_outcome_level(st.session_state.previous_grid))
+
+
+def zeros_offer(grid: pd.DataFrame) -> str:
+    """Next to an outcome with zeros: how many rows a log would drop, and the PPML switch.
+    Returns the estimator the spec should use."""
+    note = state.zero_note(st.session_state.data["frame"], state.outcome_column(grid))
+    if note is None:
+        return "ols"
+    with st.container(border=True):
+        text = state.zero_sentence(note)
+        if note["ppml_possible"]:
+            text += (
+                " Poisson pseudo-maximum likelihood keeps those rows: it models the mean of "
+                f"{note['column']} directly (no log of the outcome), and its effects read as % changes."
+            )
+            st.markdown(text)
+            st.toggle("Model the mean directly (Poisson pseudo-maximum likelihood)", key="ppml", on_change=ppml_switched)
+        else:
+            st.markdown(text)
+            st.caption("Poisson pseudo-maximum likelihood needs an outcome of zero or more; this one has negative values.")
+    return "ppml" if note["ppml_possible"] and st.session_state.get("ppml") else "ols"
+
+
 # --- results --------------------------------------------------------------------------------------
-def show_results(result: dict[str, Any], spec: dict[str, Any], data_name: str) -> None:
+def show_results(good: dict[str, Any]) -> None:
+    result, spec, data_name = good["result"], good["spec"], good["data_name"]
     with st.container(border=True):
         st.markdown(f"##### {state.sentence_case(state.model_sentence(result))}")
+        estimator = spec.get("estimator") or "ols"
         st.markdown(
-            f"{state.rows_sentence(result)} · data: {data_name} · standard errors: "
-            f"{state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
+            f"{state.rows_sentence(result)} · data: {data_name} · "
+            + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
+            + f"standard errors: {state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
             + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
-            + state.fit_sentence(result)
+            + state.fit_sentence(result, estimator)
         )
         for line in state.dropped_lines(result):
             st.caption(f"Left out: {line}")
@@ -213,71 +245,7 @@ def show_results(result: dict[str, Any], spec: dict[str, Any], data_name: str) -
             "- R² is measured on the scale of the outcome as transformed, so it cannot be compared between "
             "a log and a level outcome."
         )
-
-    coef_tab, effects_tab, check_tab = st.tabs(["Coefficients", "Effects of changes", "Approximation check"])
-    with coef_tab:
-        st.table(tables.styled(tables.coefficient_table(result, spec)), hide_index=True)
-    with effects_tab:
-        effects_view(result, spec)
-    with check_tab:
-        approximation_view(result, spec)
-
-
-def effects_view(result: dict[str, Any], spec: dict[str, Any]) -> None:
-    table = tables.effects_table(result, spec)
-    if table.empty:
-        st.info("Add a regressor to see the effect of changing it.")
-        return
-    st.caption(
-        "Each row moves one variable by the change in the grid, every other regressor held at its reference "
-        "value (sample mean; most frequent level for categories). The interval is for the exact effect. "
-        "“Small-sample adjusted” applies to 0/1 and category effects in log models; “Average over rows” "
-        "applies the change to every row and averages, where that differs from the effect at the reference."
-    )
-    st.table(tables.styled(table, tables.extrapolated_rows(result)), hide_index=True)
-    point = result.get("reference_point") or {}
-    if point:
-        st.caption(
-            "Reference values: " + ", ".join(f"{k} = {tables.sig(v, 4) if isinstance(v, float) else v}" for k, v in point.items())
-        )
-
-
-def approximation_view(result: dict[str, Any], spec: dict[str, Any]) -> None:
-    curves = result.get("gap_curves") or []
-    if not curves:
-        st.info(
-            "No continuous regressor in this model: 0/1 and category effects are single moves, so there is no "
-            "range of change sizes to compare. Their exact and approximate effects are in the effects table."
-        )
-        return
-    ss = st.session_state
-    transforms = {r["column"]: r.get("transform", "level") for r in spec.get("regressors", [])}
-    names = [c["column"] for c in curves]
-    if ss.get("gap_pick") not in names:
-        ss.gap_pick = names[0]
-    left, right = st.columns([2, 3])
-    with left:
-        pick = st.selectbox("Regressor", names, key="gap_pick", format_func=lambda c: state.variable_label(c, transforms.get(c)))
-    with right:
-        tolerance = st.slider(
-            "Tolerance: largest acceptable relative error (%)",
-            min_value=1,
-            max_value=50,
-            value=10,
-            key="gap_tolerance",
-            help="Marks the change sizes where |approximation − exact| / |exact| exceeds this share.",
-        )
-    curve = curves[names.index(pick)]
-    outcome = result["outcome"]
-    figure = charts.gap_figure(
-        curve,
-        tolerance,
-        regressor_label=state.variable_label(pick, transforms.get(pick)),
-        outcome_label=state.variable_label(outcome["column"], outcome["transform"], "outcome"),
-        outcome_column=outcome["column"],
-    )
-    st.plotly_chart(figure, theme=None, config={"displaylogo": False}, key="gap_chart")
-    st.markdown(charts.curve_summary(curve, tolerance))
+    views.show(views.Context(result=result, spec=spec, frame=good["frame"], data_id=good["data_id"], data_name=data_name))
 
 
 # --- page ------------------------------------------------------------------------------------------
@@ -295,10 +263,17 @@ def main() -> None:
     frame: pd.DataFrame = ss.data["frame"]
     error: str | None = None
     notes: list[str] = []
+    estimator = zeros_offer(grid)
     try:
-        spec, notes = state.grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"))
-        result = run_model(ss.data["id"], json.dumps(spec, sort_keys=True), frame)
-        ss.last_good = {"result": result, "spec": spec, "data_name": ss.data["name"], "data_id": ss.data["id"]}
+        spec, notes = state.grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"), estimator)
+        result = views.run_model(ss.data["id"], state.spec_json(spec), tuple(sorted(views.BASE_PARTS)), frame)
+        ss.last_good = {
+            "result": result,
+            "spec": spec,
+            "data_name": ss.data["name"],
+            "data_id": ss.data["id"],
+            "frame": frame,
+        }
     except (core.FormwiseError, state.GridError) as exc:
         error = state.sentence_case(str(exc))
     except Exception as exc:  # a core bug must not become a traceback on screen
@@ -316,7 +291,7 @@ def main() -> None:
                 "Fix the problem above and they update."
             )
     if good:
-        show_results(good["result"], good["spec"], good["data_name"])
+        show_results(good)
 
 
 main()
