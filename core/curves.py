@@ -8,7 +8,8 @@ For a grid of values of one regressor, others held at the reference point, the i
 
 For a level outcome both equal η. The band is the t interval of η carried through S, which is
 monotone in η for every transform here (so the band is exact given the residuals). The grid
-runs 15 % of the observed range beyond each end, where the transform allows, and every point
+runs 15 % of the observed range beyond each end, where the transform allows (and not below zero
+for a variable that is never negative in the data), and every point
 outside the observed range is flagged as an extrapolation. For large samples the smearing
 mean uses evenly spaced quantiles of the residuals instead of every residual, which changes
 S by far less than its own sampling error.
@@ -76,7 +77,11 @@ def effect_curve(model: Model, block: Block) -> dict[str, Any]:
     x = design.values[column]
     low, high = float(np.min(x)), float(np.max(x))
     span = high - low
-    grid = np.linspace(low - EXTEND * span, high + EXTEND * span, GRID_POINTS)
+    # A variable never negative in the data is not extended below zero (spend, counts, ...).
+    start = low - EXTEND * span
+    if low >= 0:
+        start = max(start, 0.0)
+    grid = np.linspace(start, high + EXTEND * span, GRID_POINTS)
     bad, _ = block.spec.transform.invalid(grid)
     grid = np.union1d(grid[~bad], [low, high])
     X = model.encode(dict(base, **{column: grid}), len(grid))
