@@ -82,7 +82,7 @@ def sidebar() -> None:
     frame: pd.DataFrame = ss.data["frame"]
     with st.sidebar:
         st.markdown("### Data")
-        st.markdown(f"**{ss.data['name']}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
+        st.markdown(f"**{state.plain(ss.data['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
         upload = st.file_uploader(
             "Load your own table",
             type=["csv", "tsv", "txt", "xlsx"],
@@ -92,8 +92,8 @@ def sidebar() -> None:
         if upload is not None:
             take_upload(upload)
         if ss.get("upload_error"):
-            st.error(ss.upload_error)
-            st.caption(f"Still working with: {ss.data['name']}.")
+            st.error(state.plain(ss.upload_error))
+            st.caption(f"Still working with: {state.plain(ss.data['name'])}.")
         if ss.data["id"] != DEMO_ID and st.button("Back to the demo data", width="stretch"):
             load_demo()
             ss.uploader_version = ss.get("uploader_version", 0) + 1
@@ -175,7 +175,7 @@ def variables_grid() -> pd.DataFrame:
     if levels:
         st.caption(
             "Category levels (most frequent first; blank reference = the most frequent): "
-            + " · ".join(f"**{col}**: {', '.join(vals)}" for col, vals in levels.items())
+            + " · ".join(f"**{state.plain(col)}**: {', '.join(map(state.plain, vals))}" for col, vals in levels.items())
         )
     return grid
 
@@ -207,7 +207,7 @@ def zeros_offer(grid: pd.DataFrame) -> str:
         if note["ppml_possible"]:
             text += (
                 " Poisson pseudo-maximum likelihood keeps those rows: it models the mean of "
-                f"{note['column']} directly (no log of the outcome), and its effects read as % changes."
+                f"{state.plain(note['column'])} directly (no log of the outcome), and its effects read as % changes."
             )
             st.markdown(text)
             st.toggle("Model the mean directly (Poisson pseudo-maximum likelihood)", key="ppml", on_change=ppml_switched)
@@ -221,19 +221,21 @@ def zeros_offer(grid: pd.DataFrame) -> str:
 def show_results(good: dict[str, Any]) -> None:
     result, spec, data_name = good["result"], good["spec"], good["data_name"]
     with st.container(border=True):
-        st.markdown(f"##### {state.sentence_case(state.model_sentence(result))}")
+        st.markdown(f"##### {state.plain(state.sentence_case(state.model_sentence(result)))}")
         estimator = spec.get("estimator") or "ols"
         st.markdown(
-            f"{state.rows_sentence(result)} · data: {data_name} · "
-            + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
-            + f"standard errors: {state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
-            + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
-            + state.fit_sentence(result, estimator)
+            state.plain(
+                f"{state.rows_sentence(result)} · data: {data_name} · "
+                + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
+                + f"standard errors: {state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
+                + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
+                + state.fit_sentence(result, estimator)
+            )
         )
         for line in state.dropped_lines(result):
-            st.caption(f"Left out: {line}")
+            st.caption(state.plain(f"Left out: {line}"))
     for warning in result.get("warnings") or []:
-        st.warning(state.sentence_case(warning))
+        st.warning(state.plain(state.sentence_case(warning)))
     st.caption(
         "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
         "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
@@ -280,12 +282,12 @@ def main() -> None:
         error = f"Formwise could not fit this model because of an internal problem ({type(exc).__name__}: {exc})."
 
     for note in notes:
-        st.info(note)
+        st.info(state.plain(note))
     good = ss.get("last_good")
     if error:
-        st.error(error)
+        st.error(state.plain(error))
         if good:
-            other_data = "" if good["data_id"] == ss.data["id"] else f" on {good['data_name']}"
+            other_data = "" if good["data_id"] == ss.data["id"] else f" on {state.plain(good['data_name'])}"
             st.info(
                 f"The results below belong to the previous valid model{other_data}, not to the grid as it is now. "
                 "Fix the problem above and they update."

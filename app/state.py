@@ -447,6 +447,28 @@ def sentence_case(text: str) -> str:
     return text[:1].upper() + text[1:] if text else text
 
 
+# Characters Streamlit's Markdown (GitHub-flavoured, plus its own :color[...] directives, emoji
+# shortcodes and $...$ LaTeX) gives a meaning; each is shown literally when backslash-escaped.
+_MARKDOWN_SPECIAL = re.compile(r"([\\`*_{}\[\]()#+\-.!|<>$~:&])")
+# Bare URLs and e-mail addresses are linked *after* parsing (GFM autolink literals), so an
+# escape does not stop them; an invisible word joiner after 'http:', 'www' or '@' does.
+_AUTOLINK_START = re.compile(r"(?i)(?<=:)(?=//)|(?<=www)(?=\.)|(?<=@)")
+WORD_JOINER = "\u2060"
+
+
+def plain(text: Any) -> str:
+    """User text (column names, category levels, file and model names, cell values, messages
+    that quote them) as literal text in anything Streamlit renders as Markdown: st.markdown,
+    st.caption, st.error and the other alerts, st.table cells and headers, widget labels.
+
+    Without it a column named ``![x](http://host/p.png)`` fetches an image, ``[x](javascript:…)``
+    makes a link, ``:red[x]`` colours text and ``$x$`` typesets LaTeX. Line breaks become
+    spaces so a name cannot start a heading or a list.
+    """
+    flat = " ".join(str(text).splitlines())
+    return _MARKDOWN_SPECIAL.sub(r"\\\1", _AUTOLINK_START.sub(WORD_JOINER, flat))
+
+
 # --- the views' shared helpers ----------------------------------------------------------------------
 # Largest number of points any chart sends to the browser (SPEC §8).
 MAX_POINTS = 20_000
@@ -516,7 +538,7 @@ def zero_note(frame: pd.DataFrame, column: str | None) -> dict[str, Any] | None:
 
 def zero_sentence(note: dict[str, Any]) -> str:
     """'catering_orders is zero in 955 rows: a log of catering_orders would drop 955 rows (64 %).'"""
-    column = note["column"]
+    column = plain(note["column"])  # Markdown: the name is escaped, the bold is meant
     what = f"zero in {note['zeros']:,} row{'s' if note['zeros'] != 1 else ''}"
     if note["negatives"]:
         what += f" and negative in {note['negatives']:,}"

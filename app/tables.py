@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 from pandas.io.formats.style import Styler
 
-from app.state import variable_label
+from app.state import plain, variable_label
 
 DASH = "—"
 MINUS = "\u2212"
@@ -206,13 +206,21 @@ NUMBER_COLUMNS = {
 HIGHLIGHT = "background-color: #FFF4D6"
 
 
+def literal(table: pd.DataFrame) -> pd.DataFrame:
+    """The table with every text cell and header escaped for Markdown: ``st.table`` renders
+    both as Markdown, and they hold column names, category levels and model names."""
+    out = table.rename(columns=lambda c: plain(c) if isinstance(c, str) else c)
+    return out.map(lambda v: plain(v) if isinstance(v, str) else v)
+
+
 def styled(table: pd.DataFrame, highlight_rows: list[int] | None = None, numbers_in: list[str] | None = None) -> Styler:
     """Numbers right-aligned on one line (so columns line up and never break mid-number);
     the listed rows tinted, e.g. extrapolated effects. ``numbers_in`` names further number
-    columns whose names are not fixed (a model's name, an effect's change)."""
+    columns whose names are not fixed (a model's name, an effect's change). Text is shown
+    literally (see ``literal``)."""
     extra = set(numbers_in or [])
-    numbers = [c for c in table.columns if c in NUMBER_COLUMNS or c in extra]
-    style = table.style.set_properties(subset=numbers, **{"text-align": "right", "white-space": "nowrap"})
+    numbers = [plain(c) for c in table.columns if c in NUMBER_COLUMNS or c in extra]
+    style = literal(table).style.set_properties(subset=numbers, **{"text-align": "right", "white-space": "nowrap"})
     rows = set(highlight_rows or [])
     if rows:
         style = style.apply(lambda row: [HIGHLIGHT if row.name in rows else ""] * len(row), axis=1)

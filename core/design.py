@@ -47,24 +47,51 @@ class Block:
 
 
 @dataclass
+class Coded:
+    """A category column as integer codes, one per row, and the level name of each code.
+
+    The level name of a cell is ``str`` of its value; distinct codes have distinct names.
+    """
+
+    codes: np.ndarray  # intp; -1 for a missing cell
+    names: np.ndarray  # str array, one name per code
+
+
+@dataclass
 class Encoder:
     """Maps original-unit regressor values to design rows (intercept first)."""
 
     blocks: list[Block]
     width: int
 
-    def encode(self, values: dict[str, Any], n: int) -> np.ndarray:
-        """Design rows for n points; each value is an array of n or a scalar shared by all."""
-        X = np.empty((n, self.width))
+    def encode(self, values: dict[str, Any], n: int, codes: dict[str, Coded] | None = None) -> np.ndarray:
+        """Design rows for n points; each value is an array of n or a scalar shared by all.
+
+        X is allocated in Fortran (column-major) order: every block writes whole columns, and
+        the fit reads row chunks of all columns. ``codes`` may give, per category column, the
+        rows' integer codes and the level name of each code (what ``build_design`` already
+        has), so the dummies come from integer comparisons instead of string ones.
+        """
+        X = np.empty((n, self.width), order="F")
         X[:, 0] = 1.0
         for block in self.blocks:
-            x = values[block.spec.column]
+            column = block.spec.column
             if block.is_category:
-                labels = np.broadcast_to(np.asarray(x).astype(str), (n,))
+                coded = codes.get(column) if codes else None
+                if coded is not None:
+                    position = {name: i for i, name in enumerate(coded.names)}
+                    for j, level in enumerate(block.levels):
+                        code = position.get(level)
+                        if code is None:
+                            X[:, block.start + j] = 0.0
+                        else:
+                            np.equal(coded.codes, code, out=X[:, block.start + j], casting="unsafe")
+                    continue
+                labels = np.broadcast_to(np.asarray(values[column]).astype(str), (n,))
                 for j, level in enumerate(block.levels):
                     X[:, block.start + j] = labels == level
             else:
-                numbers = np.broadcast_to(np.asarray(x, dtype=float), (n,))
+                numbers = np.broadcast_to(np.asarray(values[column], dtype=float), (n,))
                 X[:, block.start : block.stop] = block.spec.transform.basis(numbers)
         return X
 
@@ -116,6 +143,39 @@ def _numeric(series: pd.Series, column: str) -> np.ndarray:
     return converted.to_numpy(dtype=float, na_value=np.nan)
 
 
+def _category_codes(series: pd.Series) -> Coded:
+    """Integer codes of a category column (pandas.factorize) and the name, ``str(value)``, of
+    each code. Codes are -1 exactly where the cell is missing (``Series.isna``).
+
+    factorize treats equal values as one, so where equal values print differently (1, 1.0 and
+    True in one object column; 0.0 and -0.0) the names are taken from the cells' text instead.
+    Names that coincide (a categorical's 1 and "1") share one code.
+    """
+    missing = series.isna().to_numpy()
+    codes, uniques = pd.factorize(series, use_na_sentinel=True)
+    originals = np.asarray(uniques, dtype=object)
+    if series.dtype == object:
+        by_value = pd.api.types.infer_dtype(originals, skipna=False) in ("string", "integer", "boolean", "empty")
+    elif pd.api.types.is_float_dtype(series.dtype) and bool((originals == 0).any()):
+        numbers = series.to_numpy(dtype=float, na_value=np.nan)
+        signs = np.signbit(numbers[numbers == 0])
+        by_value = bool(signs.all()) or not bool(signs.any())
+    else:
+        by_value = True
+    if not by_value or bool((codes[~missing] < 0).any()):
+        text = np.asarray(series.astype(object), dtype=object).astype(str)
+        codes, uniques = pd.factorize(text)
+        originals = np.asarray(uniques, dtype=object)
+    names = originals.astype(str) if len(originals) else np.array([], dtype=str)
+    distinct, position = pd.factorize(names)
+    if len(position) < len(names):
+        codes = np.where(codes >= 0, distinct[np.maximum(codes, 0)], -1)
+        names = np.asarray(position, dtype=object).astype(str)
+    codes = np.asarray(codes, dtype=np.intp)
+    codes[missing] = -1
+    return Coded(codes, names)
+
+
 def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
     """Transform, drop and encode: the design matrix for ``spec`` on ``data``."""
     n_total = len(data)
@@ -132,6 +192,7 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
             keep[mask] = False
 
     raw: dict[str, np.ndarray] = {}
+    coded: dict[str, Coded] = {}
     category_columns = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
     group_labels = None
     if spec.cluster:
@@ -144,9 +205,8 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         if column == spec.cluster and column not in {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}:
             continue
         if column in category_columns:
-            missing = series.isna().to_numpy()
-            raw[column] = series.astype(object).where(~series.isna(), None).to_numpy()
-            drop(missing, column, "missing value")
+            coded[column] = _category_codes(series)
+            drop(coded[column].codes < 0, column, "missing value")
             continue
         values = _numeric(series, column)
         raw[column] = values
@@ -182,24 +242,45 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
 
     rows = np.flatnonzero(keep)
     n = len(rows)
-    values = {reg.column: raw[reg.column][rows] for reg in spec.regressors}
+    every_row = n == n_total
+
+    def used(array: np.ndarray) -> np.ndarray:
+        """The used rows of a column, never a view of the caller's frame (which may be edited
+        later); with no row dropped an array made here is taken as it is, not gathered."""
+        if not every_row:
+            return array[rows]
+        return array if array.flags.owndata and array.flags.writeable else array.copy()
+
+    values = {reg.column: used(raw[reg.column]) for reg in spec.regressors if reg.column not in category_columns}
+    codes_used: dict[str, Coded] = {}
+    modes: dict[str, str] = {}
 
     blocks: list[Block] = []
     terms = [Term(name="intercept", column=None, transform=None)]
     width = 1
     for reg in spec.regressors:
-        x = values[reg.column]
         if isinstance(reg.transform, Category):
-            labels = np.asarray(x, dtype=object).astype(str)
-            values[reg.column] = labels
-            counts = pd.Series(labels).value_counts(sort=True)
-            present = sorted(counts.index.tolist(), key=_level_order)
+            names = coded[reg.column].names
+            codes = coded[reg.column].codes[rows] if not every_row else coded[reg.column].codes
+            values[reg.column] = names[codes]
+            codes_used[reg.column] = Coded(codes, names)
+            tally = np.bincount(codes, minlength=len(names))
+            present = sorted(names[np.flatnonzero(tally)].tolist(), key=_level_order)
             if len(present) < 2:
                 raise DataError(
                     f"category '{reg.column}' has a single level ('{present[0] if present else ''}') in the rows used; "
                     "remove it from the regressors."
                 )
-            reference = reg.reference if reg.reference is not None else str(counts.index[0])
+            top = np.flatnonzero(tally == tally.max())
+            # The mode for the reference point: ties go to the first name in sorted order (as
+            # pandas' Series.mode); the default reference level: ties go to the level seen first
+            # in the rows used (as pandas' value_counts).
+            modes[reg.column] = str(min(names[top].tolist()))
+            if reg.reference is not None:
+                reference = reg.reference
+            else:
+                first = top[0] if len(top) == 1 else min(top, key=lambda c: int(np.argmax(codes == c)))
+                reference = str(names[first])
             if reference not in present:
                 raise DataError(
                     f"category '{reg.column}': the reference level '{reference}' does not occur in the rows used; "
@@ -211,6 +292,7 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
                 terms.append(Term(f"{reg.column}[{level}]", reg.column, "category", level=level))
             width += len(levels)
             continue
+        x = values[reg.column]
         spread = float(np.ptp(x)) if n else 0.0
         if n and spread == 0:
             raise DataError(
@@ -235,8 +317,8 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         )
 
     encoder = Encoder(blocks, width)
-    X = encoder.encode(values, n)
-    y_raw = raw[spec.outcome_column][rows]
+    X = encoder.encode(values, n, codes_used)
+    y_raw = used(raw[spec.outcome_column])
     if float(np.ptp(y_raw)) == 0:
         raise DataError(
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
@@ -245,7 +327,7 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
     with np.errstate(all="ignore"):
         y = y_transform.forward(y_raw)
 
-    reference = reference_point(spec, blocks, values)
+    reference = reference_point(spec, blocks, values, modes)
     return Design(
         y=y,
         y_raw=y_raw,
@@ -253,8 +335,8 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         terms=terms,
         encoder=encoder,
         values=values,
-        weights=raw[spec.weights][rows] if spec.weights else None,
-        groups=group_labels[rows] if group_labels is not None else None,
+        weights=used(raw[spec.weights]) if spec.weights else None,
+        groups=used(group_labels) if group_labels is not None else None,
         rows=rows,
         n_total=n_total,
         dropped=dropped,
@@ -290,8 +372,11 @@ def _level_order(level: str) -> tuple[int, float, str]:
         return (1, 0.0, level)
 
 
-def reference_point(spec: ModelSpec, blocks: list[Block], values: dict[str, np.ndarray]) -> dict[str, Any]:
-    """Where effects are evaluated: ``at`` values, else sample means (modes for categories)."""
+def reference_point(
+    spec: ModelSpec, blocks: list[Block], values: dict[str, np.ndarray], modes: dict[str, str] | None = None
+) -> dict[str, Any]:
+    """Where effects are evaluated: ``at`` values, else sample means (modes for categories; the
+    first in sorted order on ties). ``modes`` may give the modes already counted."""
     point: dict[str, Any] = {}
     for block in blocks:
         column = block.spec.column
@@ -314,7 +399,11 @@ def reference_point(spec: ModelSpec, blocks: list[Block], values: dict[str, np.n
                 given = float(given)
             point[column] = given
         elif block.is_category:
-            point[column] = str(pd.Series(values[column]).mode().iloc[0])
+            if modes and column in modes:
+                point[column] = modes[column]
+            else:
+                labels, counts = np.unique(np.asarray(values[column]).astype(str), return_counts=True)
+                point[column] = str(labels[int(np.argmax(counts))])
         else:
             point[column] = float(np.mean(values[column]))
     return point

@@ -66,7 +66,7 @@ def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, nam
     w_sum = float(weights.sum()) if weights is not None else float(n)
 
     means = (X[:, 1:].T @ weights / w_sum) if weights is not None else X[:, 1:].mean(axis=0)
-    Z = X.copy()
+    Z = X.copy(order="A")  # keeps the design's (Fortran) layout
     Z[:, 1:] -= means
     ys = y
     if root_w is not None:

@@ -17,6 +17,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables
+from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
 MAIN = str(ROOT / "app" / "main.py")
@@ -33,7 +34,7 @@ def start() -> AppTest:
 
 
 def table_with(at: AppTest, column: str) -> pd.DataFrame:
-    found = [t.value for t in at.table if column in t.value.columns]
+    found = [shown_table(t.value) for t in at.table if column in shown_table(t.value).columns]
     assert found, f"no table with a column {column!r}"
     return found[0]
 
@@ -57,7 +58,7 @@ def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
 
 
 def texts(at: AppTest) -> str:
-    return "\n".join(m.value for m in at.markdown)
+    return shown("\n".join(m.value for m in at.markdown))
 
 
 def show(at: AppTest, view: str) -> AppTest:
@@ -108,7 +109,7 @@ def test_an_error_keeps_the_last_good_results_on_screen() -> None:
     good = coefficients(at)
     edit_grid(at, {"kiosk_id": {"role": "regressor", "transform": "level"}})
     assert at.error, "a text column used as a number must show an error"
-    assert "kiosk_id" in at.error[0].value
+    assert "kiosk_id" in shown(at.error[0].value)
     assert any("previous valid model" in i.value for i in at.info)
     pd.testing.assert_frame_equal(coefficients(at), good)
     # Undoing the edit brings the live results back without the note.
@@ -120,7 +121,7 @@ def test_an_error_keeps_the_last_good_results_on_screen() -> None:
 def test_no_outcome_is_an_error_not_a_crash() -> None:
     at = start()
     edit_grid(at, {"weekly_revenue": {"role": "not used"}})
-    assert at.error and "no outcome" in at.error[0].value.lower()
+    assert at.error and "no outcome" in shown(at.error[0].value).lower()
     assert coefficients(at) is not None
 
 
@@ -138,7 +139,7 @@ def test_log_outcome_with_zeros_drops_rows_and_says_so() -> None:
     at = start()
     edit_grid(at, {"weekly_revenue": {"role": "not used"}, "catering_orders": {"role": "outcome", "transform": "log"}})
     assert not at.error
-    assert any("dropped" in w.value and "catering_orders" in w.value for w in at.warning)
+    assert any("dropped" in shown(w.value) and "catering_orders" in shown(w.value) for w in at.warning)
     assert "955 dropped" in texts(at)
 
 
@@ -171,7 +172,7 @@ def test_a_bad_upload_keeps_the_current_data() -> None:
     good = coefficients(at)
     at.file_uploader[0].set_value(("broken.xlsx", b"this is not a workbook", "application/octet-stream")).run()
     assert not at.exception
-    assert any("broken.xlsx" in e.value for e in at.sidebar.error)
+    assert any("broken.xlsx" in shown(e.value) for e in at.sidebar.error)
     assert at.session_state["data"]["id"].startswith("demo:")
     pd.testing.assert_frame_equal(coefficients(at), good)
 

@@ -19,6 +19,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables, views
+from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
 MAIN = str(ROOT / "app" / "main.py")
@@ -55,11 +56,11 @@ def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
 
 
 def texts(at: AppTest) -> str:
-    return "\n".join(m.value for m in at.markdown) + "\n" + "\n".join(c.value for c in at.caption)
+    return shown("\n".join(m.value for m in at.markdown) + "\n" + "\n".join(c.value for c in at.caption))
 
 
 def table_with(at: AppTest, column: str) -> pd.DataFrame:
-    found = [t.value for t in at.table if column in t.value.columns]
+    found = [shown_table(t.value) for t in at.table if column in shown_table(t.value).columns]
     assert found, f"no table with a column {column!r}"
     return found[0]
 
@@ -173,7 +174,7 @@ def test_units_check_sits_beside_the_ihs_effect() -> None:
     assert list(units["Units"]) == ["÷1000", "÷100", "÷10", "as recorded", "×10", "×100", "×1000"]
     assert units.loc[0, "Meaning"] == "ad_spend measured in thousands"
     assert "Exact effect of +100%" in units.columns and "Elasticity at the reference point" in units.columns
-    assert any("changes by up to" in w.value and "ad_spend" in w.value for w in at.warning)
+    assert any("changes by up to" in shown(w.value) and "ad_spend" in shown(w.value) for w in at.warning)
     figure = next(f for f in figures(at) if "by units" in f["layout"]["title"]["text"])
     assert figure["layout"]["xaxis"]["type"] == "log"
     assert figure["layout"]["xaxis"]["ticktext"][0] == "÷1000"
@@ -182,7 +183,7 @@ def test_units_check_sits_beside_the_ihs_effect() -> None:
 def test_units_check_waits_to_be_asked_on_large_data(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setattr(views, "UNITS_CHECK_AUTO_ROWS", 1_000)  # the demo's 1,500 rows count as large here
     at = show(start(), "Effects of changes")
-    assert not [t for t in at.table if "Units" in t.value.columns]
+    assert not [t for t in at.table if "Units" in shown_table(t.value).columns]
     at.toggle(key="units_check_on").set_value(True).run()
     assert not at.exception
     assert list(table_with(at, "Units")["Units"])[0] == "÷1000"
@@ -388,17 +389,17 @@ def test_predict_shows_three_retransforms_and_both_intervals() -> None:
         "region": "Coast",
     }
     expected = core.analyze(frame, {**DEMO_SPEC, "predict": [values]}, parts={"predictions"})["predictions"][0]
-    shown = table.set_index("Retransform")["Predicted weekly_revenue"]
-    assert shown["Smearing (Duan)"] == tables.sig(expected["smearing"], 4)
-    assert shown["Normal theory"] == tables.sig(expected["normal"], 4)
-    assert shown["Naive back-transform"] == tables.sig(expected["naive"], 4)
+    predicted = table.set_index("Retransform")["Predicted weekly_revenue"]
+    assert predicted["Smearing (Duan)"] == tables.sig(expected["smearing"], 4)
+    assert predicted["Normal theory"] == tables.sig(expected["normal"], 4)
+    assert predicted["Naive back-transform"] == tables.sig(expected["naive"], 4)
     assert expected["naive"] < expected["normal"] < expected["smearing"] * 1.01
     intervals = table.set_index("Retransform")["95 % interval"]
     assert intervals["Smearing (Duan)"].endswith("(for the expected value)")
     assert intervals["One new observation"].endswith("(prediction interval)")
     assert not at.warning
     at.number_input(key="predict_drink_price").set_value(8.0).run()
-    assert any("drink_price = 8 is outside the values in the data" in w.value for w in at.warning)
+    assert any("drink_price = 8 is outside the values in the data" in shown(w.value) for w in at.warning)
 
 
 # --- the PPML offer ------------------------------------------------------------------------------------------------
