@@ -157,14 +157,17 @@ def _is_outcome_candidate(name: str, series: pd.Series) -> bool:
     return bool(len(finite) > 2 and (finite > 0).all() and finite.nunique() > 2 and not _looks_like_index(name, finite))
 
 
-def default_spec(frame: pd.DataFrame) -> dict[str, Any]:
+def default_spec(frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> dict[str, Any]:
     """A starting model for a newly loaded file.
 
     Outcome: the first strictly positive numeric column that is not a counter or time index.
     Regressors: the other numeric columns that vary, and text columns with a few levels as
     categories, up to ``MAX_DEFAULT_REGRESSORS``. Raises ``GridError`` when no column fits
-    as an outcome.
+    as an outcome. With the file's ``profile`` (``core.profile.profile_table``) the advisor
+    decides: kinds pick the columns and its suggested transforms fill the grid.
     """
+    if profile is not None:
+        return _advised_spec(frame, profile)
     names = [str(c) for c in frame.columns]
     outcome = next((c for c in names if _is_outcome_candidate(c, frame[c])), None)
     if outcome is None:
@@ -195,6 +198,62 @@ def default_spec(frame: pd.DataFrame) -> dict[str, Any]:
     }
 
 
+# Kinds the advisor reads as labels of rows, not variables: kept out of the model unless the
+# user asks for them (an identifier still serves to cluster standard errors).
+LOCKED_KINDS = {"identifier": "identifier", "date": "dates"}
+# Kinds that make a sensible default outcome: amounts and measurements, not labels or 0/1.
+_OUTCOME_KINDS = ("money", "count", "continuous", "duration_years", "share", "percent")
+_NOT_BY_DEFAULT = {"time_index", "calendar_year", "constant", "empty"}
+
+
+def profile_entries(profile: dict[str, Any] | None) -> dict[str, dict[str, Any]]:
+    """The profile's column entries by column name (empty without a profile)."""
+    return {str(e["column"]): e for e in (profile or {}).get("columns") or []}
+
+
+def _advised_spec(frame: pd.DataFrame, profile: dict[str, Any]) -> dict[str, Any]:
+    """``default_spec`` following the advisor: identifiers, dates, text, constants and time
+    indices stay out; every other column enters with its suggested transform."""
+    entries = profile_entries(profile)
+    names = [str(c) for c in frame.columns]
+
+    def usable(name: str) -> bool:
+        entry = entries.get(name)
+        return bool(entry and entry.get("suggested_transform") and not set(entry.get("flags") or []) & _NOT_BY_DEFAULT)
+
+    def outcome_fits(name: str) -> bool:
+        entry = entries.get(name) or {}
+        return (
+            usable(name)
+            and entry.get("kind") in _OUTCOME_KINDS
+            and (entry.get("min") or 0) > 0
+            and (entry.get("n_distinct") or 0) > 2
+        )
+
+    outcome = next((c for c in names if outcome_fits(c)), None)
+    if outcome is None:
+        # The advisor found no amount to explain; fall back on the plain rules.
+        return default_spec(frame)
+    suggested = entries[outcome]["suggested_transform"]
+    regressors: list[dict[str, Any]] = []
+    for name in names:
+        if name == outcome or len(regressors) >= MAX_DEFAULT_REGRESSORS or not usable(name):
+            continue
+        transform = entries[name]["suggested_transform"]
+        if transform == "category" and entries[name].get("n_distinct", 0) > min(MAX_DEFAULT_LEVELS, max(2, len(frame) // 10)):
+            continue  # many levels: a dummy each would swamp a first model; the user can add it
+        regressors.append({"column": name, "transform": transform})
+    return {
+        "outcome": {"column": outcome, "transform": suggested if suggested in OUTCOME_TRANSFORMS else "level"},
+        "regressors": regressors,
+        "estimator": "ols",
+        "covariance": "HC1",
+        "cluster": None,
+        "weights": None,
+        "at": {},
+    }
+
+
 def suggest_cluster(frame: pd.DataFrame) -> str | None:
     """A grouping column for clustered errors: the text or whole-number column with the most
     groups that still repeat (at most half as many groups as rows)."""
@@ -211,8 +270,11 @@ def suggest_cluster(frame: pd.DataFrame) -> str | None:
 
 
 # --- spec <-> grid ------------------------------------------------------------------------------
-def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame) -> pd.DataFrame:
-    """One grid row per data column, in the file's order, filled from ``spec``."""
+def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> pd.DataFrame:
+    """One grid row per data column, in the file's order, filled from ``spec``. With the file's
+    ``profile``, unused rows carry the advisor's suggested transform and identifier and date
+    columns say what they are."""
+    entries = profile_entries(profile)
     outcome = spec.get("outcome") or {}
     by_column = {r["column"]: r for r in spec.get("regressors") or []}
     # The model's own variables first (outcome, then regressors in the spec's order), so the
@@ -223,6 +285,9 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame) -> pd.DataFrame:
     for name in first + [c for c in names if c not in first]:
         series = frame[name]
         row = {"column": name, "about": describe_column(series), "role": "not used", "change": "", "reference": ""}
+        advice = entries.get(name) or {}
+        if advice.get("kind") in LOCKED_KINDS:
+            row["about"] = f"{LOCKED_KINDS[advice['kind']]} · {row['about']}"
         if name == outcome.get("column"):
             row.update(role="outcome", transform=outcome.get("transform", "level"))
         elif name in by_column:
@@ -233,6 +298,8 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame) -> pd.DataFrame:
                 change=_text(entry.get("change")),
                 reference=_text(entry.get("reference")),
             )
+        elif advice.get("suggested_transform") in REGRESSOR_TRANSFORMS:
+            row["transform"] = advice["suggested_transform"]
         else:
             row["transform"] = suggest_transform(series)
         rows.append(row)
