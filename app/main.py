@@ -21,27 +21,29 @@ import pandas as pd  # noqa: E402
 import streamlit as st  # noqa: E402
 
 import core  # noqa: E402
-from app import state, views  # noqa: E402
-from core.reader import read_table  # noqa: E402
+from app import intake, state, views  # noqa: E402
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
 DEMO_ID = "demo:kiosks.csv"
 
 
-# --- cached work ----------------------------------------------------------------------------
-@st.cache_data(max_entries=8, show_spinner=False)
-def read_bytes(raw: bytes, name: str) -> pd.DataFrame:
-    """Read a file's bytes once; reruns reuse the frame."""
-    return read_table(raw, name)
-
-
 # --- data and grid state ------------------------------------------------------------------------
-def use_data(data_id: str, name: str, frame: pd.DataFrame, spec: dict[str, Any]) -> None:
-    """Make ``frame`` the working data, with the grid and error choices taken from ``spec``."""
+def use_data(
+    data_id: str,
+    name: str,
+    frame: pd.DataFrame,
+    spec: dict[str, Any],
+    notes: list[str] | None = None,
+    profile: dict[str, Any] | None = None,
+) -> None:
+    """Make ``frame`` the working data, with the grid and error choices taken from ``spec``;
+    ``notes`` say what reading changed, ``profile`` holds the advisor's column profiles."""
     ss = st.session_state
-    ss.data = {"id": data_id, "name": name, "frame": frame}
-    ss.grid_base = state.spec_to_grid(spec, frame)
+    ss.data = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile}
+    ss.grid_base = state.spec_to_grid(spec, frame, profile)
+    # A new table starts with its identifier and date columns locked out again.
+    ss.pop(intake.UNLOCK_KEY, None)
     ss.previous_grid = ss.grid_base
     # A fresh editor key discards the old grid's pending edits.
     ss.grid_version = ss.get("grid_version", 0) + 1
@@ -53,27 +55,36 @@ def use_data(data_id: str, name: str, frame: pd.DataFrame, spec: dict[str, Any])
 
 
 def load_demo() -> None:
-    frame = read_bytes(DEMO_CSV.read_bytes(), DEMO_CSV.name)
-    use_data(DEMO_ID, "demo: coffee kiosks (invented)", frame, json.loads(DEMO_SPEC.read_text()))
+    frame, notes, profile = intake.read_upload(DEMO_CSV.read_bytes(), DEMO_CSV.name)
+    use_data(DEMO_ID, "demo: coffee kiosks (invented)", frame, json.loads(DEMO_SPEC.read_text()), notes, profile)
 
 
 def take_upload(upload: Any) -> None:
-    """Switch to an uploaded file once per upload; a bad file leaves the current data in place."""
+    """Switch to an uploaded file (or another sheet of it) once; a file that is too big or
+    cannot be read leaves the current data and results in place, with the reason on screen."""
     ss = st.session_state
-    if upload.file_id == ss.get("upload_seen"):
-        return
-    ss.upload_seen = upload.file_id
-    ss.upload_error = None
     raw = upload.getvalue()
+    too_big = intake.size_problem(upload.name, len(raw))
+    sheet = None if too_big else intake.sheet_picker(upload.name, raw, upload.file_id)
+    if (upload.file_id, sheet) == ss.get("upload_seen"):
+        return
+    ss.upload_seen = (upload.file_id, sheet)
+    ss.upload_error = None
+    if too_big:
+        ss.upload_error = too_big
+        return
     try:
-        # Header cells such as 2024 arrive as numbers; the grid and the spec name columns as text.
-        frame = read_bytes(raw, upload.name).rename(columns=str)
-        spec = state.default_spec(frame)
+        frame, notes, profile = intake.read_upload(raw, upload.name, sheet)
+        spec = state.default_spec(frame, profile)
     except (core.FormwiseError, state.GridError) as exc:
         ss.upload_error = f"Could not use '{upload.name}': {exc}"
         return
-    data_id = f"upload:{upload.name}:{hashlib.sha256(raw).hexdigest()[:16]}"
-    use_data(data_id, upload.name, frame, spec)
+    except Exception as exc:  # a reader bug must not become a traceback or lose the current data
+        ss.upload_error = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
+        return
+    data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
+    use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile)
+    st.rerun()  # draw the page (data name, notes) for the new table from the top
 
 
 # --- sidebar --------------------------------------------------------------------------------------
@@ -83,12 +94,14 @@ def sidebar() -> None:
     with st.sidebar:
         st.markdown("### Data")
         st.markdown(f"**{state.plain(ss.data['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
+        intake.intake_notes(ss.data)
         upload = st.file_uploader(
             "Load your own table",
             type=["csv", "tsv", "txt", "xlsx"],
             key=f"upload_{ss.get('uploader_version', 0)}",
-            help="CSV, TSV or Excel (.xlsx). The file is read, never changed.",
+            help=f"CSV, TSV or Excel (.xlsx), up to {intake.upload_cap()[0]:g} MB. The file is read, never changed.",
         )
+        intake.cap_note()
         if upload is not None:
             take_upload(upload)
         if ss.get("upload_error"):
@@ -130,6 +143,7 @@ def variables_grid() -> pd.DataFrame:
         "worked out for: `+10%` (relative), `+1` (in the variable's units), `0->1` or `Coast->Inland` "
         "(from one value to another). Leave it blank for a sensible default."
     )
+    intake.suggestion_button(restart_grid)
     extra = sorted(set(ss.grid_base["transform"].dropna()) - set(state.REGRESSOR_TRANSFORMS))
     options = state.REGRESSOR_TRANSFORMS + extra
     # Tall enough to show every row of a typical file without an inner scrollbar.
@@ -171,6 +185,7 @@ def variables_grid() -> pd.DataFrame:
         ss.previous_grid = resolved
         st.rerun()
     ss.previous_grid = grid
+    intake.keep_locked_out(grid, restart_grid)
     levels = state.category_levels(ss.data["frame"], grid)
     if levels:
         st.caption(

@@ -18,7 +18,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import charts, state, tables
+from app import charts, intake, state, tables
 
 VIEWS = [
     "Coefficients",
@@ -28,6 +28,7 @@ VIEWS = [
     "Residual checks",
     "Compare models",
     "Predict",
+    "Column profiles",
 ]
 # What every refit computes: the header, the coefficients, the effects and the gap curves.
 BASE_PARTS = frozenset({"terms", "fit", "effects", "gap_curves"})
@@ -124,6 +125,7 @@ def show(ctx: Context) -> None:
             "Residual checks": checks_view,
             "Compare models": compare_view,
             "Predict": predict_view,
+            "Column profiles": intake.profiles_view,
         }[view or VIEWS[0]](ctx)
     except Exception as exc:  # a core bug must not become a traceback on screen
         failed(exc)

@@ -107,6 +107,7 @@ def test_changing_a_transform_in_the_grid_refits() -> None:
 def test_an_error_keeps_the_last_good_results_on_screen() -> None:
     at = start()
     good = coefficients(at)
+    at.checkbox(key="unlock_locked").check().run()  # kiosk_id is an identifier, locked out by default
     edit_grid(at, {"kiosk_id": {"role": "regressor", "transform": "level"}})
     assert at.error, "a text column used as a number must show an error"
     assert "kiosk_id" in shown(at.error[0].value)
@@ -195,7 +196,7 @@ def test_an_upload_gets_a_default_model_and_the_demo_can_come_back() -> None:
     assert at.session_state["data"]["name"] == "shops.csv"
     assert "sales explained by" in texts(at)
     assert "store_id" not in " ".join(coefficients(at)["Term"])
-    at.button[0].click().run()
+    at.sidebar.button[0].click().run()  # back to the demo data
     assert at.session_state["data"]["id"].startswith("demo:")
     assert "log of drink_price" in set(coefficients(at)["Term"])
 

@@ -1,0 +1,514 @@
+"""Getting a table in, and the advisor on screen.
+
+- reading an upload (and, for a workbook, the chosen sheet) once per file, with the notes on
+  what reading changed and the column profiles of ``core.profile``;
+- the app's own cap on upload size (``FORMWISE_MAX_UPLOAD_MB``), below Streamlit's hard cap
+  ``server.maxUploadSize``;
+- the "Column profiles" view: what each column holds, its shape, and the transform the advisor
+  suggests with its reasons and evidence;
+- "Apply every suggestion", and identifier and date columns kept out of the model unless the
+  user asks for them.
+
+The rules live in ``core.reader`` and ``core.profile``; the pure helpers here (no widgets) only
+turn them into grid edits and words, so they are tested without a browser. User text (column
+names, notes, values) is shown through ``st.text`` and ``st.dataframe``, which render no
+Markdown, or escaped for figures.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+from collections.abc import Callable, Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import plotly.graph_objects as go
+import streamlit as st
+
+from app import charts, state
+from core.profile import profile_table
+from core.reader import read_table_with_notes
+
+CAP_VARIABLE = "FORMWISE_MAX_UPLOAD_MB"
+DEFAULT_CAP_MB = 200.0
+UNLOCK_KEY = "unlock_locked"
+VIEW_NAME = "Column profiles"
+_MB = 1024 * 1024
+
+KIND_WORDS = {
+    "money": "money amount",
+    "count": "count",
+    "duration_years": "duration in years",
+    "share": "share (0 to 1)",
+    "percent": "percentage",
+    "binary": "0/1 indicator",
+    "category": "categories",
+    "continuous": "measurement",
+    "identifier": "identifier",
+    "date": "dates",
+    "text": "free text",
+}
+_LOCKED_PLURAL = {"identifier": "identifiers", "date": "dates"}
+# Flags that say more than the kind (checked in this order).
+_FLAG_WORDS = (
+    ("empty", "empty"),
+    ("constant", "constant"),
+    ("row_number", "row number"),
+    ("time_index", "time index"),
+    ("calendar_year", "calendar year"),
+    ("mixed_text", "numbers mixed with text"),
+)
+
+
+# --- reading, cached on the bytes ----------------------------------------------------------------
+@st.cache_data(max_entries=8, show_spinner="Reading the table…")
+def read_upload(raw: bytes, name: str, sheet: str | None = None) -> tuple[pd.DataFrame, list[str], dict[str, Any]]:
+    """The table, the notes on every conversion made while reading, and the column profiles.
+
+    Raises ``core.DataError`` (worded for the user) when the bytes are not a usable table."""
+    frame, notes = read_table_with_notes(raw, name=name, sheet=sheet)
+    # Header cells such as 2024 can arrive as numbers; the grid and the spec name columns as text.
+    frame = frame.rename(columns=str)
+    return frame, notes, profile_table(frame, notes)
+
+
+@st.cache_data(max_entries=8, show_spinner=False)
+def sheet_names(raw: bytes) -> list[str]:
+    """The sheets of an .xlsx workbook; empty when it cannot be opened (the reader then says why)."""
+    try:
+        return [str(s) for s in pd.ExcelFile(io.BytesIO(raw), engine="openpyxl").sheet_names]
+    except Exception:  # openpyxl raises many unrelated types for a broken workbook
+        return []
+
+
+def sheet_picker(name: str, raw: bytes, file_id: str) -> str | None:
+    """For a workbook with several sheets, a picker (first sheet by default); else None."""
+    if not name.lower().endswith(".xlsx"):
+        return None
+    sheets = sheet_names(raw)
+    if len(sheets) < 2:
+        return None
+    return st.selectbox(
+        "Sheet",
+        sheets,
+        key=f"sheet_{file_id}",
+        help=f"This workbook has {len(sheets)} sheets; pick the one that holds the table.",
+    )
+
+
+# --- the size cap ----------------------------------------------------------------------------------
+def upload_cap(environ: Mapping[str, str] | None = None) -> tuple[float, str | None]:
+    """The app's cap on upload size in MB, and a note when the setting could not be used."""
+    environ = os.environ if environ is None else environ
+    text = (environ.get(CAP_VARIABLE) or "").strip()
+    if not text:
+        return DEFAULT_CAP_MB, None
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not math.isfinite(value) or value <= 0:
+        return DEFAULT_CAP_MB, (
+            f"{CAP_VARIABLE}={text} is not a positive number of megabytes; the default of {_mb_words(DEFAULT_CAP_MB)} applies."
+        )
+    return value, None
+
+
+def size_problem(name: str, n_bytes: int, environ: Mapping[str, str] | None = None) -> str | None:
+    """Why a file of ``n_bytes`` is refused, with how to raise the limit; None when it fits."""
+    cap, _ = upload_cap(environ)
+    if n_bytes <= cap * _MB:
+        return None
+    bigger = max(DEFAULT_CAP_MB, math.ceil(2 * n_bytes / _MB / 100) * 100)
+    return (
+        f"'{name}' is {_size_words(n_bytes)}, more than the {_mb_words(cap)} Formwise accepts. To load bigger files, set "
+        f"the environment variable {CAP_VARIABLE} (for example {CAP_VARIABLE}={bigger:.0f}) and raise Streamlit's own "
+        f"limit to match: start the app with --server.maxUploadSize {bigger:.0f}, or set maxUploadSize under [server] "
+        "in .streamlit/config.toml."
+    )
+
+
+def _mb_words(mb: float) -> str:
+    return f"{mb:,.0f} MB" if mb >= 10 or float(mb).is_integer() else f"{mb:g} MB"
+
+
+def _size_words(n_bytes: int) -> str:
+    if n_bytes >= 0.1 * _MB:
+        return f"{n_bytes / _MB:,.1f} MB"
+    if n_bytes >= 1024:
+        return f"{n_bytes / 1024:,.1f} KB"
+    return f"{n_bytes:,} bytes"
+
+
+# --- pure helpers: suggestions, locks, words -----------------------------------------------------------
+def locked_columns(profile: dict[str, Any] | None) -> dict[str, str]:
+    """Identifier and date columns (name -> kind): not variables for the model by default."""
+    return {c: e["kind"] for c, e in state.profile_entries(profile).items() if e.get("kind") in state.LOCKED_KINDS}
+
+
+def lock_roles(grid: pd.DataFrame, locked: Mapping[str, str]) -> tuple[pd.DataFrame, list[str]]:
+    """The grid with every locked column back to 'not used', and the columns that moved."""
+    moved = [
+        i
+        for i in grid.index
+        if state._text(grid.at[i, "column"]) in locked and state._text(grid.at[i, "role"]) not in ("", "not used")
+    ]
+    if not moved:
+        return grid, []
+    fixed = grid.copy()
+    for i in moved:
+        fixed.at[i, "role"] = "not used"
+    return fixed, [state._text(grid.at[i, "column"]) for i in moved]
+
+
+def apply_suggestions(grid: pd.DataFrame, profile: dict[str, Any] | None) -> tuple[pd.DataFrame, list[tuple[str, str, str]]]:
+    """Every row's transform set to the advisor's suggestion, roles kept.
+
+    Rows without a suggestion (identifiers, dates, text) keep theirs, and so does an outcome
+    whose suggestion only a regressor can take (a category). Returns the new grid and the
+    changes made as (column, old transform, new transform)."""
+    entries = state.profile_entries(profile)
+    out = grid.copy()
+    changes: list[tuple[str, str, str]] = []
+    for i in out.index:
+        column = state._text(out.at[i, "column"])
+        suggested = (entries.get(column) or {}).get("suggested_transform")
+        if not suggested:
+            continue
+        role = state._text(out.at[i, "role"])
+        allowed = state.OUTCOME_TRANSFORMS if role == "outcome" else state.REGRESSOR_TRANSFORMS
+        current = state._text(out.at[i, "transform"]) or "level"
+        if suggested in allowed and suggested != current:
+            out.at[i, "transform"] = suggested
+            changes.append((column, current, suggested))
+    return out, changes
+
+
+def arrows(text: str) -> str:
+    """The advisor's '2.2 -> 0.2' as '2.2 → 0.2' on screen."""
+    return text.replace(" -> ", " → ")
+
+
+def transform_words(code: str | None) -> str:
+    if not code:
+        return "not used"
+    return state.TRANSFORM_WORDS.get(code, code)
+
+
+def kind_words(entry: dict[str, Any]) -> str:
+    flags = set(entry.get("flags") or [])
+    for flag, words in _FLAG_WORDS:
+        if flag in flags:
+            return words
+    return KIND_WORDS.get(entry.get("kind") or "", entry.get("kind") or "")
+
+
+def note_order(notes: list[str], columns: list[str]) -> list[str]:
+    """Notes about the whole file first, then the notes on each column in the table's order."""
+
+    def position(note: str) -> int:
+        for j, column in enumerate(columns):
+            if note.startswith((f"{column}: ", f"column '{column}' ")):
+                return j + 1
+        return 0
+
+    return sorted(notes, key=position)
+
+
+def note_text(note: str, columns: list[str]) -> str:
+    """A note as a sentence; one that starts with a column name keeps the name as written."""
+    if any(note.startswith(f"{column}: ") for column in columns):
+        return note
+    return state.sentence_case(note)
+
+
+def _signed(value: float | None, digits: int = 2) -> str:
+    return "—" if value is None else f"{value:.{digits}f}".replace("-", "\u2212")
+
+
+def evidence_lines(entry: dict[str, Any], outcome: bool) -> list[str]:
+    """The numbers behind a suggestion, in words: skewness before and after a log and an IHS,
+    the rows a log would drop and, for the outcome, its Box-Cox power with the interval."""
+    lines: list[str] = []
+    skew = entry.get("skewness")
+    if skew is not None:
+        after = []
+        if entry.get("skewness_log") is not None:
+            after.append(f"{_signed(entry['skewness_log'])} after a log")
+        if entry.get("skewness_ihs") is not None:
+            after.append(f"{_signed(entry['skewness_ihs'])} after IHS")
+        lines.append(f"Skewness {_signed(skew)} as recorded" + (", " + ", ".join(after) if after else "") + " (0 is symmetric).")
+    drop = entry.get("log_would_drop") or 0
+    if entry.get("min") is not None:
+        if drop:
+            n_values = max(1, (entry.get("n") or 0) - (entry.get("n_missing") or 0))
+            lines.append(f"A log would drop {drop:,} row{'s' if drop != 1 else ''} ({drop / n_values:.0%}) holding zero or less.")
+        else:
+            lines.append("A log would drop no rows: every value is above zero.")
+    boxcox = entry.get("boxcox")
+    if outcome and boxcox and boxcox.get("lambda") is not None:
+        lines.append(
+            state.boxcox_sentence(boxcox, entry["column"])
+            + " (The column on its own; the Residual checks view works λ out given the regressors.)"
+        )
+    return lines
+
+
+def _bars(entry: dict[str, Any]) -> list[int] | None:
+    """Counts for the small bar chart: the histogram of numbers, level counts of categories."""
+    histogram = entry.get("histogram")
+    if histogram and histogram.get("counts"):
+        return [int(c) for c in histogram["counts"]]
+    if entry.get("kind") in ("category", "binary") and entry.get("top_values"):
+        return [int(v["count"]) for v in entry["top_values"]]
+    return None
+
+
+def _number(value: Any, digits: int | None = None) -> float | None:
+    """A finite float (rounded to ``digits`` significant digits, whole above 1,000) or None."""
+    if not isinstance(value, (int, float)) or not math.isfinite(value):
+        return None
+    if digits is not None:
+        value = round(value) if abs(value) >= 1000 else state.round_sig(float(value), digits)
+    return float(value) + 0.0  # no "-0"
+
+
+def _skew_value(value: Any) -> float | None:
+    number = _number(value)
+    return None if number is None else round(number, 2) + 0.0
+
+
+def profile_frame(profile: dict[str, Any], grid: pd.DataFrame | None = None) -> pd.DataFrame:
+    """One row per column for the profiles table, in the grid's order when there is a grid
+    (numbers stay numbers; blanks where a figure does not apply)."""
+    in_grid: dict[str, str] = {}
+    entries = list(profile.get("columns") or [])
+    if grid is not None:
+        order = {state._text(c): i for i, c in enumerate(grid["column"])}
+        entries.sort(key=lambda e: order.get(str(e["column"]), len(order)))
+        for row in grid.to_dict("records"):
+            role = state._text(row.get("role")) or "not used"
+            in_grid[state._text(row.get("column"))] = (
+                "not used" if role == "not used" else f"{role}: {transform_words(state._text(row.get('transform')))}"
+            )
+    rows = []
+    for entry in entries:
+        numeric = entry.get("min") is not None
+        reasons = entry.get("reasons") or []
+        rows.append(
+            {
+                "Column": entry["column"],
+                "Kind": kind_words(entry),
+                "Shape": _bars(entry),
+                "Suggested": transform_words(entry.get("suggested_transform")),
+                "Why": arrows(reasons[0]) if reasons else "",
+                "Missing": int(entry.get("n_missing") or 0),
+                "Zeros": int(entry.get("n_zero") or 0) if numeric else None,
+                "Negative": int(entry.get("n_negative") or 0) if numeric else None,
+                "Min": _number(entry.get("min"), 4),
+                "Median": _number(entry.get("median"), 4),
+                "Max": _number(entry.get("max"), 4),
+                "Skewness": _skew_value(entry.get("skewness")),
+                "Skew. after log": _skew_value(entry.get("skewness_log")),
+                "Skew. after IHS": _skew_value(entry.get("skewness_ihs")),
+                "Log drops rows": int(entry.get("log_would_drop") or 0) if numeric else None,
+                "In your grid": in_grid.get(entry["column"], ""),
+            }
+        )
+    return pd.DataFrame(rows)
+
+
+# --- on screen: sidebar and grid ---------------------------------------------------------------------
+def intake_notes(data: dict[str, Any]) -> None:
+    """Under the data name: what reading the file changed, the file's notes first."""
+    notes = data.get("notes")
+    if notes is None:
+        return
+    with st.expander("What was changed while reading"):
+        columns = [str(c) for c in data["frame"].columns]
+        ordered = note_order(list(notes), columns)
+        st.caption("\n".join(f"- {state.plain(note_text(note, columns))}" for note in ordered))
+        if len(ordered) <= 1:
+            st.caption("Nothing else needed converting.")
+
+
+def cap_note() -> None:
+    """A word under the uploader when the cap setting cannot be used."""
+    _, problem = upload_cap()
+    if problem:
+        st.caption(f"⚠ {state.plain(problem)}")
+
+
+def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
+    """'Apply every suggestion' above the grid, and what it changed on the last click."""
+    ss = st.session_state
+    if not (ss.get("data") or {}).get("profile"):
+        return
+
+    def apply() -> None:
+        grid, changes = apply_suggestions(ss.previous_grid, ss.data["profile"])
+        if changes:
+            restart(grid)
+            listed = "; ".join(f"{c}: {transform_words(old)} → {transform_words(new)}" for c, old, new in changes)
+            ss.advice_message = f"Set {len(changes)} transform{'s' if len(changes) != 1 else ''} to the suggestion: {listed}."
+        else:
+            ss.advice_message = "Every transform in the grid already follows the suggestions."
+
+    left, right = st.columns([1, 3], vertical_alignment="center")
+    with left:
+        st.button(
+            "Apply every suggestion",
+            key="apply_suggestions",
+            on_click=apply,
+            icon=":material/auto_fix_high:",
+            help="Sets each variable's transform to the one the advisor suggests (see the Column profiles view); "
+            "roles stay as they are, and any transform can be changed again in the grid.",
+        )
+    with right:
+        message = ss.pop("advice_message", None)
+        if message:
+            st.caption(state.plain(message))
+        else:
+            st.caption("The advisor's transform for each column, with its reasons, is in the Column profiles view below.")
+
+
+def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) -> None:
+    """Identifier and date columns stay 'not used' unless the user ticks the box under the grid."""
+    ss = st.session_state
+    locked = locked_columns((ss.get("data") or {}).get("profile"))
+    if not locked:
+        return
+    if not ss.get(UNLOCK_KEY):
+        fixed, moved = lock_roles(grid, locked)
+        if moved:
+            ss.lock_message = (
+                f"{state.join_words(moved)} {'holds' if len(moved) == 1 else 'hold'} "
+                f"{state.join_words(sorted({_LOCKED_PLURAL[locked[c]] for c in moved}))}, so "
+                f"{'it stays' if len(moved) == 1 else 'they stay'} out of the model. Tick "
+                "“Let me use identifier and date columns anyway” to use "
+                f"{'it' if len(moved) == 1 else 'them'}."
+            )
+            restart(fixed)
+            st.rerun()
+    message = ss.pop("lock_message", None)
+    if message:
+        st.info(state.plain(message), icon=":material/lock:")
+    names = state.plain(state.join_words(list(locked)))
+    st.checkbox(
+        "Let me use identifier and date columns anyway",
+        key=UNLOCK_KEY,
+        help=f"{names}: labels of rows rather than variables, so the grid keeps them 'not used'. An identifier can "
+        "still group rows for clustered standard errors (sidebar).",
+    )
+
+
+# --- the Column profiles view ---------------------------------------------------------------------------
+def _histogram_figure(entry: dict[str, Any]) -> go.Figure | None:
+    histogram = entry.get("histogram")
+    if not histogram:
+        return None
+    edges = np.asarray(histogram["edges"], dtype=float)
+    counts = np.asarray(histogram["counts"], dtype=float)
+    mids, widths = (edges[:-1] + edges[1:]) / 2, np.diff(edges)
+    fig = go.Figure(
+        go.Bar(
+            x=mids,
+            y=counts,
+            width=widths,
+            marker={"color": charts.SKY, "line": {"color": "white", "width": 1}},
+            hovertemplate="%{x:.4g}: %{y:,} rows<extra></extra>",
+        )
+    )
+    fig.update_layout(
+        template="plotly_white",
+        height=230,
+        margin={"l": 50, "r": 10, "t": 10, "b": 45},
+        font={"family": charts.FONT, "size": 13, "color": charts.INK},
+        xaxis={"title": {"text": charts.plain(entry["column"])}, "gridcolor": charts.GRID},
+        yaxis={"title": {"text": "rows"}, "gridcolor": charts.GRID},
+        bargap=0,
+        showlegend=False,
+    )
+    return fig
+
+
+def profiles_view(ctx: Any = None) -> None:
+    """Every column of the current data: kind, counts, range, shape and the advisor's suggestion,
+    then the reasons and evidence for one column at a time."""
+    ss = st.session_state
+    data = ss.get("data") or {}
+    profile = data.get("profile")
+    if not profile:
+        st.info("No column profiles for this data.")
+        return
+    grid = ss.get("previous_grid")
+    entries = state.profile_entries(profile)
+    outcome = state.outcome_column(grid) if grid is not None else None
+    st.caption(
+        f"{profile.get('n_rows', 0):,} rows × {len(entries)} columns. The suggestions are rules of thumb from each "
+        "column's name and values (amounts → log, zeros → IHS or levels, years and shares → levels); change any of "
+        "them in the grid, or set them all with “Apply every suggestion” above it. Bars: how the values are spread "
+        "(for categories, how often each level occurs)."
+    )
+    table = profile_frame(profile, grid)
+    st.dataframe(
+        table,
+        hide_index=True,
+        width="stretch",
+        height=min(38 + 35 * len(table), 560),
+        key="profile_table",
+        column_config={
+            "Column": st.column_config.TextColumn("Column", pinned=True, width=150),
+            "Kind": st.column_config.TextColumn("Kind", width=125),
+            "Shape": st.column_config.BarChartColumn(
+                "Shape", y_min=0, width=100, color=charts.BLUE, help="How the values spread (categories: rows per level)."
+            ),
+            "Suggested": st.column_config.TextColumn("Suggested", width=115),
+            "Why": st.column_config.TextColumn(
+                "Why", width=300, help="The advisor's first reason; all reasons and the evidence are below the table."
+            ),
+            "Missing": st.column_config.NumberColumn("Missing", format="localized", width=70),
+            "Zeros": st.column_config.NumberColumn("Zeros", format="localized", width=65),
+            "Negative": st.column_config.NumberColumn("Negative", format="localized", width=75),
+            "Min": st.column_config.NumberColumn("Min", format="localized", width=75),
+            "Median": st.column_config.NumberColumn("Median", format="localized", width=75),
+            "Max": st.column_config.NumberColumn("Max", format="localized", width=80),
+            "Skewness": st.column_config.NumberColumn(
+                "Skewness", format="%.2f", width=80, help="0 is symmetric; above 1, a long right tail."
+            ),
+            "Skew. after log": st.column_config.NumberColumn("Skew. after log", format="%.2f", width=105),
+            "Skew. after IHS": st.column_config.NumberColumn("Skew. after IHS", format="%.2f", width=105),
+            "Log drops rows": st.column_config.NumberColumn(
+                "Log drops rows", format="localized", width=105, help="Rows at zero or below, which a log cannot take."
+            ),
+            "In your grid": st.column_config.TextColumn("In your grid", width=170),
+        },
+        placeholder="–",
+    )
+
+    st.markdown("##### Why this suggestion")
+    names = list(entries)
+    if ss.get("profile_pick") not in names:
+        ss.profile_pick = outcome if outcome in names else names[0]
+    pick = st.selectbox("Column", names, key="profile_pick")
+    entry = entries[pick]
+    with st.container(border=True):
+        figure = _histogram_figure(entry)
+        left, right = st.columns([2, 3]) if figure is not None else (None, st.container())
+        if left is not None and figure is not None:
+            with left:
+                st.plotly_chart(figure, theme=None, config=charts.CONFIG, key="profile_histogram")
+        with right:
+            suggested = transform_words(entry.get("suggested_transform"))
+            where = " · the outcome in your grid" if pick == outcome else ""
+            st.markdown(f"**Suggested: {suggested}** · {kind_words(entry)}{where}")
+            reasons = [state.sentence_case(arrows(r)) for r in entry.get("reasons") or []]
+            if reasons:
+                st.markdown("\n".join(f"- {state.plain(r)}" for r in reasons))
+            lines = evidence_lines(entry, outcome=pick == outcome)
+            if lines:
+                st.markdown("**Evidence**")
+                st.markdown("\n".join(f"- {state.plain(line)}" for line in lines))
