@@ -75,7 +75,6 @@ def read_upload(raw: bytes, name: str, sheet: str | None = None) -> tuple[pd.Dat
     return frame, notes, profile_table(frame, notes)
 
 
-@st.cache_data(max_entries=8, show_spinner=False)
 def sheet_names(raw: bytes) -> list[str]:
     """The sheets of an .xlsx workbook; empty when it cannot be opened (the reader then says why)."""
     try:
@@ -84,17 +83,24 @@ def sheet_names(raw: bytes) -> list[str]:
         return []
 
 
-def sheet_picker(name: str, raw: bytes, file_id: str) -> str | None:
-    """For a workbook with several sheets, a picker (first sheet by default); else None."""
-    if not name.lower().endswith(".xlsx"):
+def sheet_picker(upload: Any) -> str | None:
+    """For an uploaded workbook with several sheets, a picker (first sheet by default); else None.
+
+    The sheet list is kept per upload in the session, so a rerun neither reopens the workbook
+    nor hashes its bytes."""
+    if not upload.name.lower().endswith(".xlsx"):
         return None
-    sheets = sheet_names(raw)
+    ss = st.session_state
+    known = ss.get("sheet_list")
+    if not known or known[0] != upload.file_id:
+        known = ss.sheet_list = (upload.file_id, sheet_names(upload.getvalue()))
+    sheets = known[1]
     if len(sheets) < 2:
         return None
     return st.selectbox(
         "Sheet",
         sheets,
-        key=f"sheet_{file_id}",
+        key=f"sheet_{upload.file_id}",
         help=f"This workbook has {len(sheets)} sheets; pick the one that holds the table.",
     )
 

@@ -63,9 +63,8 @@ def take_upload(upload: Any) -> None:
     """Switch to an uploaded file (or another sheet of it) once; a file that is too big or
     cannot be read leaves the current data and results in place, with the reason on screen."""
     ss = st.session_state
-    raw = upload.getvalue()
-    too_big = intake.size_problem(upload.name, len(raw))
-    sheet = None if too_big else intake.sheet_picker(upload.name, raw, upload.file_id)
+    too_big = intake.size_problem(upload.name, upload.size)
+    sheet = None if too_big else intake.sheet_picker(upload)
     if (upload.file_id, sheet) == ss.get("upload_seen"):
         return
     ss.upload_seen = (upload.file_id, sheet)
@@ -73,11 +72,14 @@ def take_upload(upload: Any) -> None:
     if too_big:
         ss.upload_error = too_big
         return
+    raw = upload.getvalue()
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet)
         spec = state.default_spec(frame, profile)
     except (core.FormwiseError, state.GridError) as exc:
-        ss.upload_error = f"Could not use '{upload.name}': {exc}"
+        # Most reader messages name the file already; say it once.
+        said = str(exc)
+        ss.upload_error = state.sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
         ss.upload_error = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
