@@ -6,6 +6,7 @@ with a message saying how to enable them. Screenshots go to tests/screenshots/ (
 
 from __future__ import annotations
 
+import random
 import time
 from collections.abc import Iterator
 from pathlib import Path
@@ -132,4 +133,50 @@ def test_hostile_names_do_not_run_script(page, tmp_path: Path) -> None:
     assert page.locator("img[src='x']").count() == 0
     assert page.locator("b[onmouseover]").count() == 0
     _shot(page, "hostile")
+    assert page.problems == []
+
+
+def test_markdown_in_names_stays_text(page, tmp_path: Path) -> None:
+    """Column names and levels written as Markdown (an image as a tracking pixel, a javascript:
+    link, a bare URL, a colour directive, LaTeX) are shown as the text they are."""
+    names = [
+        "![px](http://127.0.0.1:9/p.png)",
+        "[click](javascript:alert(1))",
+        "http://example.invalid/x",
+        ":red[alarm]",
+        "$x^2$",
+    ]
+    data = tmp_path / "www.example.invalid.csv"
+    draw = random.Random(5)
+    rows = ["sales," + ",".join(names) + ",zone"]
+    for i in range(60):
+        values = [f"{draw.uniform(1 + j, 5 + 2 * j):.3f}" for j in range(len(names))]
+        zone = "[lvl](http://example.invalid/l)" if i % 2 else ":blue[b]"
+        rows.append(f"{draw.lognormvariate(4, 0.3):.2f},{','.join(values)},{zone}")
+    data.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    page.locator('input[type="file"]').first.set_input_files(str(data))
+    # The file name is shown with an invisible word joiner after 'www' (no autolink), so the
+    # text is compared without it.
+    page.wait_for_function(
+        "() => document.body.innerText.replace(/\\u2060/g, '').includes('www.example.invalid.csv')", timeout=60_000
+    )
+    page.get_by_text(READY_TEXT).first.wait_for(timeout=60_000)
+    _wait_for_rerun(page)
+
+    def no_injected_markup(where: str) -> None:
+        assert page.locator("img[src*='127.0.0.1:9']").count() == 0, where
+        assert page.locator("a[href^='javascript:']").count() == 0, where
+        assert page.locator("a[href*='example.invalid']").count() == 0, where
+        assert page.locator(".katex").count() == 0, where
+        _no_error_text(page)
+
+    no_injected_markup("coefficients")
+    # The names read as written, in the results (not only in the grid's canvas).
+    main_text = page.locator('[data-testid="stMain"]').inner_text().replace("\u2060", "")
+    assert ":red[alarm]" in main_text and "$x^2$" in main_text and "[click](javascript:alert(1))" in main_text
+    for view in ("Effects of changes", "Effect curves", "Predict"):
+        page.get_by_role("radio", name=view, exact=True).click()
+        _wait_for_rerun(page)
+        no_injected_markup(view)
+    _shot(page, "markdown-names")
     assert page.problems == []
