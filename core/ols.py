@@ -6,12 +6,16 @@ accuracy users get at scale):
 1. Weighted least squares reduces to OLS on sqrt(w)-scaled rows.
 2. Every column but the intercept is centred at its (weighted) mean and scaled to unit
    length. Centring removes the near-collinearity with the intercept that makes raw normal
-   equations fail on data such as Longley's; scaling equilibrates the Gram matrix.
-3. The Gram matrix G = Z'Z is factored by Cholesky and the solution is improved by one step
-   of iterative refinement on the residuals, b <- b + G^{-1} Z'(y - Zb) (Björck 1967,
-   "Iterative refinement of linear least squares solutions I", BIT 7; Golub & Van Loan,
-   Matrix Computations, 4th ed., §5.3.7). This costs two passes over the data, one n·k²
-   product and one n·k product, against n·k² for a QR factorisation that also forms Q.
+   equations fail on data such as Longley's; scaling equilibrates the Gram matrix. The
+   centred Gram matrix C = Σ_c Z_c'Z_c and Z'y are summed over row chunks Z_c of the centred
+   rows (a chunk at a time, never a centred copy of X); the scaling D = diag(sqrt(C_jj)) is
+   then applied to C itself, G = D⁻¹CD⁻¹, which is the Gram matrix of the scaled columns.
+3. G is factored by Cholesky and the solution is improved by one step of iterative
+   refinement on the residuals, b <- b + G^{-1} Z'(y - Zb) (Björck 1967, "Iterative
+   refinement of linear least squares solutions I", BIT 7; Golub & Van Loan, Matrix
+   Computations, 4th ed., §5.3.7), the residuals again formed chunk by chunk. This costs two
+   passes over the data, one n·k² product and one n·k product, against n·k² for a QR
+   factorisation that also forms Q.
 4. Exact or near-exact collinearity is found from the eigenvalues of the scaled, centred
    Gram matrix; its condition number is reported (Belsley, Kuh & Welsch 1980, ch. 3).
 
@@ -36,6 +40,9 @@ from core.errors import DataError
 COLLINEAR_EIGEN = 1e-14
 # Condition number of the centred, scaled design above which results are flagged.
 NEAR_COLLINEAR = 1e3
+# Rows per chunk in passes over the data: 65,536 x 13 columns is about 7 MB, small enough to
+# stay in cache-friendly sizes and never to hold a second full copy of X.
+CHUNK_ROWS = 65_536
 
 
 @dataclass
@@ -59,24 +66,43 @@ class OLSFit:
         return self.n - self.k
 
 
+def row_chunks(n: int, size: int = CHUNK_ROWS) -> range:
+    """Start rows of the chunks that passes over the data work on."""
+    return range(0, n, size)
+
+
 def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, names: list[str] | None = None) -> OLSFit:
-    """Least squares of y on X (first column the intercept), optionally weighted."""
+    """Least squares of y on X (first column the intercept), optionally weighted.
+
+    X is read in row chunks (Fortran order suits it best; any layout works) and never copied
+    whole: the centred, weighted chunk Z_c = sqrt(w)·(X_c - m) is formed, added into G and
+    Z'y, and dropped.
+    """
     n, k = X.shape
     root_w = np.sqrt(weights) if weights is not None else None
     w_sum = float(weights.sum()) if weights is not None else float(n)
-
     means = (X[:, 1:].T @ weights / w_sum) if weights is not None else X[:, 1:].mean(axis=0)
-    Z = X.copy(order="A")  # keeps the design's (Fortran) layout
-    Z[:, 1:] -= means
-    ys = y
-    if root_w is not None:
-        Z *= root_w[:, None]
-        ys = y * root_w
-    scale = np.sqrt(np.einsum("ij,ij->j", Z, Z))
-    scale[scale == 0] = 1.0
-    Z /= scale
+    shift = np.concatenate([[0.0], means])  # the intercept column is not centred
+    ys = y * root_w if root_w is not None else y
 
-    gram = Z.T @ Z
+    def centred(start: int) -> np.ndarray:
+        chunk = X[start : start + CHUNK_ROWS] - shift
+        if root_w is not None:
+            chunk *= root_w[start : start + CHUNK_ROWS, None]
+        return chunk
+
+    # Pass 1: G = Z'Z and Z'y of the centred (unscaled) design, summed over row chunks.
+    G = np.zeros((k, k))
+    zy = np.zeros(k)
+    for start in row_chunks(n):
+        chunk = centred(start)
+        G += chunk.T @ chunk
+        zy += chunk.T @ ys[start : start + CHUNK_ROWS]
+    # Unit-length scaling: D = diag(sqrt(G_jj)), scaled Gram D^{-1} G D^{-1}.
+    scale = np.sqrt(np.diag(G)).copy()
+    scale[scale == 0] = 1.0
+    gram = G / scale[:, None] / scale[None, :]
+
     eig_vals, eig_vecs = np.linalg.eigh(gram[1:, 1:]) if k > 1 else (np.ones(1), np.ones((1, 1)))
     top = float(eig_vals.max())
     if k > 1 and eig_vals.min() <= COLLINEAR_EIGEN * top * k:
@@ -90,8 +116,14 @@ def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, nam
     condition = float(np.sqrt(top / eig_vals.min())) if k > 1 else 1.0
 
     factor = sla.cho_factor(gram, lower=False, check_finite=False)
-    b_scaled = sla.cho_solve(factor, Z.T @ ys, check_finite=False)
-    b_scaled += sla.cho_solve(factor, Z.T @ (ys - Z @ b_scaled), check_finite=False)
+    b_scaled = sla.cho_solve(factor, zy / scale, check_finite=False)
+    # Pass 2, one step of iterative refinement: b <- b + G^{-1} Z'(y - Zb), in scaled units.
+    step = b_scaled / scale
+    correction = np.zeros(k)
+    for start in row_chunks(n):
+        chunk = centred(start)
+        correction += chunk.T @ (ys[start : start + CHUNK_ROWS] - chunk @ step)
+    b_scaled += sla.cho_solve(factor, correction / scale, check_finite=False)
 
     coef = b_scaled / scale
     coef[0] -= means @ coef[1:]
