@@ -232,7 +232,7 @@ def note_text(note: str, columns: list[str]) -> str:
 
 
 def _signed(value: float | None, digits: int = 2) -> str:
-    return "—" if value is None else f"{value:.{digits}f}".replace("-", "\u2212")
+    return "—" if value is None else state._signed(value, digits)
 
 
 def evidence_lines(entry: dict[str, Any], outcome: bool) -> list[str]:
@@ -431,7 +431,7 @@ def _histogram_figure(entry: dict[str, Any]) -> go.Figure | None:
     fig.update_layout(
         template="plotly_white",
         height=230,
-        margin={"l": 50, "r": 10, "t": 10, "b": 45},
+        margin={"l": 60, "r": 15, "t": 10, "b": 45},
         font={"family": charts.FONT, "size": 13, "color": charts.INK},
         xaxis={"title": {"text": charts.plain(entry["column"])}, "gridcolor": charts.GRID},
         yaxis={"title": {"text": "rows"}, "gridcolor": charts.GRID},
@@ -454,7 +454,8 @@ def profiles_view(ctx: Any = None) -> None:
     entries = state.profile_entries(profile)
     outcome = state.outcome_column(grid) if grid is not None else None
     st.caption(
-        f"{profile.get('n_rows', 0):,} rows × {len(entries)} columns. The suggestions are rules of thumb from each "
+        f"**{state.plain(data.get('name', ''))}**: {profile.get('n_rows', 0):,} rows × {len(entries)} columns. "
+        "The suggestions are rules of thumb from each "
         "column's name and values (amounts → log, zeros → IHS or levels, years and shares → levels); change any of "
         "them in the grid, or set them all with “Apply every suggestion” above it. Bars: how the values are spread "
         "(for categories, how often each level occurs)."

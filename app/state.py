@@ -862,7 +862,8 @@ def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[di
 
 
 def _signed(value: float, digits: int = 2) -> str:
-    return f"{value:.{digits}f}".replace("-", "\u2212")
+    # Rounded first, so a value that rounds to zero shows as 0.00, not −0.00.
+    return f"{round(value, digits) + 0.0:.{digits}f}".replace("-", "\u2212")
 
 
 def skew_words(before: float | None, after: float | None, zeros: int = 0) -> str:
