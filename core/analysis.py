@@ -170,7 +170,7 @@ def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[De
     w = design.weights if design.weights is not None else 1.0
     root_mu = np.sqrt(w * ppml.mu)
     u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
-    cov, df = sandwich(ppml.bread, design.X * root_mu[:, None], u, model_spec.covariance, design.groups, 1.0)
+    cov, df = sandwich(ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, row_scale=root_mu)
     r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
     fit = replace(
         screen,

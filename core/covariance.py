@@ -13,42 +13,60 @@ leverage):
              factor as in Cameron & Miller 2015, J. Human Resources 50(2), §VI.B)
 
 Degrees of freedom for t-based intervals: n-k, and G-1 for cluster (Cameron & Miller 2015, §VI.C).
+
+Every meat is a sum over rows, so it is accumulated over row chunks (``core.ols.CHUNK_ROWS``):
+for a chunk, the scores x̃ᵢ·uᵢ (divided by (1-hᵢ)^{1/2} or (1-hᵢ) for HC2/HC3) are formed
+and S'S, or for clusters the per-group sums of the scores, is added; no n x k array of scores
+or of weighted rows is held. The rows x̃ᵢ = rᵢ·xᵢ are passed as X and the row factors rᵢ
+(sqrt(w) for weighted least squares, sqrt(μ̂) for PPML).
 """
 
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from core.errors import DataError
-from core.ols import OLSFit
+from core.ols import CHUNK_ROWS, OLSFit, row_chunks
 
 
 def leverage(X: np.ndarray, bread: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
-    """Diagonal of the hat matrix, hᵢ = x̃ᵢ'(X'WX)^{-1}x̃ᵢ."""
-    h = np.einsum("ij,ij->i", X @ bread, X)
+    """Diagonal of the hat matrix, hᵢ = x̃ᵢ'(X'WX)^{-1}x̃ᵢ = wᵢ·xᵢ'(X'WX)^{-1}xᵢ, by row chunks."""
+    n = X.shape[0]
+    h = np.empty(n)
+    for start in row_chunks(n):
+        chunk = X[start : start + CHUNK_ROWS]
+        h[start : start + CHUNK_ROWS] = np.einsum("ij,ij->i", chunk @ bread, chunk)
     return h * weights if weights is not None else h
 
 
 def covariance(fit: OLSFit, X: np.ndarray, kind: str, groups: np.ndarray | None = None) -> tuple[np.ndarray, int]:
     """Covariance of least-squares coefficients and the degrees of freedom for t intervals."""
-    u = fit.resid if fit.weights is None else fit.resid * np.sqrt(fit.weights)
-    Xw = X if fit.weights is None else X * np.sqrt(fit.weights)[:, None]
-    return sandwich(fit.xtx_inv, Xw, u, kind, groups, fit.sigma**2)
+    root_w = np.sqrt(fit.weights) if fit.weights is not None else None
+    u = fit.resid if root_w is None else fit.resid * root_w
+    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, row_scale=root_w)
 
 
 def sandwich(
-    bread: np.ndarray, Xw: np.ndarray, u: np.ndarray, kind: str, groups: np.ndarray | None, scale: float
+    bread: np.ndarray,
+    Xw: np.ndarray,
+    u: np.ndarray,
+    kind: str,
+    groups: np.ndarray | None,
+    scale: float,
+    row_scale: np.ndarray | None = None,
 ) -> tuple[np.ndarray, int]:
-    """V = B·M·B for rows x̃ᵢ (``Xw``) and residuals uᵢ; ``scale`` is s² for the classical type."""
+    """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
+    ``scale`` is s² for the classical type."""
     n, k = Xw.shape
     if kind == "classical":
         return scale * bread, n - k
-    if kind in ("HC0", "HC1"):
-        scores = Xw * u[:, None]
-        factor = n / (n - k) if kind == "HC1" else 1.0
-        return factor * (bread @ (scores.T @ scores) @ bread), n - k
+    if kind not in ("HC0", "HC1", "HC2", "HC3", "cluster"):
+        raise DataError(f"unknown covariance '{kind}'; use classical, HC0, HC1, HC2, HC3 or cluster.")
+    # Score factor per row: x̃ᵢ·uᵢ = xᵢ·(rᵢ·uᵢ).
+    factor = u if row_scale is None else row_scale * u
     if kind in ("HC2", "HC3"):
-        h = np.einsum("ij,ij->i", Xw @ bread, Xw)
+        h = leverage(Xw, bread, None if row_scale is None else row_scale * row_scale)
         if np.any(h >= 1 - 1e-10):
             rows = np.flatnonzero(h >= 1 - 1e-10)[:5]
             raise DataError(
@@ -56,8 +74,7 @@ def sandwich(
                 "(leverage 1). Use HC1 or classical standard errors, or drop those rows."
             )
         power = 1.0 if kind == "HC2" else 2.0
-        scores = Xw * (u / (1.0 - h) ** (power / 2.0))[:, None]
-        return bread @ (scores.T @ scores) @ bread, n - k
+        factor = factor / (1.0 - h) ** (power / 2.0)
     if kind == "cluster":
         if groups is None:
             raise DataError("cluster-robust standard errors need a cluster column; name one in 'cluster'.")
@@ -67,13 +84,29 @@ def sandwich(
             raise DataError(
                 "the cluster column has a single group; cluster-robust errors need at least two groups (many more are better)."
             )
-        scores = Xw * u[:, None]
-        summed = np.column_stack([np.bincount(codes, weights=scores[:, j], minlength=n_groups) for j in range(k)])
-        factor = n_groups / (n_groups - 1) * (n - 1) / (n - k)
-        return factor * (bread @ (summed.T @ summed) @ bread), n_groups - 1
-    raise DataError(f"unknown covariance '{kind}'; use classical, HC0, HC1, HC2, HC3 or cluster.")
+        summed = np.zeros((n_groups, k))
+        for start in row_chunks(n):
+            scores = Xw[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
+            part = codes[start : start + CHUNK_ROWS]
+            for j in range(k):
+                summed[:, j] += np.bincount(part, weights=scores[:, j], minlength=n_groups)
+        small_sample = n_groups / (n_groups - 1) * (n - 1) / (n - k)
+        return small_sample * (bread @ (summed.T @ summed) @ bread), n_groups - 1
+    meat = np.zeros((k, k))
+    for start in row_chunks(n):
+        scores = Xw[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
+        meat += scores.T @ scores
+    small_sample = n / (n - k) if kind == "HC1" else 1.0
+    return small_sample * (bread @ meat @ bread), n - k
 
 
 def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    uniques, codes = np.unique(np.asarray(groups).astype(str), return_inverse=True)
+    """Group codes numbered in the sorted order of the groups' text, as np.unique numbers them;
+    the distinct values are found by hashing (pandas.factorize), only they are sorted."""
+    values = np.asarray(groups)
+    if values.dtype == object and pd.api.types.infer_dtype(values, skipna=False) == "string":
+        codes, distinct = pd.factorize(values)
+        uniques, position = np.unique(np.asarray(distinct, dtype=object).astype(str), return_inverse=True)
+        return position.ravel()[codes], uniques
+    uniques, codes = np.unique(values.astype(str), return_inverse=True)
     return codes.ravel(), uniques
