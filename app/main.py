@@ -21,7 +21,7 @@ import pandas as pd  # noqa: E402
 import streamlit as st  # noqa: E402
 
 import core  # noqa: E402
-from app import intake, state, views  # noqa: E402
+from app import cautions, intake, state, views  # noqa: E402
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
@@ -257,14 +257,8 @@ def show_results(good: dict[str, Any]) -> None:
         "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
         "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
     )
-    with st.expander("More on reading these results"):
-        for caution in result.get("cautions") or []:
-            st.markdown(f"- {caution}")
-        st.markdown(
-            "- R² is measured on the scale of the outcome as transformed, so it cannot be compared between "
-            "a log and a level outcome."
-        )
     views.show(views.Context(result=result, spec=spec, frame=good["frame"], data_id=good["data_id"], data_name=data_name))
+    cautions.section(result)
 
 
 # --- page ------------------------------------------------------------------------------------------

@@ -1,0 +1,58 @@
+"""The Cautions section under the results: what the numbers can and cannot say.
+
+The wording is the report's (``core.analysis.CAUTIONS`` via the result, and
+``core.report.CAUTION_REVIEW``), so the screen and the HTML report say the same; small samples
+get their own line here and there.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import streamlit as st
+
+from app import state
+from core.report import CAUTION_REVIEW
+
+# Below these the estimates are fragile (common rules of thumb, as in core's warning).
+SMALL_N = 30
+ROWS_PER_COEFFICIENT = 10
+
+
+def sample_lines(result: dict[str, Any]) -> list[str]:
+    """A line when the sample is small: fewer than 30 rows, or fewer than 10 rows for each
+    coefficient (intercept included)."""
+    n = result.get("n_obs") or 0
+    k = len(result.get("terms") or []) or None
+    lines = []
+    if n < SMALL_N:
+        lines.append(f"Small sample: {n} rows. Treat every figure as fragile.")
+    if k and n < ROWS_PER_COEFFICIENT * k:
+        lines.append(
+            f"Few rows for the model's size: {n} rows for {k} coefficients, fewer than {ROWS_PER_COEFFICIENT} "
+            "per coefficient. Estimates, intervals and tests are fragile; a smaller model may be more honest."
+        )
+    return lines
+
+
+def lines(result: dict[str, Any]) -> list[str]:
+    """Every caution for this result, in the report's words."""
+    return [
+        *(result.get("cautions") or []),
+        "R² is measured on the scale of the outcome as transformed, so it cannot be compared between a log and a "
+        "level outcome; the Compare view uses measures on the original scale.",
+        *sample_lines(result),
+        CAUTION_REVIEW,
+    ]
+
+
+def section(result: dict[str, Any]) -> None:
+    """The visible Cautions box; small-sample lines stand out as warnings."""
+    small = set(sample_lines(result))
+    with st.container(border=True, key="cautions"):
+        st.markdown("##### Cautions")
+        for line in lines(result):
+            if line in small:
+                st.warning(state.plain(line), icon=":material/warning:")
+            else:
+                st.markdown(f"- {state.plain(line)}")
