@@ -310,23 +310,52 @@ def _outside(x: np.ndarray, x0: float, x1: float) -> bool:
     return bool(min(x0, x1) < low or max(x0, x1) > high)
 
 
+def _average_rows(n: int, limit: int) -> np.ndarray:
+    """The rows the sample average is taken over: all of them, or a seeded random sample."""
+    if n <= limit:
+        return np.arange(n)
+    return np.sort(np.random.default_rng(0).choice(n, limit, replace=False))
+
+
 def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float) -> float | None:
     """The effect averaged over the sample's rows (each row's own values, the change applied
     to it), where it differs from the effect at the reference point; else None. Large samples
-    are averaged over a seeded random sample of rows (see ``_AVERAGE_ROWS``)."""
+    are averaged over a seeded random sample of rows (see ``_AVERAGE_ROWS``).
+
+    For level and log outcomes a row's exact effect depends on that row only through the
+    changed regressor's own columns: Δηᵢ = (basis(x1ᵢ) - basis(x0ᵢ))·b_block. A category
+    change or an A->B switch moves every row by the same Δη, so the average equals the effect
+    at the reference point and None is returned without evaluating any row.
+    """
     design = model.design
     column = block.spec.column
+    closed_form = model.kind in ("level", "log")
+    switch = block.is_category or text.find("->") >= 0
+    if closed_form and switch:
+        return None
     n = len(design.y)
-    rows = np.arange(n)
+    rows = _average_rows(n, _AVERAGE_ROWS_SMEARING if model.kind == "smearing" else _AVERAGE_ROWS)
+    if closed_form:
+        change = block.spec.change or default_change(block, design.values[column])
+        start = design.values[column][rows].astype(float)
+        end = change.apply(start)
+        bad, _ = block.spec.transform.invalid(end)
+        if bad.any():
+            start, end = start[~bad], end[~bad]
+        if len(start) == 0:
+            return None
+        transform = block.spec.transform
+        delta = (transform.basis(end) - transform.basis(start)) @ model.coef[block.start : block.stop]
+        exact = delta if model.kind == "level" else 100.0 * np.expm1(delta)
+        if np.max(np.abs(exact - at_reference)) <= 1e-6 * (1.0 + abs(at_reference)):
+            return None
+        return float(np.mean(exact))
     resid = None
-    limit = _AVERAGE_ROWS_SMEARING if model.kind == "smearing" else _AVERAGE_ROWS
-    if n > limit:
-        rows = np.sort(np.random.default_rng(0).choice(n, limit, replace=False))
-    if model.kind == "smearing" and n > _AVERAGE_RESIDUALS:
+    if n > _AVERAGE_RESIDUALS:
         resid = np.quantile(model.resid, (np.arange(_AVERAGE_RESIDUALS) + 0.5) / _AVERAGE_RESIDUALS)
     base = {col: vals[rows] for col, vals in design.values.items()}
     m = len(rows)
-    if block.is_category or text.find("->") >= 0:
+    if switch:
         start = np.full(m, x0, dtype=object if block.is_category else float)
         end = np.full(m, x1, dtype=object if block.is_category else float)
     else:
