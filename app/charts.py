@@ -8,6 +8,7 @@ so the chart also reads in greyscale.
 from __future__ import annotations
 
 import math
+import re
 from typing import Any
 
 import numpy as np
@@ -225,7 +226,7 @@ def gap_figure(
             yanchor="top",
             text=_band_label(tolerance_pct, (right - left) / span, on_left),
             showarrow=False,
-            font={"size": 14, "color": "#8A3B6B"},
+            font={"size": TYPE["note"], "color": "#8A3B6B"},
             bgcolor="rgba(255,255,255,0.8)",
         )
     if regions:
@@ -252,7 +253,7 @@ def gap_figure(
         xanchor="right" if near_right else "left",
         text=f"your change: {_fmt(chosen, percent_change)}",
         showarrow=False,
-        font={"size": 15, "color": VERMILLION},
+        font={"size": TYPE["note"], "color": VERMILLION},
         bgcolor="rgba(255,255,255,0.85)",
         xshift=-6 if near_right else 6,
     )
@@ -268,33 +269,20 @@ def gap_figure(
     )
     fig.add_hline(y=0, line={"color": "#9AA5B1", "width": 1})
 
+    _style(
+        fig,
+        f"How far the shortcut drifts: changing {regressor_label}",
+        effect_subtitle(outcome_column, outcome_label, percent_effect),
+        x_title,
+        y_title,
+        height=580,
+    )
     fig.update_layout(
-        template="plotly_white",
-        paper_bgcolor="white",
-        plot_bgcolor="white",
-        font={"family": FONT, "size": 16, "color": INK},
-        title={
-            "text": f"How far the shortcut drifts: changing {regressor_label}",
-            "subtitle": {
-                "text": effect_subtitle(outcome_column, outcome_label, percent_effect),
-                "font": {"size": 15, "color": "#52606D"},
-            },
-            "x": 0.01,
-            "xanchor": "left",
-            "font": {"size": 21},
-        },
         xaxis={
-            "title": {"text": x_title},
             "range": [float(np.nanmin(sizes)) - 0.02 * span, float(np.nanmax(sizes)) + 0.02 * span],
-            "gridcolor": GRID,
-            "zeroline": False,
             "ticksuffix": " %" if percent_change else "",
         },
-        yaxis={"title": {"text": y_title}, "gridcolor": GRID, "zeroline": False, "ticksuffix": " %" if percent_effect else ""},
-        legend={"orientation": "h", "yanchor": "bottom", "y": 1.02, "x": 0.0, "font": {"size": 15}, "traceorder": "normal"},
-        margin={"l": 70, "r": 30, "t": 130, "b": 70},
-        height=540,
-        hovermode="closest",
+        yaxis={"ticksuffix": " %" if percent_effect else ""},
     )
     return fig
 
@@ -304,10 +292,45 @@ GREY = "#7B8794"
 SHADE = "#9AA5B1"
 SUBTLE = "#52606D"
 CONFIG = {"displaylogo": False}
+# Type sizes in pixels of the figure's own canvas. A chart is drawn once and exported at slide
+# size (1920 px wide for a full slide), so the type is set for the slide: larger than a web
+# page's usual 14 px, still fitting the on-screen charts.
+TYPE = {"base": 18, "title": 26, "subtitle": 18, "legend": 17, "note": 16, "caption": 15}
+# Room per row of the legend placed between the subtitle and the plot.
+_LEGEND_ROW = 30
+# Width a legend has to fit in at the narrowest export (half slide, 960 px, less the margins).
+_LEGEND_WIDTH = 840
 
 
 def _floats(values: list[Any] | None) -> np.ndarray:
     return np.array([np.nan if v is None else float(v) for v in values or []], dtype=float)
+
+
+def wrap(text: str, limit: int) -> tuple[str, int]:
+    """Text broken at spaces into lines of at most ``limit`` characters (Plotly does not wrap
+    titles itself), joined with <br>; and the number of lines."""
+    lines: list[str] = []
+    for word in text.split(" "):
+        if lines and len(lines[-1]) + 1 + len(word) <= limit:
+            lines[-1] += " " + word
+        else:
+            lines.append(word)
+    return "<br>".join(lines), max(1, len(lines))
+
+
+def _chars_per_line(size: float) -> int:
+    """Characters of a ``size``-pixel font that fit the narrowest export width."""
+    return int(_LEGEND_WIDTH / (0.54 * size))
+
+
+def legend_rows(fig: go.Figure) -> int:
+    """How many rows the horizontal legend takes at the narrowest export width (an estimate
+    from the entries' lengths: about half an em per character plus the symbol)."""
+    names = [t.name for t in fig.data if t.name and t.showlegend is not False]
+    if not names:
+        return 0
+    width = sum(len(name) * 0.52 * TYPE["legend"] + 48 for name in names)
+    return max(1, math.ceil(width / _LEGEND_WIDTH))
 
 
 def _style(
@@ -318,43 +341,128 @@ def _style(
     y_title: str,
     height: int = 520,
     legend: bool = True,
-    title_size: int = 21,
+    title_size: int | None = None,
 ) -> go.Figure:
-    """The look every chart shares: white, large type, a plain-word title with a subtitle, and
-    the legend under the plot, where long plain-word entries have room."""
-    top = 100 if title_size >= 20 else 92
-    bottom = 130 if legend else 70
-    # The legend sits a fixed distance under the plot, clear of the x-axis title, whatever the height.
-    plot_height = max(height - top - bottom, 100)
+    """The look every chart shares, on screen and exported at any slide size: white, large
+    type, a plain-word title and subtitle pinned to the top edge, the legend between them and
+    the plot (pinned to the plot's top edge, so it never drifts when the export is taller or
+    wider than the screen), and the axis titles naming the variables and their transforms.
+    Call it after the traces are added (the legend's height depends on them)."""
+    rows = legend_rows(fig) if legend else 0
+    size = title_size or TYPE["title"]
+    title, title_lines = wrap(title, _chars_per_line(size))
+    subtitle, subtitle_lines = wrap(subtitle, _chars_per_line(TYPE["subtitle"]))
+    top = 18 + round(1.3 * size) * title_lines + round(1.35 * TYPE["subtitle"]) * subtitle_lines + 26
     fig.update_layout(
         template="plotly_white",
         paper_bgcolor="white",
         plot_bgcolor="white",
-        font={"family": FONT, "size": 16, "color": INK},
+        font={"family": FONT, "size": TYPE["base"], "color": INK},
         title={
             "text": title,
-            "subtitle": {"text": subtitle, "font": {"size": 15, "color": SUBTLE}},
+            "subtitle": {"text": subtitle, "font": {"size": TYPE["subtitle"], "color": SUBTLE}},
             "x": 0.01,
             "xanchor": "left",
-            "font": {"size": title_size},
+            "xref": "container",
+            "y": 1.0,
+            "yanchor": "top",
+            "yref": "container",
+            "pad": {"t": 18},
+            "font": {"size": size},
         },
         xaxis={"title": {"text": x_title}, "gridcolor": GRID, "zeroline": False},
         yaxis={"title": {"text": y_title}, "gridcolor": GRID, "zeroline": False},
         showlegend=legend,
         legend={
             "orientation": "h",
-            "yanchor": "top",
-            "y": -78 / plot_height,
+            "yref": "paper",
+            "yanchor": "bottom",
+            "y": 1.0,
             "x": 0.0,
-            "font": {"size": 15},
+            "xanchor": "left",
+            "font": {"size": TYPE["legend"]},
             "traceorder": "normal",
             "entrywidth": 0,
         },
-        margin={"l": 80, "r": 30, "t": top, "b": bottom},
+        margin={"l": 90, "r": 30, "t": top + _LEGEND_ROW * rows, "b": 84},
         height=height,
         hovermode="closest",
     )
     return fig
+
+
+# --- export at slide size -----------------------------------------------------------------------
+# name: (words, width, height) in pixels of the figure; the download is drawn at EXPORT_SCALE
+# times that (a full slide's PNG is 3840 x 2160, sharp on a 4K projector or when zoomed).
+SLIDE_SIZES = {
+    "full": ("Full slide, 16:9 (1920 × 1080)", 1920, 1080),
+    "half": ("Half slide (960 × 1080)", 960, 1080),
+    "square": ("Square (1080 × 1080)", 1080, 1080),
+}
+EXPORT_FORMATS = {"png": "PNG (picture)", "svg": "SVG (scalable, editable)"}
+EXPORT_SCALE = 2
+# Distance of the caption line under the plot: clear of the tick labels and the x-axis title.
+_CAPTION_GAP = {True: 78, False: 40}
+
+
+def file_stem(text: str, limit: int = 80) -> str:
+    """A safe file name part from any text: letters, digits, '-', '_' and '.' only."""
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "_", str(text)).strip("._-")
+    return stem[:limit] or "chart"
+
+
+def export_config(size: str = "full", fmt: str = "png", filename: str = "formwise-chart") -> dict[str, Any]:
+    """Plotly's config for a chart: the toolbar's download button draws the chart at the slide
+    size (``SLIDE_SIZES``) in PNG at twice the pixels, or in SVG."""
+    _, width, height = SLIDE_SIZES[size]
+    return {
+        "displaylogo": False,
+        "modeBarButtonsToRemove": ["lasso2d", "select2d"],
+        "toImageButtonOptions": {
+            "format": fmt,
+            "filename": file_stem(filename),
+            "width": width,
+            "height": height,
+            "scale": EXPORT_SCALE,
+        },
+    }
+
+
+def caption_text(data_name: str, n_obs: int | None, spec_name: str | None) -> str:
+    """'Data: kiosks.csv · N = 1,500 · Model: log of weekly_revenue explained by …'."""
+    parts = [f"Data: {data_name}"]
+    if n_obs is not None:
+        parts.append(f"N = {n_obs:,}")
+    if spec_name:
+        parts.append(f"Model: {spec_name}")
+    return " · ".join(parts)
+
+
+def with_caption(fig: go.Figure, caption: str | None) -> go.Figure:
+    """The figure with a source line (data file, N, model) under the plot, or unchanged
+    without one; a copy, so a cached figure is never altered."""
+    if not caption:
+        return fig
+    out = go.Figure(fig)
+    has_x_title = bool(out.layout.xaxis.title.text)
+    bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
+    text, lines = wrap(plain(caption), _chars_per_line(TYPE["caption"]))
+    out.add_annotation(
+        text=text,
+        xref="paper",
+        x=0.0,
+        xanchor="left",
+        yref="paper",
+        y=0.0,
+        yanchor="top",
+        yshift=-_CAPTION_GAP[has_x_title],
+        showarrow=False,
+        align="left",
+        font={"size": TYPE["caption"], "color": SUBTLE},
+        name="caption",
+    )
+    out.update_layout(margin={"b": bottom + 8 + round(1.4 * TYPE["caption"]) * lines})
+    return out
 
 
 def _legend_dot(fig: go.Figure, name: str, colour: str, size: int = 8) -> None:
@@ -513,7 +621,7 @@ def curve_figure(
             yanchor="top",
             text="beyond the data",
             showarrow=False,
-            font={"size": 14, "color": SUBTLE},
+            font={"size": TYPE["note"], "color": SUBTLE},
             xshift=-4 if side == "left" else 4,
         )
 
@@ -524,7 +632,7 @@ def curve_figure(
         subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
         x_title=f"{column} (as recorded)",
         y_title=f"{outcome_column} (original units)",
-        height=620,
+        height=660,
     )
     fig.update_layout(
         xaxis={"range": [x_low - 0.01 * (x_high - x_low), x_high + 0.01 * (x_high - x_low)]},
@@ -614,7 +722,7 @@ def _levels_figure(
         subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
         x_title=column,
         y_title=f"{outcome_column} (original units)",
-        height=600,
+        height=640,
     )
     fig.update_layout(
         xaxis={"tickmode": "array", "tickvals": positions.tolist(), "ticktext": ticks, "range": [-0.6, len(levels) - 0.4]},
@@ -656,7 +764,7 @@ def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[st
                 arrowhead=0,
                 ax=0,
                 ay=34,
-                font={"size": 14, "color": VERMILLION},
+                font={"size": TYPE["note"], "color": VERMILLION},
                 bgcolor="rgba(255,255,255,0.85)",
             )
     y_title = f"% change in {outcome_column}" if percent else f"change in {outcome_column}"
@@ -666,9 +774,9 @@ def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[st
         subtitle="A flat line would mean the units do not matter",
         x_title=f"{column} rescaled",
         y_title=y_title,
-        height=400,
+        height=440,
         legend=False,
-        title_size=18,
+        title_size=22,
     )
     fig.update_layout(
         xaxis={"type": "log", "tickmode": "array", "tickvals": factors, "ticktext": tick_words, "tickangle": 0},
@@ -712,8 +820,8 @@ def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
         "Good: an even cloud around zero, flat red line",
         f"Fitted {fitted_label}",
         "Residual",
-        height=430,
-        title_size=19,
+        height=470,
+        title_size=22,
     )
 
 
@@ -748,8 +856,8 @@ def qq_figure(data: dict[str, Any]) -> go.Figure:
         "Good: points along the dashed line",
         "Where a normal curve puts them (standard units)",
         "Standardised residual",
-        height=430,
-        title_size=19,
+        height=470,
+        title_size=22,
     )
 
 
@@ -788,8 +896,8 @@ def residual_histogram(data: dict[str, Any]) -> go.Figure:
         f"Every one of the {data['n']:,} rows counted",
         "Residual",
         "Rows",
-        height=430,
-        title_size=19,
+        height=470,
+        title_size=22,
     )
 
 
@@ -822,8 +930,8 @@ def scale_location_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
         "Good: a flat red line; rising or falling means the spread changes",
         f"Fitted {fitted_label}",
         "√|standardised residual|",
-        height=430,
-        title_size=19,
+        height=470,
+        title_size=22,
     )
 
 
@@ -853,13 +961,23 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
         template="plotly_white",
         paper_bgcolor="white",
         plot_bgcolor="white",
-        font={"family": FONT, "size": 14, "color": INK},
-        title={"text": f"{plain(item['column'])} ({item['role']})", "x": 0.01, "xanchor": "left", "font": {"size": 18}},
-        margin={"l": 60, "r": 20, "t": 110, "b": 40},
-        height=320,
+        font={"family": FONT, "size": TYPE["base"] - 2, "color": INK},
+        title={
+            "text": f"{plain(item['column'])} ({item['role']})",
+            "x": 0.01,
+            "xanchor": "left",
+            "xref": "container",
+            "y": 1.0,
+            "yanchor": "top",
+            "yref": "container",
+            "pad": {"t": 18},
+            "font": {"size": 22},
+        },
+        margin={"l": 70, "r": 20, "t": 124, "b": 48},
+        height=360,
         bargap=0.02,
     )
-    fig.update_annotations(font={"size": 14, "color": SUBTLE})
+    fig.update_annotations(font={"size": TYPE["note"], "color": SUBTLE})
     fig.update_xaxes(gridcolor=GRID, zeroline=False)
     fig.update_yaxes(gridcolor=GRID, zeroline=False, title_text="Rows", row=1, col=1)
     return fig
@@ -920,7 +1038,7 @@ def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
             xshift=5,
             text=word,
             showarrow=False,
-            font={"size": 15, "color": INK},
+            font={"size": TYPE["note"], "color": INK},
             bgcolor="rgba(255,255,255,0.85)",
         )
     return _style(
@@ -929,5 +1047,5 @@ def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
         f"Higher is better; {outcome_column} is modelled on the regressors as they are transformed now",
         "Power λ of the outcome (0 = log, 0.5 ≈ square root, 1 = level)",
         "Profile log-likelihood",
-        height=480,
+        height=520,
     )

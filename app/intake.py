@@ -28,7 +28,7 @@ import pandas as pd
 import plotly.graph_objects as go
 import streamlit as st
 
-from app import charts, state
+from app import charts, exports, state
 from core.profile import profile_table
 from core.reader import read_table_with_notes
 
@@ -507,7 +507,7 @@ def profiles_view(ctx: Any = None) -> None:
         left, right = st.columns([2, 3]) if figure is not None else (None, st.container())
         if left is not None and figure is not None:
             with left:
-                st.plotly_chart(figure, theme=None, config=charts.CONFIG, key="profile_histogram")
+                exports.chart(figure, key="profile_histogram")
         with right:
             suggested = transform_words(entry.get("suggested_transform"))
             where = " · the outcome in your grid" if pick == outcome else ""

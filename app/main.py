@@ -21,7 +21,7 @@ import pandas as pd  # noqa: E402
 import streamlit as st  # noqa: E402
 
 import core  # noqa: E402
-from app import cautions, intake, state, views  # noqa: E402
+from app import cautions, exports, intake, state, views  # noqa: E402
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
@@ -305,6 +305,7 @@ def main() -> None:
             )
     if good:
         show_results(good)
+    exports.export_section(good, use_data)
 
 
 main()

@@ -18,7 +18,8 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import charts, intake, state, tables
+from app import charts, exports, intake, state, tables
+from core import tables as core_tables
 
 VIEWS = [
     "Coefficients",
@@ -97,7 +98,7 @@ class Context:
 
 
 def chart(figure: Any, key: str) -> None:
-    st.plotly_chart(figure, theme=None, config=charts.CONFIG, key=key)
+    exports.chart(figure, key)
 
 
 def failed(exc: Exception) -> None:
@@ -113,6 +114,7 @@ def failed(exc: Exception) -> None:
 def show(ctx: Context) -> None:
     """The view selector and the chosen view."""
     ss = st.session_state
+    exports.set_chart_caption(ctx.data_id, ctx.data_name, ctx.spec, ctx.result)
     if ss.get("view") not in VIEWS:
         ss.view = VIEWS[0]
     view = st.segmented_control("Show", VIEWS, key="view", required=True, label_visibility="collapsed")
@@ -134,6 +136,7 @@ def show(ctx: Context) -> None:
 # --- coefficients and effects ------------------------------------------------------------------------
 def coefficients_view(ctx: Context) -> None:
     st.table(tables.styled(tables.coefficient_table(ctx.result, ctx.spec)), hide_index=True)
+    exports.table_downloads(core_tables.coefficient_table(ctx.result), "estimates", "estimates")
 
 
 def effects_view(ctx: Context) -> None:
@@ -150,6 +153,7 @@ def effects_view(ctx: Context) -> None:
         + (" The model is fitted by PPML, so effects read as % changes in the mean of the outcome." if ctx.ppml else "")
     )
     st.table(tables.styled(table, tables.extrapolated_rows(result)), hide_index=True)
+    exports.table_downloads(core_tables.effects_table(result), "effects", "effects")
     point = result.get("reference_point") or {}
     if point:
         st.caption(
@@ -325,6 +329,8 @@ def checks_view(ctx: Context) -> None:
     st.markdown("##### What the tests say")
     for concern, sentence in state.check_sentences(result.get("diagnostics") or {}, result.get("covariance", "HC1")):
         st.markdown(f"{':orange[**⚠**]' if concern else ':green[**✓**]'} {state.plain(sentence)}")
+    if result.get("diagnostics"):
+        exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
     if residuals is not None:
         st.markdown("##### The residuals")
         st.caption(
@@ -458,6 +464,7 @@ def compare_view(ctx: Context) -> None:
     if len(saved_all) > len(saved):
         st.caption(f"{len(saved_all) - len(saved)} saved model(s) belong to another data set and are not shown.")
     rows = []
+    fitted: dict[str, dict[str, Any]] = {}
     with st.spinner("Fitting the saved models…"):
         for name, spec in entries:
             try:
@@ -466,6 +473,7 @@ def compare_view(ctx: Context) -> None:
                 st.warning(state.plain(f"“{name}” could not be fitted on this data: {exc}"))
                 continue
             rows.append(state.compare_row(name, spec, result, ctx.data_id))
+            fitted[name] = result
     if not rows:
         return
     best = state.best_by_aic(rows)
@@ -490,6 +498,7 @@ def compare_view(ctx: Context) -> None:
     names = [r["name"] for r in rows]
     st.table(tables.styled(tables.compare_effects_table(rows), numbers_in=names), hide_index=True)
     st.caption("⚠ marks changes that reach beyond the observed data.")
+    exports.table_downloads(core_tables.comparison_table(fitted), "comparison", "comparison")
 
 
 # --- predict ----------------------------------------------------------------------------------------------------

@@ -180,3 +180,62 @@ def test_markdown_in_names_stays_text(page, tmp_path: Path) -> None:
         no_injected_markup(view)
     _shot(page, "markdown-names")
     assert page.problems == []
+
+
+def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
+    """The download buttons and the chart toolbar hand over the files a user gets."""
+    import csv
+    import json
+    import struct
+    import subprocess
+    import sys
+
+    import pandas as pd
+
+    import core
+    from tests.browser_support import ROOT
+
+    demo = ROOT / "demo_data" / "kiosks.csv"
+    expected = core.analyze(pd.read_csv(demo), json.loads((ROOT / "demo_data" / "default_spec.json").read_text()))
+    estimates = {t["name"]: t["estimate"] for t in expected["terms"]}
+
+    # The estimates table as CSV, from the button under the coefficient table.
+    button = page.locator(".st-key-download_estimates_csv button")
+    button.wait_for(timeout=60_000)
+    with page.expect_download(timeout=60_000) as info:
+        button.click()
+    assert info.value.suggested_filename == "formwise-estimates.csv"
+    rows = list(csv.reader(Path(info.value.path()).read_text(encoding="utf-8").splitlines()))
+    assert rows[0][:3] == ["Term", "Estimate", "Std. error"]
+    assert {r[0]: float(r[1]) for r in rows[1:]} == estimates
+
+    # The spec file from the sidebar, run through the command line: the same numbers.
+    button = page.get_by_role("button", name="Download the spec (JSON)")
+    with page.expect_download(timeout=60_000) as info:
+        button.click()
+    spec_path = tmp_path / info.value.suggested_filename
+    info.value.save_as(spec_path)
+    assert spec_path.name.startswith("formwise-spec-") and spec_path.suffix == ".json"
+    done = subprocess.run(
+        [sys.executable, "-m", "core", "analyze", str(demo), "--spec", str(spec_path)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert done.returncode == 0, done.stderr
+    assert {t["name"]: t["estimate"] for t in json.loads(done.stdout)["terms"]} == estimates
+
+    # The chart toolbar's camera: a full-slide PNG at twice the pixels.
+    page.get_by_role("radio", name="Approximation check", exact=True).click()
+    chart = page.locator('[data-testid="stPlotlyChart"]').first
+    chart.wait_for(timeout=60_000)
+    chart.hover()
+    camera = chart.locator('.modebar-btn[data-title^="Download plot"]')
+    with page.expect_download(timeout=60_000) as info:
+        camera.click()
+    assert info.value.suggested_filename == "formwise-gap_chart.png"
+    header = Path(info.value.path()).read_bytes()[:24]
+    assert header[:8] == b"\x89PNG\r\n\x1a\n" and struct.unpack(">II", header[16:24]) == (3840, 2160)
+    _no_error_text(page)
+    assert page.problems == []

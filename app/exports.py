@@ -1,0 +1,268 @@
+"""Export: charts at slide size, result tables as files, the HTML report, and the spec file
+(downloaded, and uploaded to restore the whole screen).
+
+Everything is built by ``core`` (``core.tables``, ``core.report``, ``core.specfile``), so a file
+from the app and one from the command line are the same; this module only offers them. The
+pure helpers (no widgets) come first and are tested without a browser.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from typing import Any
+
+import pandas as pd
+import plotly.graph_objects as go
+import streamlit as st
+
+import core
+from app import charts, state
+from core import tables as core_tables
+from core.report import build_report
+from core.spec import parse_spec
+from core.specfile import parse_spec_document, spec_document
+
+# Session keys of the export choices (sidebar).
+SIZE_KEY = "export_size"
+FORMAT_KEY = "export_format"
+CAPTION_KEY = "export_caption"
+# The caption for the charts of this run: set by the views, read by ``chart``.
+CHART_CAPTION_KEY = "_chart_caption"
+# fmt: (button words, file extension, MIME type)
+TABLE_FORMATS = {
+    "csv": ("CSV", "csv", "text/csv"),
+    "markdown": ("Markdown", "md", "text/markdown"),
+    "latex": ("LaTeX", "tex", "application/x-tex"),
+}
+
+
+# --- pure helpers ------------------------------------------------------------------------------------
+def table_file(table: core_tables.Table, fmt: str) -> str:
+    """One result table as a file: CSV with numbers as numbers and formula-like text cells
+    neutralised (``core.tables.to_csv``), Markdown or LaTeX (``core.tables.render``)."""
+    if fmt == "csv":
+        return core_tables.to_csv(table)
+    return core_tables.render([table], fmt)
+
+
+def saved_specs(saved_models: list[dict[str, Any]], data_id: str) -> dict[str, dict[str, Any]]:
+    """The models saved on this data, by name, as plain specs (the name is the key)."""
+    return {m["name"]: {k: v for k, v in m["spec"].items() if k != "name"} for m in saved_models if m["data_id"] == data_id}
+
+
+def model_name(spec: dict[str, Any], saved: dict[str, dict[str, Any]]) -> str | None:
+    """The saved name of ``spec`` when it is one of the saved models, else None."""
+    key = state.spec_json(spec)
+    return next((name for name, other in saved.items() if state.spec_json(other) == key), None)
+
+
+def spec_file(spec: dict[str, Any], saved: dict[str, dict[str, Any]]) -> str:
+    """The spec file for the model on screen (named when it is a saved model) and the saved
+    models; ``python -m core analyze DATA --spec FILE`` reads its current spec."""
+    current = {k: v for k, v in spec.items() if k != "name"}
+    name = model_name(current, saved)
+    if name:
+        current["name"] = name
+    return spec_document(current, saved)
+
+
+def read_spec_upload(raw: bytes, frame: pd.DataFrame) -> tuple[dict[str, Any], dict[str, dict[str, Any]]]:
+    """The current and saved specs of an uploaded spec file, each checked against the data
+    (columns, transforms, changes, references); raises ``FormwiseError`` naming the problem."""
+    spec, saved = parse_spec_document(raw, "the spec file")
+    parse_spec(spec, frame)
+    for name, other in saved.items():
+        try:
+            parse_spec(other, frame)
+        except core.FormwiseError as exc:
+            raise core.FormwiseError(f"the saved model '{name}' in the spec file: {exc}") from None
+    return spec, saved
+
+
+def restore_notes(spec: dict[str, Any]) -> list[str]:
+    """What the screen cannot show of an uploaded spec (and so leaves out of the next fit)."""
+    notes = []
+    if spec.get("weights"):
+        notes.append(f"The spec weights rows by '{spec['weights']}'; the app fits without weights, so this is left out.")
+    if spec.get("predict"):
+        notes.append("The spec's prediction points are left out; enter values in the Predict view instead.")
+    return notes
+
+
+def report_file(frame: pd.DataFrame, spec: dict[str, Any], data_name: str, saved: dict[str, dict[str, Any]]) -> str:
+    """The self-contained HTML report (``core.report.build_report``) for the model on screen
+    and the saved models; named after the saved model when it is one."""
+    current = {k: v for k, v in spec.items() if k != "name"}
+    name = model_name(current, saved)
+    if name:
+        current["name"] = name
+    return build_report(frame, current, data_name, saved or None)
+
+
+# --- charts -----------------------------------------------------------------------------------------
+def chart(figure: go.Figure, key: str) -> None:
+    """A chart whose toolbar download gives the chosen slide size and format, with the
+    source line under it when asked for."""
+    ss = st.session_state
+    size = ss.get(SIZE_KEY) or "full"
+    fmt = ss.get(FORMAT_KEY) or "png"
+    caption = ss.get(CHART_CAPTION_KEY) if ss.get(CAPTION_KEY) else None
+    st.plotly_chart(
+        charts.with_caption(figure, caption),
+        theme=None,
+        config=charts.export_config(size, fmt, f"formwise-{key}"),
+        key=key,
+    )
+
+
+def set_chart_caption(data_id: str, data_name: str, spec: dict[str, Any], result: dict[str, Any]) -> None:
+    """The source line for this run's charts: data file, rows used and the model's name (its
+    saved name, else the model in words)."""
+    ss = st.session_state
+    name = model_name(spec, saved_specs(ss.get("saved_models") or [], data_id)) or state.model_sentence(result)
+    ss[CHART_CAPTION_KEY] = charts.caption_text(data_name, result.get("n_obs"), name)
+
+
+def chart_settings() -> None:
+    if st.session_state.get(SIZE_KEY) not in charts.SLIDE_SIZES:
+        st.session_state[SIZE_KEY] = "full"
+    st.selectbox(
+        "Chart size for slides",
+        list(charts.SLIDE_SIZES),
+        key=SIZE_KEY,
+        format_func=lambda s: charts.SLIDE_SIZES[s][0],
+        help="The camera button in each chart's toolbar downloads the chart at this size.",
+    )
+    st.radio(
+        "Chart file",
+        list(charts.EXPORT_FORMATS),
+        key=FORMAT_KEY,
+        format_func=lambda f: charts.EXPORT_FORMATS[f],
+        horizontal=True,
+    )
+    st.checkbox("Caption under each chart (data, rows, model)", key=CAPTION_KEY)
+    st.caption(
+        f"PNG files have twice the pixels of the size chosen (a full slide: "
+        f"{1920 * charts.EXPORT_SCALE:,} × {1080 * charts.EXPORT_SCALE:,}); SVG stays sharp at any size."
+    )
+
+
+# --- tables ----------------------------------------------------------------------------------------------
+def table_downloads(table: core_tables.Table, stem: str, key: str) -> None:
+    """Three small download buttons under a table: CSV, Markdown, LaTeX."""
+    cols = st.columns([1.2, 1, 1, 1, 3], vertical_alignment="center")
+    with cols[0]:
+        st.caption("Download this table:")
+    for col, (fmt, (words, extension, mime)) in zip(cols[1:], TABLE_FORMATS.items(), strict=False):
+        with col:
+            st.download_button(
+                words,
+                data=table_file(table, fmt),
+                file_name=f"formwise-{stem}.{extension}",
+                mime=mime,
+                key=f"download_{key}_{fmt}",
+                on_click="ignore",
+                icon=":material/download:",
+                width="stretch",
+            )
+
+
+# --- the spec file and the report (sidebar) ----------------------------------------------------------------
+def _spec_uploaded(use_data: Callable[..., None]) -> None:
+    """Restore the screen from an uploaded spec file, or keep it and say what is wrong."""
+    ss = st.session_state
+    upload = ss.get(f"spec_upload_{ss.get('spec_upload_version', 0)}")
+    ss.spec_upload_error, ss.spec_upload_notes = None, []
+    if upload is None:
+        return
+    data = ss.data
+    try:
+        spec, saved = read_spec_upload(upload.getvalue(), data["frame"])
+    except core.FormwiseError as exc:
+        ss.spec_upload_error = f"Could not use '{upload.name}': {exc} The screen is unchanged."
+        return
+    use_data(data["id"], data["name"], data["frame"], spec, data.get("notes"), data.get("profile"))
+    used = {spec["outcome"]["column"], *(r["column"] for r in spec.get("regressors") or [])}
+    from app import intake  # here, not at the top: intake draws its charts through this module
+
+    if used & set(intake.locked_columns(data.get("profile"))):
+        # The intake panel keeps identifier and date columns out of the grid unless unlocked.
+        ss[intake.UNLOCK_KEY] = True
+    others = [m for m in ss.get("saved_models") or [] if m["data_id"] != data["id"]]
+    ss.saved_models = others + [{"name": n, "spec": {**s, "name": n}, "data_id": data["id"]} for n, s in saved.items()]
+    ss.spec_upload_notes = [
+        f"Restored from {upload.name}" + (f" with {len(saved)} saved model(s)." if saved else "."),
+        *restore_notes(spec),
+    ]
+    # A fresh uploader, so the same file can be loaded again after further edits.
+    ss.spec_upload_version = ss.get("spec_upload_version", 0) + 1
+
+
+def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -> None:
+    """The sidebar's Export area: chart settings, the spec file (down and up) and the report."""
+    ss = st.session_state
+    with st.sidebar:
+        st.markdown("### Export")
+        chart_settings()
+
+        st.markdown("##### The model as a file")
+        if good:
+            saved = saved_specs(ss.get("saved_models") or [], good["data_id"])
+            stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
+            st.download_button(
+                "Download the spec (JSON)",
+                data=spec_file(good["spec"], saved),
+                file_name=f"formwise-spec-{stem}.json",
+                mime="application/json",
+                key="download_spec",
+                on_click="ignore",
+                icon=":material/download:",
+                width="stretch",
+                help="The model on screen and the saved models. `python -m core analyze DATA --spec FILE` "
+                "gives the same numbers.",
+            )
+        st.file_uploader(
+            "Restore from a spec file",
+            type=["json"],
+            key=f"spec_upload_{ss.get('spec_upload_version', 0)}",
+            on_change=_spec_uploaded,
+            args=(use_data,),
+            help="A spec file saved here or written by hand for this data: the grid, errors and saved models follow it.",
+        )
+        if ss.get("spec_upload_error"):
+            st.error(state.plain(ss.spec_upload_error))
+        for note in ss.get("spec_upload_notes") or []:
+            st.caption(state.plain(note))
+
+        st.markdown("##### Report")
+        if not good:
+            return
+        saved = saved_specs(ss.get("saved_models") or [], good["data_id"])
+        key = (good["data_id"], state.spec_json(good["spec"]), json.dumps(saved, sort_keys=True))
+        if st.button("Prepare the report", key="prepare_report", width="stretch", help="Runs the whole analysis once."):
+            with st.spinner("Writing the report…"):
+                try:
+                    html = report_file(good["frame"], good["spec"], good["data_name"], saved)
+                except Exception as exc:  # a core bug must not become a traceback on screen
+                    ss.report = None
+                    st.error(state.plain(f"The report could not be written: {exc}"))
+                else:
+                    ss.report = {"key": key, "html": html}
+        report = ss.get("report")
+        if report and report["key"] == key:
+            stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
+            st.download_button(
+                "Download the report (HTML)",
+                data=report["html"],
+                file_name=f"formwise-report-{stem}.html",
+                mime="text/html",
+                key="download_report",
+                on_click="ignore",
+                icon=":material/download:",
+                type="primary",
+                width="stretch",
+            )
+            st.caption("One self-contained file: no script, nothing fetched from the network.")
+        elif report:
+            st.caption("The model changed since the report was prepared; prepare it again.")

@@ -1,0 +1,406 @@
+"""Exports from the app: charts at slide size, result tables as files, the HTML report and the
+spec file (down, up, and through the command line).
+
+The browser-side checks (real download buttons in Chromium) are in tests/test_browser.py.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+import re
+import struct
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import pytest
+from streamlit.testing.v1 import AppTest
+
+import core
+from app import charts, exports, state, tables
+from core import tables as core_tables
+from core.report import CAUTION_REVIEW
+from tests.helpers import shown, shown_table
+
+ROOT = Path(__file__).resolve().parent.parent
+MAIN = str(ROOT / "app" / "main.py")
+DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
+DEMO_SPEC = json.loads((ROOT / "demo_data" / "default_spec.json").read_text(encoding="utf-8"))
+TIMEOUT = 120
+SCREENSHOTS = ROOT / "tests" / "screenshots"
+
+
+# --- helpers ---------------------------------------------------------------------------------------
+def start() -> AppTest:
+    at = AppTest.from_file(MAIN, default_timeout=TIMEOUT)
+    at.run()
+    assert not at.exception, at.exception
+    return at
+
+
+def show(at: AppTest, view: str) -> AppTest:
+    at.segmented_control(key="view").set_value(view).run()
+    assert not at.exception, at.exception
+    return at
+
+
+def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
+    base = at.session_state["grid_base"]
+    rows = {str(c): i for i, c in enumerate(base["column"])}
+    at.session_state[at.session_state["grid_key"]] = {
+        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
+        "added_rows": [],
+        "deleted_rows": [],
+    }
+    at.run()
+    assert not at.exception, at.exception
+    return at
+
+
+def chart_elements(at: AppTest) -> list[tuple[dict[str, Any], dict[str, Any]]]:
+    """(figure, config) of every chart on screen."""
+    return [(json.loads(el.proto.spec), json.loads(el.proto.config)) for el in at.get("plotly_chart")]
+
+
+def coefficients(at: AppTest) -> pd.DataFrame:
+    found = [shown_table(t.value) for t in at.table if "What it means" in shown_table(t.value).columns]
+    assert found, "no coefficient table"
+    return found[0]
+
+
+def upload_spec(at: AppTest, name: str, raw: bytes) -> AppTest:
+    key = f"spec_upload_{at.session_state['spec_upload_version'] if 'spec_upload_version' in at.session_state else 0}"
+    at.file_uploader(key=key).set_value((name, raw, "application/json")).run()
+    assert not at.exception, at.exception
+    return at
+
+
+def cli_analyze(data: Path, spec_file: Path) -> dict[str, Any]:
+    """``python -m core analyze DATA --spec FILE`` as a user runs it."""
+    done = subprocess.run(
+        [sys.executable, "-m", "core", "analyze", str(data), "--spec", str(spec_file)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert done.returncode == 0, done.stderr
+    return json.loads(done.stdout)
+
+
+def png_size(data: bytes) -> tuple[int, int]:
+    """Width and height from a PNG's IHDR chunk (PNG specification, section 11.2.2)."""
+    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG"
+    assert data[12:16] == b"IHDR"
+    return struct.unpack(">II", data[16:24])
+
+
+# --- charts -------------------------------------------------------------------------------------------
+def test_export_config_sizes_formats_and_file_names() -> None:
+    full = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
+    assert full == {"format": "png", "filename": "formwise-curve_chart", "width": 1920, "height": 1080, "scale": 2}
+    assert charts.export_config("half")["toImageButtonOptions"]["width"] == 960
+    assert charts.export_config("square")["toImageButtonOptions"]["height"] == 1080
+    assert charts.export_config("full", "svg")["toImageButtonOptions"]["format"] == "svg"
+    assert charts.file_stem("formwise-dist_![x](http://h/p.png)") == "formwise-dist__x_http_h_p.png"
+    assert charts.file_stem("../..") == "chart"
+
+
+def test_long_titles_wrap_and_the_legend_stays_with_the_plot() -> None:
+    text, lines = charts.wrap("a " * 60, 20)
+    assert lines > 1 and all(len(line) <= 20 for line in text.split("<br>"))
+    fig = charts.residuals_figure(
+        {
+            "fitted": [1.0, 2.0],
+            "resid": [0.1, -0.1],
+            "shown": 2,
+            "trend": {"x": [1.0, 2.0], "y": [0.0, 0.0]},
+        },
+        "log of a_very_long_outcome_name_that_goes_on_and_on_for_a_while",
+    )
+    # Pinned to the plot's top edge and the figure's top edge: they do not drift when the
+    # export is taller or wider than the chart on screen.
+    assert (fig.layout.legend.yref, fig.layout.legend.y, fig.layout.legend.yanchor) == ("paper", 1.0, "bottom")
+    assert (fig.layout.title.yref, fig.layout.title.y, fig.layout.title.yanchor) == ("container", 1.0, "top")
+    assert fig.layout.font.size >= 18 and fig.layout.title.font.size >= 22
+
+
+def test_every_chart_exports_at_the_chosen_slide_size() -> None:
+    at = start()
+    seen: dict[str, dict[str, Any]] = {}
+    for view in at.segmented_control(key="view").options:
+        show(at, view)
+        for _figure, config in chart_elements(at):
+            seen[config["toImageButtonOptions"]["filename"]] = config
+    # The approximation check, effect curves, units check, residual checks, Box-Cox profile,
+    # variable distributions and the profile histogram.
+    assert len(seen) >= 9, sorted(seen)
+    for name, config in seen.items():
+        assert config["toImageButtonOptions"] == {
+            "format": "png",
+            "filename": name,
+            "width": 1920,
+            "height": 1080,
+            "scale": 2,
+        }, name
+        assert name.startswith("formwise-") and config["displaylogo"] is False
+    at.selectbox(key=exports.SIZE_KEY).set_value("half").run()
+    at.radio(key=exports.FORMAT_KEY).set_value("svg").run()
+    show(at, "Approximation check")
+    (_, config), *_ = chart_elements(at)
+    assert config["toImageButtonOptions"] | {} == {
+        "format": "svg",
+        "filename": "formwise-gap_chart",
+        "width": 960,
+        "height": 1080,
+        "scale": 2,
+    }
+
+
+def test_caption_under_the_charts_names_data_rows_and_model() -> None:
+    at = start()
+    show(at, "Approximation check")
+    (figure, _), *_ = chart_elements(at)
+    assert not any("Data:" in (a.get("text") or "") for a in figure["layout"].get("annotations", []))
+    at.checkbox(key=exports.CAPTION_KEY).check().run()
+    (figure, _), *_ = chart_elements(at)
+    captions = [a["text"] for a in figure["layout"]["annotations"] if (a.get("text") or "").startswith("Data:")]
+    assert len(captions) == 1
+    words = captions[0].replace("<br>", " ")
+    assert "Data: demo: coffee kiosks (invented) · N = 1,500 · Model: log of weekly_revenue explained by" in words
+    # A saved model is named by its saved name.
+    show(at, "Compare models")
+    at.text_input(key="save_name").set_value("Kiosk model A").run()
+    at.button(key="save_model").click().run()
+    show(at, "Effect curves")
+    (figure, _), *_ = chart_elements(at)
+    captions = [a["text"] for a in figure["layout"]["annotations"] if (a.get("text") or "").startswith("Data:")]
+    assert captions[0].endswith("Model: Kiosk model A")
+
+
+def _browser_path() -> str | None:
+    for candidate in ("/usr/bin/chromium", "/usr/bin/chromium-browser"):
+        if Path(candidate).exists():
+            return candidate
+    return None
+
+
+def test_full_slide_png_is_3840_by_2160(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Plotly's own static export (kaleido, driving the system Chromium) draws a chart at the
+    full-slide export settings; the file has 3840 × 2160 pixels."""
+    pytest.importorskip("kaleido")
+    browser = os.environ.get("BROWSER_PATH") or _browser_path()
+    if browser is None:
+        message = "the PNG export test needs Debian's Chromium: run 'sudo apt-get install chromium'"
+        if os.environ.get("CI", "").lower() == "true":
+            pytest.fail(message)
+        pytest.skip(message)
+    monkeypatch.setenv("BROWSER_PATH", browser)  # kaleido 1.x drives the browser named here
+    frame = pd.read_csv(DEMO_CSV)
+    result = core.analyze(frame, DEMO_SPEC, parts={"terms", "fit", "curves"})
+    curve = result["curves"][0]
+    figure = charts.curve_figure(
+        curve,
+        regressor_label="log of drink_price",
+        outcome_column="weekly_revenue",
+        outcome_label="log of weekly_revenue",
+        points=state.sample_points(frame, curve["column"], "weekly_revenue"),
+        show_naive=True,
+    )
+    figure = charts.with_caption(figure, charts.caption_text("kiosks.csv", result["n_obs"], "demo default model"))
+    options = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
+    png = figure.to_image(format="png", width=options["width"], height=options["height"], scale=options["scale"])
+    assert png_size(png) == (3840, 2160)
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    (SCREENSHOTS / "export-full-slide.png").write_bytes(png)
+    svg = figure.to_image(format="svg", width=options["width"], height=options["height"]).decode()
+    assert 'width="1920"' in svg and 'height="1080"' in svg
+
+
+# --- tables -------------------------------------------------------------------------------------------
+HOSTILE = ['=HYPERLINK("http://example.invalid","go")', "+cmd", "-2+3", "@SUM(A1)"]
+
+
+def hostile_result() -> dict[str, Any]:
+    rng = np.random.default_rng(11)
+    n = 120
+    frame = pd.DataFrame({"sales": np.exp(3 + rng.normal(0, 0.2, n))})
+    for i, name in enumerate(HOSTILE):
+        frame[name] = rng.uniform(1 + i, 4 + i, n)
+    spec = {
+        "outcome": {"column": "sales", "transform": "log"},
+        "regressors": [{"column": c, "transform": "level"} for c in HOSTILE],
+    }
+    return core.analyze(frame, spec)
+
+
+def test_table_files_neutralise_formula_cells_and_keep_numbers() -> None:
+    result = hostile_result()
+    built = [core_tables.coefficient_table(result), core_tables.effects_table(result), core_tables.diagnostics_table(result)]
+    built.append(core_tables.comparison_table({"=cmd|' /C calc'!A0": result}))
+    for table in built:
+        rows = list(csv.reader(io.StringIO(exports.table_file(table, "csv"))))
+        assert rows[0] == [core_tables.neutralise(h) for h in table.header]
+        for written, original in zip(rows[1:], table.rows, strict=True):
+            for cell, value in zip(written, original, strict=True):
+                if isinstance(value, float):
+                    assert float(cell) == value  # numbers stay numbers, every digit kept
+                elif isinstance(value, str) and value:
+                    assert cell[0] not in "=+-@\t\r", cell
+                    assert cell.lstrip("'") == value
+    coefficients_csv = exports.table_file(built[0], "csv")
+    assert "'=HYPERLINK(" in coefficients_csv and "'@SUM(A1)" in coefficients_csv
+    markdown = exports.table_file(built[0], "markdown")
+    assert markdown.startswith("**Coefficients") and "| Term |" in markdown
+    latex = exports.table_file(built[0], "latex")
+    assert r"\begin{tabular}" in latex and r"\toprule" in latex
+
+
+def test_each_view_offers_its_table_in_three_formats() -> None:
+    at = start()
+    labels = {b.proto.label for b in at.get("download_button")}
+    assert {"CSV", "Markdown", "LaTeX"} <= labels
+    keys = {b.proto.id for b in at.get("download_button")}
+    for view, stem in (("Effects of changes", "effects"), ("Residual checks", "checks"), ("Compare models", "comparison")):
+        show(at, view)
+        keys = " ".join(b.proto.id for b in at.get("download_button"))
+        for fmt in exports.TABLE_FORMATS:
+            assert f"download_{stem}_{fmt}" in keys, (view, fmt)
+
+
+# --- the spec file -------------------------------------------------------------------------------------
+def test_spec_file_through_the_command_line_gives_the_app_numbers(tmp_path: Path) -> None:
+    at = start()
+    edit_grid(at, {"drink_price": {"transform": "level", "change": "+0.5"}, "foot_traffic": {"transform": "sqrt"}})
+    at.selectbox(key="covariance").set_value("HC3").run()
+    good = at.session_state["last_good"]
+    assert good["spec"]["covariance"] == "HC3"
+    # The file the sidebar's "Download the spec" button offers.
+    text = exports.spec_file(
+        good["spec"],
+        exports.saved_specs(at.session_state["saved_models"] if "saved_models" in at.session_state else [], good["data_id"]),
+    )
+    path = tmp_path / "spec.json"
+    path.write_text(text, encoding="utf-8")
+    cli = cli_analyze(DEMO_CSV, path)
+    app_terms = {t["name"]: t for t in good["result"]["terms"]}
+    assert [t["name"] for t in cli["terms"]] == list(app_terms)
+    for term in cli["terms"]:
+        mine = app_terms[term["name"]]
+        for key in ("estimate", "std_error", "ci_low", "ci_high", "p_value"):
+            assert term[key] == mine[key], (term["name"], key)  # the same floats, not merely close
+    app_effects = good["result"]["effects"]
+    assert [(e["column"], e["change"], e["exact"]) for e in cli["effects"]] == [
+        (e["column"], e["change"], e["exact"]) for e in app_effects
+    ]
+    # And the numbers on screen are those numbers, rounded for reading.
+    table = coefficients(at)
+    slope = next(t for t in cli["terms"] if t["name"] == "drink_price")
+    assert table.loc[table["Term"] == "drink_price", "Estimate"].item() == tables.sig(slope["estimate"])
+
+
+def test_spec_file_carries_the_saved_models_and_the_current_name() -> None:
+    saved = {"A": {**DEMO_SPEC}, "B": {**DEMO_SPEC, "covariance": "HC3"}}
+    document = json.loads(exports.spec_file({**DEMO_SPEC, "covariance": "HC3"}, saved))
+    assert document["formwise_spec"] == 1 and set(document["saved"]) == {"A", "B"}
+    assert document["spec"]["name"] == "B"
+    plain_spec = json.loads(exports.spec_file(DEMO_SPEC, {}))
+    assert "formwise_spec" not in plain_spec and plain_spec["outcome"] == DEMO_SPEC["outcome"]
+
+
+def restored_spec() -> dict[str, Any]:
+    return {
+        "outcome": {"column": "weekly_revenue", "transform": "log"},
+        "regressors": [
+            {"column": "drink_price", "transform": "level", "change": "+0.5"},
+            {"column": "ad_spend", "transform": "shifted_log:1", "change": "+50%"},
+            {"column": "region", "transform": "category", "reference": "Inland", "change": "Inland->Coast"},
+            {"column": "years_open", "transform": "quadratic"},
+        ],
+        "estimator": "ols",
+        "covariance": "cluster",
+        "cluster": "kiosk_id",
+        "weights": None,
+        "at": {"drink_price": 4.0},
+    }
+
+
+def test_spec_upload_restores_grid_errors_and_saved_models() -> None:
+    at = start()
+    spec = restored_spec()
+    saved = {"levels only": {**spec, "outcome": {"column": "weekly_revenue", "transform": "level"}}}
+    document = core.specfile.spec_document(spec, saved)
+    upload_spec(at, "my model.json", document.encode())
+    assert not at.error, [shown(e.value) for e in at.error]
+    grid = at.session_state["grid_base"].set_index("column")
+    assert grid.at["weekly_revenue", "role"] == "outcome" and grid.at["weekly_revenue", "transform"] == "log"
+    assert grid.at["drink_price", "transform"] == "level" and grid.at["drink_price", "change"] == "+0.5"
+    assert grid.at["ad_spend", "transform"] == "shifted_log:1" and grid.at["ad_spend", "change"] == "+50%"
+    assert grid.at["region", "reference"] == "Inland" and grid.at["region", "change"] == "Inland->Coast"
+    assert grid.at["years_open", "transform"] == "quadratic"
+    assert grid.at["foot_traffic", "role"] == "not used"
+    assert at.session_state["covariance"] == "cluster" and at.session_state["cluster_column"] == "kiosk_id"
+    assert [m["name"] for m in at.session_state["saved_models"]] == ["levels only"]
+    good = at.session_state["last_good"]
+    assert {k: good["spec"][k] for k in ("outcome", "regressors", "covariance", "cluster", "at")} == {
+        k: spec[k] for k in ("outcome", "regressors", "covariance", "cluster", "at")
+    }
+    captions = " ".join(shown(c.value) for c in at.sidebar.caption)
+    assert "Restored from my model.json with 1 saved model(s)." in captions
+    terms = set(coefficients(at)["Term"])
+    assert "drink_price" in terms and "region = Coast (vs Inland)" in terms
+
+
+@pytest.mark.parametrize(
+    ("raw", "words"),
+    [
+        (b"{not json", "not valid JSON"),
+        (json.dumps({**restored_spec(), "outcome": {"column": "profit", "transform": "log"}}).encode(), "profit"),
+        (json.dumps({**restored_spec(), "estimator": "magic"}).encode(), "magic"),
+        (
+            json.dumps({"formwise_spec": 1, "spec": restored_spec(), "saved": {"bad": {"outcome": {"column": "nope"}}}}).encode(),
+            "bad",
+        ),
+    ],
+)
+def test_a_bad_spec_upload_says_why_and_keeps_the_screen(raw: bytes, words: str) -> None:
+    at = start()
+    before_grid = at.session_state["grid_base"].copy()
+    before = coefficients(at)
+    upload_spec(at, "broken.json", raw)
+    errors = [shown(e.value) for e in at.sidebar.error]
+    assert errors and "broken.json" in errors[0] and words in errors[0], errors
+    pd.testing.assert_frame_equal(at.session_state["grid_base"], before_grid)
+    pd.testing.assert_frame_equal(coefficients(at), before)
+
+
+# --- the report ------------------------------------------------------------------------------------------
+NETWORK = re.compile(r"""(?:src|href|action|srcset|xlink:href)\s*=\s*["']?\s*(?:https?:|//|ftp:)""", re.IGNORECASE)
+
+
+def test_report_download_is_self_contained() -> None:
+    at = start()
+    show(at, "Compare models")
+    at.text_input(key="save_name").set_value("<b>Kiosks</b> [x](http://example.invalid)").run()
+    at.button(key="save_model").click().run()
+    assert "report" not in at.session_state or at.session_state["report"] is None
+    at.button(key="prepare_report").click().run()
+    assert not at.exception, at.exception
+    html = at.session_state["report"]["html"]
+    assert html.startswith("<!DOCTYPE html>")
+    assert not NETWORK.search(html), NETWORK.search(html)
+    assert "<script" not in html.lower() and "url(" not in html.lower()
+    assert "<b>Kiosks</b>" not in html and "&lt;b&gt;Kiosks&lt;/b&gt;" in html
+    assert "Cautions" in html and CAUTION_REVIEW in html
+    labels = {b.proto.label for b in at.get("download_button")}
+    assert "Download the report (HTML)" in labels
+    # A change to the model makes the prepared report stale: it is not offered until prepared again.
+    edit_grid(at, {"drink_price": {"transform": "level"}})
+    labels = {b.proto.label for b in at.get("download_button")}
+    assert "Download the report (HTML)" not in labels
