@@ -80,9 +80,16 @@ def read_spec_upload(raw: bytes, frame: pd.DataFrame) -> tuple[dict[str, Any], d
     return spec, saved
 
 
-def restore_notes(spec: dict[str, Any]) -> list[str]:
+def restore_notes(spec: dict[str, Any], frame: pd.DataFrame) -> list[str]:
     """What the screen cannot show of an uploaded spec (and so leaves out of the next fit)."""
     notes = []
+    if spec.get("estimator") == "ppml":
+        note = state.zero_note(frame, spec["outcome"]["column"])
+        if note is None or not note["ppml_possible"]:
+            notes.append(
+                "The spec fits by Poisson pseudo-maximum likelihood; the app offers it only for an outcome with zeros "
+                "and none below zero, so this one is fitted by least squares."
+            )
     if spec.get("weights"):
         notes.append(f"The spec weights rows by '{spec['weights']}'; the app fits without weights, so this is left out.")
     if spec.get("predict"):
@@ -193,7 +200,7 @@ def _spec_uploaded(use_data: Callable[..., None]) -> None:
     ss.saved_models = others + [{"name": n, "spec": {**s, "name": n}, "data_id": data["id"]} for n, s in saved.items()]
     ss.spec_upload_notes = [
         f"Restored from {upload.name}" + (f" with {len(saved)} saved model(s)." if saved else "."),
-        *restore_notes(spec),
+        *restore_notes(spec, data["frame"]),
     ]
     # A fresh uploader, so the same file can be loaded again after further edits.
     ss.spec_upload_version = ss.get("spec_upload_version", 0) + 1

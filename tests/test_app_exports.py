@@ -404,3 +404,12 @@ def test_report_download_is_self_contained() -> None:
     edit_grid(at, {"drink_price": {"transform": "level"}})
     labels = {b.proto.label for b in at.get("download_button")}
     assert "Download the report (HTML)" not in labels
+
+
+def test_restore_notes_say_what_the_screen_leaves_out() -> None:
+    frame = pd.read_csv(DEMO_CSV)
+    assert exports.restore_notes(DEMO_SPEC, frame) == []
+    notes = exports.restore_notes({**DEMO_SPEC, "weights": "foot_traffic", "estimator": "ppml"}, frame)
+    assert len(notes) == 2 and "least squares" in notes[0] and "weights rows by 'foot_traffic'" in notes[1]
+    with_zeros = {**DEMO_SPEC, "outcome": {"column": "catering_orders", "transform": "level"}, "estimator": "ppml"}
+    assert exports.restore_notes(with_zeros, frame) == []
