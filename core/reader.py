@@ -10,6 +10,9 @@ it made in plain notes (``read_table_with_notes``). The file itself is only ever
 
 Clean numeric columns are parsed by pandas directly (fast); only columns that pandas leaves as
 text go through the cell-by-cell converter, and there each distinct value is parsed once.
+pandas parses the file's bytes in the encoding found; the encoding is checked a piece at a time
+and only a head of the text is decoded for sniffing, so no decoded copy of the whole file is
+ever held (memory stays near the file's size plus the table).
 """
 
 from __future__ import annotations
@@ -48,6 +51,8 @@ _INFINITIES.update({"-inf": -math.inf, "-infinity": -math.inf, "−inf": -math.i
 _DELIMITERS = (",", "\t", ";", "|")
 _DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
 _SNIFF_CHARS = 131_072
+# Bytes decoded at a time when a whole file's encoding is checked.
+_DECODE_BYTES = 4 * 1024 * 1024
 _SNIFF_RECORDS = 300
 _OTHER_FORMATS = {
     ".xls": "the old Excel format (.xls)",
@@ -171,34 +176,82 @@ def _load(source: str | Path | bytes, name: str | None) -> tuple[bytes, str]:
 
 
 # --- text files ---------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class _Encoded:
+    """How the file's bytes are text: the codec, where the text starts (after a UTF-8 byte-order
+    mark) and the plain name of the encoding for the notes. The whole file is never held as one
+    decoded string: pandas parses the bytes itself, and only a head is decoded for sniffing."""
+
+    raw: bytes
+    codec: str
+    offset: int
+    description: str
+
+    def head(self, chars: int) -> tuple[str, bool]:
+        """At least ``chars`` characters from the start of the text (all of it if shorter),
+        and whether that is the whole text."""
+        size = 4 * chars + 8  # no codec here uses more than 4 bytes a character
+        while True:
+            piece = self.raw[self.offset : self.offset + size]
+            whole = self.offset + size >= len(self.raw)
+            text = codecs.getincrementaldecoder(self.codec)().decode(piece, final=whole)
+            if whole or len(text) >= chars:
+                return text, whole
+            size *= 2
+
+    def pieces(self) -> Any:
+        """The text in pieces of about 4 MB, decoded one at a time."""
+        decoder = codecs.getincrementaldecoder(self.codec)()
+        view = memoryview(self.raw)
+        for start in range(self.offset, len(self.raw), _DECODE_BYTES):
+            yield decoder.decode(view[start : start + _DECODE_BYTES])
+        yield decoder.decode(b"", final=True)
+
+    def stream(self) -> io.TextIOWrapper:
+        """The text as a file, read as ``io.StringIO(text)`` would read it (lines end at \\n)."""
+        buffer = io.BytesIO(self.raw)
+        buffer.seek(self.offset)
+        return io.TextIOWrapper(buffer, encoding=self.codec, newline="\n")
+
+    def is_blank(self) -> bool:
+        """True when the text is empty or only whitespace (``not text.strip()``)."""
+        return all(piece.isspace() or not piece for piece in self.pieces())
+
+
 def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.DataFrame, str]:
-    if not raw.strip():
+    if not raw or raw.isspace():  # not raw.strip(), without copying the file
         raise DataError(f"'{name}' is empty; it needs a header row and data rows.")
-    text, encoding = _decode(raw, name)
-    _reject_non_tables(text, name)
-    if not text.strip():
+    encoded = _decode(raw, name)
+    # Enough text to sniff: more than _SNIFF_CHARS characters tells the sniffer the file goes on.
+    head, whole = encoded.head(_SNIFF_CHARS + 1)
+    _reject_non_tables(encoded, head, whole, name)
+    if (not head.strip()) and (whole or encoded.is_blank()):
         raise DataError(f"'{name}' is empty; it needs a header row and data rows.")
-    delimiter, skip, header_fields, sample, hint = _sniff(text, name)
+    delimiter, skip, header_fields, sample, hint = _sniff(head, name)
     if len(header_fields) > MAX_COLUMNS:
         raise _too_wide(name, len(header_fields))
     decimal, ambiguous = _decimal_mark(itertools.chain.from_iterable(sample))
-    described = f"{_DELIMITER_NAMES.get(delimiter, repr(delimiter))}-separated text, {encoding}"
+    described = f"{_DELIMITER_NAMES.get(delimiter, repr(delimiter))}-separated text, {encoded.description}"
     if decimal == ",":
         described += ", decimal comma"
     notes.append(f"read '{name}' as {described}.")
     if hint:
         notes.append(hint)
-    titles = sum(1 for line in text.splitlines()[:skip] if line.strip()) if not hint else 0
+    # The skipped lines lie within the sniffed sample, so the head holds them.
+    titles = sum(1 for line in head.splitlines()[:skip] if line.strip()) if not hint else 0
     if titles:
         notes.append(f"skipped {titles} line{'s' if titles > 1 else ''} above the header row (a title or note, not data).")
     if ambiguous:
         notes.append(ambiguous)
+    source = io.BytesIO(raw)  # shares the bytes, no copy
+    source.seek(encoded.offset)
     try:
         with warnings.catch_warnings():
             # A row longer than the header would lose cells silently; make that an error.
             warnings.simplefilter("error", pd.errors.ParserWarning)
             body = pd.read_csv(
-                io.StringIO(text),
+                source,
+                encoding=encoded.codec,
                 sep=delimiter,
                 header=0,
                 skiprows=skip,
@@ -212,7 +265,7 @@ def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.
     except pd.errors.EmptyDataError:
         raise DataError(f"'{name}' has no header row or data; it needs a header row and data rows.") from None
     except (pd.errors.ParserError, pd.errors.ParserWarning, ValueError, OverflowError, csv.Error) as exc:
-        raise _ragged(text, name, delimiter, skip, exc) from None
+        raise _ragged(encoded.stream(), name, delimiter, skip, exc) from None
     pandas_names = [str(c) for c in body.columns]
     if len(header_fields) != len(pandas_names):
         # The sniffed sample disagrees with pandas (e.g. a header spanning lines); trust pandas.
@@ -221,40 +274,59 @@ def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.
     return header_fields, body, decimal
 
 
-def _decode(raw: bytes, name: str) -> tuple[str, str]:
-    """The text of the file and a plain name of its encoding."""
+def _decodes(raw: bytes, codec: str, offset: int) -> bool:
+    """Whether raw[offset:] decodes under ``codec``, checked a piece at a time (no decoded copy)."""
+    if codec == "utf-8" and raw.isascii():
+        return True
+    decoder = codecs.getincrementaldecoder(codec)()
+    view = memoryview(raw)
+    try:
+        for start in range(offset, len(raw), _DECODE_BYTES):
+            decoder.decode(view[start : start + _DECODE_BYTES])
+        decoder.decode(b"", final=True)
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+def _decode(raw: bytes, name: str) -> _Encoded:
+    """The encoding of the file's text: UTF-16 by its byte-order mark, else UTF-8 (with or
+    without a byte-order mark), else Windows-1252, else Latin-1 (which takes any bytes)."""
     if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
-        try:
-            return raw.decode("utf-16"), "UTF-16 encoding"
-        except UnicodeDecodeError:
-            raise DataError(f"'{name}' starts like UTF-16 text but does not decode; save it as UTF-8 CSV.") from None
+        if not _decodes(raw, "utf-16", 0):
+            raise DataError(f"'{name}' starts like UTF-16 text but does not decode; save it as UTF-8 CSV.")
+        return _Encoded(raw, "utf-16", 0, "UTF-16 encoding")
     for magic, what in _MAGIC:
         if raw.startswith(magic):
             raise DataError(f"'{name}' is not a text table: it looks like {what}.")
     if b"\x00" in raw[:8192]:
         raise DataError(f"'{name}' looks like a binary file, not a text table; export it as CSV or XLSX.")
+    offset = 0
     if raw.startswith(codecs.BOM_UTF8):
-        try:
-            return raw[3:].decode("utf-8"), "UTF-8 encoding with byte-order mark"
-        except UnicodeDecodeError:
-            raw = raw[3:]
-    try:
-        return raw.decode("utf-8"), "UTF-8 encoding"
-    except UnicodeDecodeError:
-        pass
-    try:
-        return raw.decode("cp1252"), "Windows-1252 encoding"
-    except UnicodeDecodeError:
-        return raw.decode("latin-1"), "Latin-1 encoding"
+        offset = 3
+        if _decodes(raw, "utf-8", offset):
+            return _Encoded(raw, "utf-8", offset, "UTF-8 encoding with byte-order mark")
+    if _decodes(raw, "utf-8", offset):
+        return _Encoded(raw, "utf-8", offset, "UTF-8 encoding")
+    if _decodes(raw, "cp1252", offset):
+        return _Encoded(raw, "cp1252", offset, "Windows-1252 encoding")
+    return _Encoded(raw, "latin-1", offset, "Latin-1 encoding")
 
 
-def _reject_non_tables(text: str, name: str) -> None:
+def _reject_non_tables(encoded: _Encoded, text: str, whole: bool, name: str) -> None:
+    """Binary files and web pages are not tables. ``text`` is the head of the file's text
+    (``whole`` when it is all of it)."""
     head = text[:8192].rstrip("\x1a")  # old DOS files end in Ctrl-Z
     controls = sum(1 for ch in head if (ord(ch) < 32 and ch not in "\t\n\r\f\v") or 0x7F <= ord(ch) <= 0x9F)
     # Random bytes are about 1 in 8 control characters; text has none, bar a stray few.
     if controls > max(8, 0.01 * len(head)):
         raise DataError(f"'{name}' looks like a binary file, not a text table; export it as CSV or XLSX.")
-    start = text.lstrip("\ufeff \t\r\n")[:2048].lower()
+    skipped = "\ufeff \t\r\n"
+    start = text.lstrip(skipped)
+    while len(start) < 2048 and not whole:  # a very long run of blank lines: read further
+        text, whole = encoded.head(2 * len(text))
+        start = text.lstrip(skipped)
+    start = start[:2048].lower()
     markup = start.startswith(("<!doctype", "<html", "<?xml", "<table", "<head", "<body", "<!--", "<div", "<meta"))
     if markup or ("<html" in start and start.startswith("<")):
         raise DataError(
@@ -281,7 +353,9 @@ def _records(sample: str, delimiter: str) -> list[tuple[int, list[str]]]:
 
 
 def _sniff(text: str, name: str) -> tuple[str, int, list[str], list[list[str]], str | None]:
-    """Delimiter, lines to skip above the header, header fields, sample data rows, hint note."""
+    """Delimiter, lines to skip above the header, header fields, sample data rows, hint note.
+
+    ``text`` is the file's text or a head of it longer than ``_SNIFF_CHARS`` characters."""
     sample = text[:_SNIFF_CHARS]
     if len(text) > _SNIFF_CHARS and "\n" in sample:
         sample = sample[: sample.rfind("\n") + 1]  # whole records only
@@ -356,9 +430,10 @@ def _too_wide(name: str, width: int) -> DataError:
     )
 
 
-def _ragged(text: str, name: str, delimiter: str, skip: int, exc: Exception) -> DataError:
-    """Name the first line that has more fields than the header, if there is one."""
-    reader = csv.reader(io.StringIO(text), delimiter=delimiter, strict=False)
+def _ragged(lines: Any, name: str, delimiter: str, skip: int, exc: Exception) -> DataError:
+    """Name the first line that has more fields than the header, if there is one (``lines``:
+    the file's text as a stream)."""
+    reader = csv.reader(lines, delimiter=delimiter, strict=False)
     width = None
     try:
         for _ in range(skip):
