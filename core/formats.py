@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from core.tables import neutralise, render, result_tables
+from core.tables import markdown_escape, neutralise, render, result_tables
 
 
 def to_json(result: dict[str, Any]) -> str:
@@ -22,10 +22,10 @@ def model_sentence(result: dict[str, Any]) -> str:
 
 def to_markdown(result: dict[str, Any]) -> str:
     """A memo-ready summary: model, coefficients, effects, checks, warnings and cautions."""
-    out = ["# Formwise results", "", model_sentence(result), "", render(result_tables(result), "markdown")]
+    out = ["# Formwise results", "", markdown_escape(model_sentence(result)), "", render(result_tables(result), "markdown")]
     if result.get("warnings"):
-        out += ["## Warnings", ""] + [f"- {w}" for w in result["warnings"]] + [""]
-    out += ["## Cautions", ""] + [f"- {c}" for c in result.get("cautions", [])]
+        out += ["## Warnings", ""] + [f"- {markdown_escape(w)}" for w in result["warnings"]] + [""]
+    out += ["## Cautions", ""] + [f"- {markdown_escape(c)}" for c in result.get("cautions", [])]
     return "\n".join(out) + "\n"
 
 

@@ -151,8 +151,12 @@ def build_report(
         "<h2>Cautions</h2>",
         *[f'<div class="caution">{escape(c)}</div>' for c in [*result["cautions"], CAUTION_REVIEW]],
     ]
-    if result["n_obs"] < 30:
-        blocks.append(f'<div class="caution">Small sample: {result["n_obs"]} rows. Treat every figure as fragile.</div>')
+    n_coefficients = len(result.get("terms", [])) or 1
+    if result["n_obs"] < max(30, 10 * n_coefficients):
+        blocks.append(
+            f'<div class="caution">Small sample: {result["n_obs"]} rows for {n_coefficients} coefficients '
+            "(fewer than 30 rows, or fewer than 10 per coefficient). Treat every figure as fragile.</div>"
+        )
     if result["warnings"]:
         blocks.append(
             "<h2>Warnings for this model</h2><ul>" + "".join(f"<li>{escape(w)}</li>" for w in result["warnings"]) + "</ul>"

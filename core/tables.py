@@ -176,11 +176,23 @@ def to_csv(table: Table) -> str:
     return buffer.getvalue()
 
 
+# Characters that change meaning inside a Markdown table cell or paragraph (CommonMark §2.4).
+_MARKDOWN_SPECIAL = set("\\`*_{}[]()#+!|<>$~")
+
+
+def markdown_escape(text: str) -> str:
+    """User text as literal Markdown: special characters backslash-escaped, line breaks folded,
+    and bare URLs broken with a word joiner so no renderer turns them into links or images."""
+    escaped = "".join("\\" + ch if ch in _MARKDOWN_SPECIAL else ch for ch in text.replace("\r", " ").replace("\n", " "))
+    return escaped.replace("://", ":\u2060//").replace("www", "w\u2060ww").replace("@", "@\u2060")
+
+
 def to_markdown(table: Table) -> str:
     def clean(cell: Cell) -> str:
-        return format_cell(cell).replace("|", "\\|").replace("\n", " ")
+        text = format_cell(cell)
+        return text if isinstance(cell, (int, float)) else markdown_escape(text)
 
-    lines = [f"**{table.title}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
+    lines = [f"**{markdown_escape(table.title)}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
     lines.append("|" + "|".join("---:" if _numeric_column(table, i) else "---" for i in range(len(table.header))) + "|")
     lines += ["| " + " | ".join(clean(c) for c in row) + " |" for row in table.rows]
     return "\n".join(lines) + "\n"

@@ -91,3 +91,16 @@ def test_comparison_table_renders_in_every_format() -> None:
     table = comparison_table(results)
     for fmt in ("csv", "markdown", "latex"):
         assert "R² on the original scale" in render([table], fmt)
+
+
+def test_markdown_tables_keep_user_text_literal() -> None:
+    from core.tables import Table, to_markdown
+
+    table = Table(
+        "t",
+        ["name"],
+        [["![px](http://127.0.0.1:9/p.png)"], ["<img src=x>"], ["[a](javascript:alert(1))"], ["www.example.invalid"]],
+    )
+    text = to_markdown(table)
+    assert "![" not in text and "](" not in text and "<img" not in text and "://" not in text and "www." not in text
+    assert r"\!\[px\]" in text
