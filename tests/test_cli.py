@@ -59,7 +59,7 @@ def test_markdown_output_to_file(tmp_path: Path) -> None:
     done = run("analyze", "--demo", "--format", "markdown", "--out", str(out))
     assert done.returncode == 0, done.stderr
     text = out.read_text()
-    assert "| Term | Estimate |" in text and "drink_price" in text
+    assert "| Term | Estimate |" in text and r"drink\_price" in text  # user text escaped for Markdown
 
 
 @pytest.mark.parametrize(

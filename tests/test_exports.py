@@ -102,5 +102,7 @@ def test_markdown_tables_keep_user_text_literal() -> None:
         [["![px](http://127.0.0.1:9/p.png)"], ["<img src=x>"], ["[a](javascript:alert(1))"], ["www.example.invalid"]],
     )
     text = to_markdown(table)
-    assert "![" not in text and "](" not in text and "<img" not in text and "://" not in text and "www." not in text
-    assert r"\!\[px\]" in text
+    # Every bracket, angle bracket and bang is escaped, and no URL survives whole.
+    assert re.search(r"(?<!\\)[\[\]()<>!]", text.replace("**t**", "")) is None
+    assert r"\!\[px\]\(" in text and r"\<img" in text
+    assert "://" not in text and "www." not in text
