@@ -97,3 +97,28 @@ def test_residual_checks_against_statsmodels(data):
     full = sm.OLS(design.y, np.column_stack([design.X, z**2, z**3])).fit()
     f_value, _, _ = full.compare_f_test(reference)
     assert result["reset"]["statistic"] == pytest.approx(f_value, rel=1e-8)
+
+
+def _lstsq_r2(v: np.ndarray, Z: np.ndarray) -> float:
+    """R² = 1 - SSR/SST (SST centred) of v on Z by numpy's SVD least squares."""
+    coef = np.linalg.lstsq(Z, v, rcond=None)[0]
+    resid = v - Z @ coef
+    return 1.0 - float(resid @ resid) / float(((v - v.mean()) ** 2).sum())
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_white_with_a_quadratic_and_weights_matches_a_direct_least_squares(data, weighted):
+    """age and age² give products that repeat others exactly (age·age = 1·age²); the df is the
+    rank of the auxiliary design less one, the statistic n·R² of the direct fit."""
+    spec = _spec("HC1", **({"weights": "w"} if weighted else {}))
+    spec["regressors"][1]["transform"] = "quadratic"
+    small = data.iloc[:30_000]
+    result = core.analyze(small, spec, parts={"diagnostics"})["diagnostics"]
+    design, fit, _ = fit_model(small, parse_spec(spec, small))
+    root = np.sqrt(fit.weights) if weighted else np.ones(len(fit.resid))
+    u, Xw = fit.resid * root, np.asarray(design.X) * root[:, None]
+    i0, i1 = np.triu_indices(Xw.shape[1])
+    Z = Xw[:, i0] * Xw[:, i1]
+    assert result["white"]["df"] == np.linalg.matrix_rank(Z) - 1
+    assert result["white"]["statistic"] == pytest.approx(len(u) * _lstsq_r2(u * u, Z), rel=1e-8)
+    assert result["breusch_pagan"]["statistic"] == pytest.approx(len(u) * _lstsq_r2(u * u, Xw), rel=1e-8)
