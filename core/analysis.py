@@ -13,7 +13,7 @@ from scipy import stats
 
 from core.covariance import covariance, sandwich
 from core.curves import effect_curve
-from core.design import Design, build_design
+from core.design import Design, build_design, rescaled_design
 from core.diagnostics import diagnostics
 from core.effects import Model, compute_effects, gap_curve
 from core.errors import DataError, FormwiseError
@@ -133,7 +133,7 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
         for block in design.encoder.blocks:
             code = block.spec.transform.code
             if code == "ihs" or code.startswith("shifted_log"):
-                check = units_check(data, model_spec, block.spec.column)
+                check = units_check(data, model_spec, block.spec.column, (design, fit, model))
                 checks.append(check)
                 if check["moves"]:
                     warnings.append(
@@ -154,7 +154,11 @@ def fit_model(data: pd.DataFrame, model_spec: ModelSpec) -> tuple[Design, OLSFit
     (residuals y - μ̂, fitted values the index x'b, r2 the squared correlation of y and μ̂), and
     the model is seen by the effect engine as a log-link mean with no residual spread.
     """
-    design = build_design(data, model_spec)
+    return fit_design(build_design(data, model_spec), model_spec)
+
+
+def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
+    """Fit and covariance on a built design (see ``fit_model``)."""
     names = [t.name for t in design.terms]
     with np.errstate(all="ignore"):
         fit = fit_ols(design.X, design.y, design.weights, names)  # also screens for collinearity
@@ -197,30 +201,41 @@ def _rescaled_change(change: Change | None, factor: float) -> Change | None:
     return Change(text=f"{start:g}->{end:g}", kind="switch", start=start, end=end)
 
 
-def units_check(data: pd.DataFrame, model_spec: ModelSpec, column: str) -> dict[str, Any]:
+def units_check(
+    data: pd.DataFrame, model_spec: ModelSpec, column: str, fitted: tuple[Design, OLSFit, Model] | None = None
+) -> dict[str, Any]:
     """Refit with ``column`` measured in other units and report how its effect moves.
 
     A log regressor's slope does not depend on the units (rescaling only shifts the intercept);
     IHS and shifted-log slopes do (Aihounton & Henningsen 2021, Econometrics Journal 24(2);
     Chen & Roth 2024, QJE 139(2)). The change is rescaled with the variable, so the same real
     change is asked each time; the reference point scales with it.
+
+    ``fitted`` is the model already fitted on ``data`` (``fit_model``), if at hand. Each
+    rescaled refit reuses its design and redoes only the rescaled regressor's columns
+    (``core.design.rescaled_design``) unless rescaling changes which rows are used.
     """
-    _, _, base_model = fit_model(data, model_spec)
+    design, _, base_model = fitted if fitted is not None else fit_model(data, model_spec)
     base_effects, _ = compute_effects(base_model, only=column, with_average=False)
     base = next(e for e in base_effects if e["column"] == column)
     rows: list[dict[str, Any]] = [{"factor": 1.0, "exact": base["exact"], "elasticity": base.get("elasticity")}]
-    subset = data[model_spec.columns]
+    work = design.X.copy(order="K")  # overwritten with each rescaling's columns
     for factor in UNIT_FACTORS:
-        scaled = subset.copy()
-        scaled[column] = pd.to_numeric(scaled[column], errors="coerce") * factor
         regressors = tuple(
             replace(r, change=_rescaled_change(r.change, factor)) if r.column == column else r for r in model_spec.regressors
         )
         at = dict(model_spec.at)
         if column in at:
             at[column] = float(at[column]) * factor
+        rescaled_spec = replace(model_spec, regressors=regressors, at=at)
         try:
-            _, _, model = fit_model(scaled, replace(model_spec, regressors=regressors, at=at))
+            rescaled = rescaled_design(data, design, rescaled_spec, column, factor, work)
+            if rescaled is not None:
+                _, _, model = fit_design(rescaled, rescaled_spec)
+            else:
+                scaled = data[model_spec.columns].copy()
+                scaled[column] = pd.to_numeric(scaled[column], errors="coerce") * factor
+                _, _, model = fit_model(scaled, rescaled_spec)
             with np.errstate(all="ignore"):
                 effects, _ = compute_effects(model, only=column, with_average=False)
             found = next(e for e in effects if e["column"] == column)

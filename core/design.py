@@ -8,7 +8,7 @@ the model is evaluated exactly as it was estimated.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -377,33 +377,71 @@ def reference_point(
 ) -> dict[str, Any]:
     """Where effects are evaluated: ``at`` values, else sample means (modes for categories; the
     first in sorted order on ties). ``modes`` may give the modes already counted."""
-    point: dict[str, Any] = {}
-    for block in blocks:
-        column = block.spec.column
-        if column in spec.at:
-            given = spec.at[column]
-            if block.is_category:
-                known = [block.reference_level, *block.levels]
-                matched = match_level(given, known)
-                if matched is None:
-                    raise DataError(
-                        f"spec.at.{column}: '{given}' is not a level of '{column}'; levels are {', '.join(known[:10])}."
-                    )
-                given = matched
-            else:
-                if isinstance(given, str):
-                    raise DataError(f"spec.at.{column}: must be a number in the units of '{column}'.")
-                bad, reason = block.spec.transform.invalid(np.array([float(given)]))
-                if bad[0]:
-                    raise DataError(f"spec.at.{column}: {given:g} cannot be used because {reason}.")
-                given = float(given)
-            point[column] = given
-        elif block.is_category:
-            if modes and column in modes:
-                point[column] = modes[column]
-            else:
-                labels, counts = np.unique(np.asarray(values[column]).astype(str), return_counts=True)
-                point[column] = str(labels[int(np.argmax(counts))])
-        else:
-            point[column] = float(np.mean(values[column]))
-    return point
+    return {block.spec.column: reference_value(spec, block, values[block.spec.column], modes) for block in blocks}
+
+
+def reference_value(spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[str, str] | None = None) -> Any:
+    """The reference point's value for one regressor (see ``reference_point``); x its values."""
+    column = block.spec.column
+    if column in spec.at:
+        given = spec.at[column]
+        if block.is_category:
+            known = [block.reference_level, *block.levels]
+            matched = match_level(given, known)
+            if matched is None:
+                raise DataError(f"spec.at.{column}: '{given}' is not a level of '{column}'; levels are {', '.join(known[:10])}.")
+            return matched
+        if isinstance(given, str):
+            raise DataError(f"spec.at.{column}: must be a number in the units of '{column}'.")
+        bad, reason = block.spec.transform.invalid(np.array([float(given)]))
+        if bad[0]:
+            raise DataError(f"spec.at.{column}: {given:g} cannot be used because {reason}.")
+        return float(given)
+    if block.is_category:
+        if modes and column in modes:
+            return modes[column]
+        labels, counts = np.unique(np.asarray(x).astype(str), return_counts=True)
+        return str(labels[int(np.argmax(counts))])
+    return float(np.mean(x))
+
+
+def rescaled_design(
+    data: pd.DataFrame, design: Design, spec: ModelSpec, column: str, factor: float, work: np.ndarray | None = None
+) -> Design | None:
+    """``design`` with the numeric regressor ``column`` multiplied by ``factor``, for ``spec``
+    (the model's spec with that regressor's change and ``at`` value rescaled): only that
+    regressor's design columns, values and reference value are redone, the rest is shared.
+
+    The result equals ``build_design`` on the rescaled data whenever the same rows are used; None
+    when rescaling changes which rows the column allows (or the column also holds the weights,
+    the clusters or the outcome), and the design must be built afresh. ``work``, a copy of
+    ``design.X`` that may be overwritten, saves allocating one.
+    """
+    if column in (spec.weights, spec.cluster, spec.outcome_column):
+        return None
+    block = design.encoder.block(column)
+    regressor = next(r for r in spec.regressors if r.column == column)
+    if block.is_category or isinstance(regressor.transform, Category):
+        return None
+    raw = _numeric(data[column], column)
+    with np.errstate(all="ignore"):
+        scaled = raw * factor
+
+    def usable(x: np.ndarray) -> np.ndarray:
+        bad, _ = regressor.transform.invalid(x)
+        return np.isfinite(x) & ~bad
+
+    if not np.array_equal(usable(raw), usable(scaled)):
+        return None
+    x = scaled if len(design.rows) == len(scaled) else scaled[design.rows]
+    if float(np.ptp(x)) == 0:
+        return None
+    changed = Block(regressor, block.start, block.stop, binary=bool(np.isin(x, (0.0, 1.0)).all()))
+    blocks = [changed if b is block else b for b in design.encoder.blocks]
+    X = work if work is not None else design.X.copy(order="K")
+    X[:, block.start : block.stop] = regressor.transform.basis(x)
+    values = dict(design.values)
+    values[column] = x
+    reference = dict(design.reference)
+    reference[column] = reference_value(spec, changed, x)
+    return replace(design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference)
