@@ -143,6 +143,14 @@ def _numeric(series: pd.Series, column: str) -> np.ndarray:
     return converted.to_numpy(dtype=float, na_value=np.nan)
 
 
+def _zero_one(x: np.ndarray) -> bool:
+    """Whether every value is 0 or 1 (a dummy); most columns fail on their first rows."""
+    head = x[:256]
+    if not ((head == 0.0) | (head == 1.0)).all():
+        return False
+    return bool(((x == 0.0) | (x == 1.0)).all())
+
+
 def _category_codes(series: pd.Series) -> Coded:
     """Integer codes of a category column (pandas.factorize) and the name, ``str(value)``, of
     each code. Codes are -1 exactly where the cell is missing (``Series.isna``).
@@ -186,12 +194,13 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
     keep = np.ones(n_total, dtype=bool)
 
     def drop(mask: np.ndarray, column: str, reason: str) -> None:
-        count = int(mask.sum())
+        count = int(np.count_nonzero(mask))
         if count:
             dropped.append({"column": column, "reason": reason, "count": count})
             keep[mask] = False
 
     raw: dict[str, np.ndarray] = {}
+    finite: dict[str, np.ndarray] = {}
     coded: dict[str, Coded] = {}
     category_columns = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
     group_labels = None
@@ -210,22 +219,22 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
             continue
         values = _numeric(series, column)
         raw[column] = values
-        drop(np.isnan(values), column, "missing value")
-        drop(np.isinf(values), column, "infinite value")
+        finite[column] = np.isfinite(values)
+        if not finite[column].all():
+            drop(np.isnan(values), column, "missing value")
+            drop(np.isinf(values), column, "infinite value")
 
     y_transform = spec.outcome_transform
-    finite = np.isfinite(raw[spec.outcome_column])
     bad, reason = y_transform.invalid(raw[spec.outcome_column])
-    drop(bad & finite, spec.outcome_column, reason)
+    drop(bad & finite[spec.outcome_column], spec.outcome_column, reason)
     for reg in spec.regressors:
         if reg.column in category_columns:
             continue
-        finite = np.isfinite(raw[reg.column])
         bad, reason = reg.transform.invalid(raw[reg.column])
-        drop(bad & finite, reg.column, reason)
+        drop(bad & finite[reg.column], reg.column, reason)
     if spec.weights:
         w = raw[spec.weights]
-        drop(np.isfinite(w) & ~(w > 0), spec.weights, "weights must be above zero")
+        drop(finite[spec.weights] & ~(w > 0), spec.weights, "weights must be above zero")
 
     for entry in dropped:
         if entry["column"] == spec.weights and entry["reason"] == "weights must be above zero":
@@ -299,7 +308,7 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
                 f"regressor '{reg.column}' has the same value ({x[0]:g}) in every row used, so its effect "
                 "cannot be estimated; remove it from the regressors."
             )
-        binary = bool(n) and bool(np.isin(x, (0.0, 1.0)).all())
+        binary = bool(n) and _zero_one(x)
         blocks.append(Block(reg, width, width + reg.transform.width, binary=binary))
         for power in reg.transform.powers():
             name = reg.column if reg.transform.code == "level" else f"{reg.transform.code}({reg.column})"
@@ -436,7 +445,7 @@ def rescaled_design(
     x = scaled if len(design.rows) == len(scaled) else scaled[design.rows]
     if float(np.ptp(x)) == 0:
         return None
-    changed = Block(regressor, block.start, block.stop, binary=bool(np.isin(x, (0.0, 1.0)).all()))
+    changed = Block(regressor, block.start, block.stop, binary=_zero_one(x))
     blocks = [changed if b is block else b for b in design.encoder.blocks]
     X = work if work is not None else design.X.copy(order="K")
     X[:, block.start : block.stop] = regressor.transform.basis(x)

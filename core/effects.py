@@ -32,6 +32,7 @@ The small-sample adjusted dummy effect in a log model is 100·(exp(Δη - ½·Va
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from typing import Any
 
@@ -310,11 +311,13 @@ def _outside(x: np.ndarray, x0: float, x1: float) -> bool:
     return bool(min(x0, x1) < low or max(x0, x1) > high)
 
 
+@functools.lru_cache(maxsize=8)
 def _average_rows(n: int, limit: int) -> np.ndarray:
-    """The rows the sample average is taken over: all of them, or a seeded random sample."""
-    if n <= limit:
-        return np.arange(n)
-    return np.sort(np.random.default_rng(0).choice(n, limit, replace=False))
+    """The rows the sample average is taken over: all of them, or a seeded random sample (the
+    same for every effect and every refit of n rows, so drawn once; read-only)."""
+    rows = np.arange(n) if n <= limit else np.sort(np.random.default_rng(0).choice(n, limit, replace=False))
+    rows.flags.writeable = False
+    return rows
 
 
 def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float) -> float | None:

@@ -66,9 +66,9 @@ class OLSFit:
         return self.n - self.k
 
 
-def row_chunks(n: int, size: int = CHUNK_ROWS) -> range:
-    """Start rows of the chunks that passes over the data work on."""
-    return range(0, n, size)
+def row_chunks(n: int, size: int | None = None) -> range:
+    """Start rows of the chunks that passes over the data work on (``CHUNK_ROWS`` rows each)."""
+    return range(0, n, size or CHUNK_ROWS)
 
 
 def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, names: list[str] | None = None) -> OLSFit:

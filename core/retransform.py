@@ -66,7 +66,12 @@ def fit_on_original_scale(model: Model, y_raw: np.ndarray, fitted: np.ndarray, l
     n = len(y_raw)
     smeared = smear_rows(model, fitted)
     with np.errstate(all="ignore"):
-        r2 = float(np.corrcoef(y_raw, smeared)[0, 1] ** 2) if np.std(smeared) > 0 else float("nan")
+        # Squared correlation (as numpy.corrcoef, without stacking copies of the two columns).
+        a, b = y_raw - y_raw.mean(), smeared - smeared.mean()
+        spread = float(b @ b)
+        r2 = (
+            float(np.clip(float(a @ b) / np.sqrt(float(a @ a)) / np.sqrt(spread), -1.0, 1.0) ** 2) if spread > 0 else float("nan")
+        )
         ll = loglik + float(np.sum(model.outcome.log_jacobian(y_raw)))
     measures = {
         "r2_original_scale": r2,
