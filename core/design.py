@@ -4,6 +4,11 @@ Rows a transform cannot take, and rows with missing or infinite cells, are dropp
 counted per column and reason, never silently. The ``Encoder`` maps original-unit values
 of the regressors to design rows; fitting, effects, curves and predictions all use it, so
 the model is evaluated exactly as it was estimated.
+
+At a million rows: category columns are turned into integer codes once (pandas.factorize;
+a level's name is str() of the cell) and counted with numpy.bincount; the design matrix is
+column-major (Fortran order), so each block writes whole columns and the row-chunked passes
+of the fit read every column of a chunk; with no row dropped no column is gathered.
 """
 
 from __future__ import annotations
