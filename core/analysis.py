@@ -67,6 +67,7 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
         "dropped": design.dropped,
         "outcome": {"column": model_spec.outcome_column, "transform": model_spec.outcome_transform.code},
         "covariance": model_spec.covariance,
+        "estimator": model_spec.estimator,
         "reference_point": design.reference,
     }
     if fit.n < max(SMALL_SAMPLE, 10 * fit.k):

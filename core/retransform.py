@@ -287,8 +287,9 @@ def predict(model: Model, points: list[dict[str, Any]], sigma: float, confidence
                 "smearing": float(smear_rows(model, np.array([eta]))[0]),
                 "mean_ci_low": float(smear_rows(model, np.array([eta - t * se]))[0]),
                 "mean_ci_high": float(smear_rows(model, np.array([eta + t * se]))[0]),
-                "interval_low": float(g_inv(np.array([eta - t * spread]))[0]),
-                "interval_high": float(g_inv(np.array([eta + t * spread]))[0]),
+                # PPML models the mean only (sigma 0 here): no interval for a new observation.
+                "interval_low": float(g_inv(np.array([eta - t * spread]))[0]) if sigma > 0 else None,
+                "interval_high": float(g_inv(np.array([eta + t * spread]))[0]) if sigma > 0 else None,
                 "outside_observed_range": outside,
             }
         )
