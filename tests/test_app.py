@@ -17,6 +17,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables
+from tests.app_support import edit_grid, show, start
 from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -26,11 +27,6 @@ TIMEOUT = 90
 
 
 # --- helpers ---------------------------------------------------------------------------------------
-def start() -> AppTest:
-    at = AppTest.from_file(MAIN, default_timeout=TIMEOUT)
-    at.run()
-    assert not at.exception, at.exception
-    return at
 
 
 def table_with(at: AppTest, column: str) -> pd.DataFrame:
@@ -43,29 +39,8 @@ def coefficients(at: AppTest) -> pd.DataFrame:
     return table_with(at, "What it means")
 
 
-def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
-    """Edit grid rows by column name (e.g. {"drink_price": {"transform": "level"}}) and rerun."""
-    base = at.session_state["grid_base"]
-    rows = {str(c): i for i, c in enumerate(base["column"])}
-    at.session_state[at.session_state["grid_key"]] = {
-        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
-        "added_rows": [],
-        "deleted_rows": [],
-    }
-    at.run()
-    assert not at.exception, at.exception
-    return at
-
-
 def texts(at: AppTest) -> str:
     return shown("\n".join(m.value for m in at.markdown))
-
-
-def show(at: AppTest, view: str) -> AppTest:
-    """Pick one of the result views (only the chosen view is drawn and computed)."""
-    at.segmented_control(key="view").set_value(view).run()
-    assert not at.exception, at.exception
-    return at
 
 
 # --- the screen --------------------------------------------------------------------------------------

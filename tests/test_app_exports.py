@@ -26,6 +26,7 @@ import core
 from app import charts, exports, state, tables
 from core import tables as core_tables
 from core.report import CAUTION_REVIEW
+from tests.app_support import edit_grid, show, start
 from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -37,30 +38,6 @@ SCREENSHOTS = ROOT / "tests" / "screenshots"
 
 
 # --- helpers ---------------------------------------------------------------------------------------
-def start() -> AppTest:
-    at = AppTest.from_file(MAIN, default_timeout=TIMEOUT)
-    at.run()
-    assert not at.exception, at.exception
-    return at
-
-
-def show(at: AppTest, view: str) -> AppTest:
-    at.segmented_control(key="view").set_value(view).run()
-    assert not at.exception, at.exception
-    return at
-
-
-def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
-    base = at.session_state["grid_base"]
-    rows = {str(c): i for i, c in enumerate(base["column"])}
-    at.session_state[at.session_state["grid_key"]] = {
-        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
-        "added_rows": [],
-        "deleted_rows": [],
-    }
-    at.run()
-    assert not at.exception, at.exception
-    return at
 
 
 def chart_elements(at: AppTest) -> list[tuple[dict[str, Any], dict[str, Any]]]:

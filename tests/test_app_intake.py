@@ -15,6 +15,7 @@ import core
 from app import intake, state
 from core.profile import profile_table
 from core.reader import read_table_with_notes
+from tests.app_support import edit_grid
 
 ROOT = Path(__file__).resolve().parent.parent
 MAIN = str(ROOT / "app" / "main.py")
@@ -33,19 +34,6 @@ def start() -> AppTest:
 def upload(at: AppTest, name: str, raw: bytes | None = None) -> AppTest:
     data = (CORPUS / name).read_bytes() if raw is None else raw
     at.file_uploader[0].set_value((name, data, "application/octet-stream")).run()
-    assert not at.exception, at.exception
-    return at
-
-
-def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
-    base = at.session_state["grid_base"]
-    rows = {str(c): i for i, c in enumerate(base["column"])}
-    at.session_state[at.session_state["grid_key"]] = {
-        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
-        "added_rows": [],
-        "deleted_rows": [],
-    }
-    at.run()
     assert not at.exception, at.exception
     return at
 

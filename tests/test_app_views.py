@@ -19,6 +19,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables, views
+from tests.app_support import edit_grid, start
 from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -28,30 +29,12 @@ TIMEOUT = 120
 
 
 # --- helpers ---------------------------------------------------------------------------------------
-def start() -> AppTest:
-    at = AppTest.from_file(MAIN, default_timeout=TIMEOUT)
-    at.run()
-    assert not at.exception, at.exception
-    return at
 
 
 def show(at: AppTest, view: str) -> AppTest:
     at.segmented_control(key="view").set_value(view).run()
     assert not at.exception, at.exception
     assert not at.error, [e.value for e in at.error]
-    return at
-
-
-def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
-    base = at.session_state["grid_base"]
-    rows = {str(c): i for i, c in enumerate(base["column"])}
-    at.session_state[at.session_state["grid_key"]] = {
-        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
-        "added_rows": [],
-        "deleted_rows": [],
-    }
-    at.run()
-    assert not at.exception, at.exception
     return at
 
 

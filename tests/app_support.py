@@ -1,0 +1,43 @@
+"""Driving the app in AppTest the way the browser does, shared by the app test files.
+
+A data_editor's edits are session state ({"edited_rows", "added_rows", "deleted_rows"}) under
+the editor's key, which the app keeps in ``session_state["grid_key"]``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from streamlit.testing.v1 import AppTest
+
+ROOT = Path(__file__).resolve().parent.parent
+MAIN = str(ROOT / "app" / "main.py")
+TIMEOUT = 120
+
+
+def start() -> AppTest:
+    at = AppTest.from_file(MAIN, default_timeout=TIMEOUT)
+    at.run()
+    assert not at.exception, at.exception
+    return at
+
+
+def edit_grid(at: AppTest, edits: dict[str, dict[str, str]]) -> AppTest:
+    """Edit grid rows by column name (e.g. {"drink_price": {"transform": "level"}}) and rerun."""
+    base = at.session_state["grid_base"]
+    rows = {str(c): i for i, c in enumerate(base["column"])}
+    at.session_state[at.session_state["grid_key"]] = {
+        "edited_rows": {rows[name]: cells for name, cells in edits.items()},
+        "added_rows": [],
+        "deleted_rows": [],
+    }
+    at.run()
+    assert not at.exception, at.exception
+    return at
+
+
+def show(at: AppTest, view: str) -> AppTest:
+    """Open one view of the view selector."""
+    at.segmented_control(key="view").set_value(view).run()
+    assert not at.exception, at.exception
+    return at
