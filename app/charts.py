@@ -790,35 +790,41 @@ def _dot_opacity(n: int) -> float:
     return 0.6 if n <= 2_000 else 0.35 if n <= 8_000 else 0.2
 
 
-def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
-    fitted_label = plain(fitted_label)
+def _dots_with_trend(
+    x: Any, y: Any, shown: int, trend: dict[str, Any], trend_name: str, hover: str, zero_line: bool
+) -> go.Figure:
+    """Rows as faint dots with a moving-average line: the shape of both residual scatter charts."""
     fig = go.Figure()
     fig.add_trace(
         go.Scatter(
-            x=data["fitted"],
-            y=data["resid"],
+            x=x,
+            y=y,
             mode="markers",
             name="Rows",
-            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(data["shown"])},
-            hovertemplate="fitted %{x:.4g}<br>residual %{y:.3g}<extra></extra>",
+            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(shown)},
+            hovertemplate=hover,
         )
     )
     fig.add_trace(
         go.Scatter(
-            x=data["trend"]["x"],
-            y=data["trend"]["y"],
-            mode="lines",
-            name="Average residual",
-            line={"color": VERMILLION, "width": 3},
-            hoverinfo="skip",
+            x=trend["x"], y=trend["y"], mode="lines", name=trend_name, line={"color": VERMILLION, "width": 3}, hoverinfo="skip"
         )
     )
-    fig.add_hline(y=0, line={"color": INK, "width": 1.2})
+    if zero_line:
+        fig.add_hline(y=0, line={"color": INK, "width": 1.2})
+    return fig
+
+
+def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
+    fig = _dots_with_trend(
+        data["fitted"], data["resid"], data["shown"], data["trend"], "Average residual",
+        "fitted %{x:.4g}<br>residual %{y:.3g}<extra></extra>", zero_line=True,
+    )  # fmt: skip
     return _style(
         fig,
         "Residuals against fitted values",
         "Good: an even cloud around zero, flat red line",
-        f"Fitted {fitted_label}",
+        f"Fitted {plain(fitted_label)}",
         "Residual",
         height=470,
         title_size=22,
@@ -902,33 +908,15 @@ def residual_histogram(data: dict[str, Any]) -> go.Figure:
 
 
 def scale_location_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
-    fitted_label = plain(fitted_label)
-    fig = go.Figure()
-    fig.add_trace(
-        go.Scatter(
-            x=data["fitted"],
-            y=data["root_abs"],
-            mode="markers",
-            name="Rows",
-            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(data["shown"])},
-            hovertemplate="fitted %{x:.4g}<br>%{y:.3g}<extra></extra>",
-        )
-    )
-    fig.add_trace(
-        go.Scatter(
-            x=data["spread_trend"]["x"],
-            y=data["spread_trend"]["y"],
-            mode="lines",
-            name="Average",
-            line={"color": VERMILLION, "width": 3},
-            hoverinfo="skip",
-        )
-    )
+    fig = _dots_with_trend(
+        data["fitted"], data["root_abs"], data["shown"], data["spread_trend"], "Average",
+        "fitted %{x:.4g}<br>%{y:.3g}<extra></extra>", zero_line=False,
+    )  # fmt: skip
     return _style(
         fig,
         "Spread of residuals against fitted values",
         "Good: a flat red line; rising or falling means the spread changes",
-        f"Fitted {fitted_label}",
+        f"Fitted {plain(fitted_label)}",
         "√|standardised residual|",
         height=470,
         title_size=22,
