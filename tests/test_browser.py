@@ -239,3 +239,34 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     assert header[:8] == b"\x89PNG\r\n\x1a\n" and struct.unpack(">II", header[16:24]) == (3840, 2160)
     _no_error_text(page)
     assert page.problems == []
+
+
+def test_report_opens_offline_without_console_errors(browser, tmp_path: Path) -> None:
+    import json
+
+    import pandas as pd
+
+    from core.report import build_report
+    from tests.browser_support import ROOT
+
+    data = pd.read_csv(ROOT / "demo_data" / "kiosks.csv")
+    spec = json.loads((ROOT / "demo_data" / "default_spec.json").read_text())
+    level = json.loads(json.dumps(spec))
+    level["outcome"]["transform"] = "level"
+    report = tmp_path / "report.html"
+    report.write_text(build_report(data, spec, "kiosks.csv", {"log revenue": spec, "level revenue": level}), encoding="utf-8")
+
+    context = browser.new_context(offline=True, viewport={"width": 1200, "height": 900})
+    page = context.new_page()
+    errors: list[str] = []
+    requests: list[str] = []
+    page.on("console", lambda message: errors.append(message.text) if message.type == "error" else None)
+    page.on("pageerror", lambda error: errors.append(str(error)))
+    page.on("request", lambda request: requests.append(request.url))
+    page.goto(report.as_uri())
+    page.get_by_text("Effects of changes").first.wait_for(timeout=30_000)
+    assert page.locator("svg").count() >= 5
+    page.screenshot(path=str(SCREENSHOTS / "browser-report.png"), full_page=False)
+    context.close()
+    assert errors == []
+    assert all(url.startswith(("file:", "data:", "about:")) for url in requests), requests

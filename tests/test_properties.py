@@ -210,3 +210,40 @@ def test_adding_a_constant_to_a_level_outcome_moves_only_the_intercept(seed, shi
     assert rel_err(moved["fit"]["sigma"], base["fit"]["sigma"]) <= 1e-9
     for column in ("x1", "x2"):
         assert abs(effect(moved, column)["exact"] - effect(base, column)["exact"]) <= 1e-9 * scale
+
+
+@pytest.mark.parametrize("y_t", list(OUTCOMES))
+@GRID_SETTINGS
+@given(seed=seeds)
+def test_category_switch_is_the_models_own_prediction_change(y_t, seed):
+    """The seventh regressor transform, category, under every outcome transform: the exact effect
+    of moving from one level to another equals the change of the model's own predictions."""
+    data = invented(seed)
+    rng = np.random.default_rng(seed)
+    data["grp"] = rng.choice(["a", "b", "c"], size=len(data))
+    data["y"] = data["y"] * np.where(data["grp"] == "c", 1.3, 1.0)
+    spec = {
+        "outcome": {"column": "y", "transform": y_t},
+        "regressors": [
+            {"column": "x2", "transform": "level", "change": "+1"},
+            {"column": "grp", "transform": "category", "reference": "a", "change": "a->c"},
+        ],
+    }
+    result = core.analyze(data, spec, parts=FAST_PARTS)
+    forward, inverse = OUTCOMES[y_t]
+    dummies = np.column_stack([(data["grp"] == "b").to_numpy(float), (data["grp"] == "c").to_numpy(float)])
+    X = np.column_stack([np.ones(len(data)), data["x2"], dummies])
+    b = np.array([t["estimate"] for t in result["terms"]])
+    np.testing.assert_allclose(b, np.linalg.lstsq(X, forward(data["y"].to_numpy()), rcond=None)[0], rtol=1e-8, atol=1e-10)
+    resid = forward(data["y"].to_numpy()) - X @ b
+    eta_a = b[0] + b[1] * data["x2"].mean()
+    eta_c = eta_a + b[3]
+    if y_t == "level":
+        expected = eta_c - eta_a
+    elif y_t == "log":
+        expected = 100.0 * math.expm1(eta_c - eta_a)
+    else:
+        expected = 100.0 * (np.mean(inverse(eta_c + resid)) / np.mean(inverse(eta_a + resid)) - 1.0)
+    row = effect(result, "grp")
+    assert _close(row["exact"], expected, 1e-8, 1e-10), (row["exact"], expected)
+    assert row["ci_low"] <= row["exact"] <= row["ci_high"]
