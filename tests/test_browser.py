@@ -78,21 +78,34 @@ def test_demo_loads_without_error(page) -> None:
     assert page.problems == []
 
 
+def _set_grid_cell(page, row: int, column: int, text: str) -> None:
+    """Edit one grid cell with the keyboard, as a user would: select it, open it, type, Enter.
+
+    The grid is drawn on a canvas; its accessible cells (td#glide-cell-COL-ROW) say what each
+    cell holds. Rows are 35 px high under a 35 px header."""
+    cell = page.locator(f"td#glide-cell-{column}-{row}")
+    for _attempt in range(3):
+        box = page.locator('[data-testid="stDataFrame"]').first.bounding_box()
+        page.mouse.click(box["x"] + 60, box["y"] + 35 + 35 * row + 17)
+        for _ in range(column):
+            page.keyboard.press("ArrowRight")
+        page.keyboard.press("Enter")
+        time.sleep(0.5)
+        page.keyboard.type(text)
+        page.keyboard.press("Enter")
+        time.sleep(0.5)
+        if cell.inner_text().startswith(text):
+            return
+        page.keyboard.press("Escape")
+    raise AssertionError(f"the grid cell did not take '{text}': it shows '{cell.inner_text()}'")
+
+
 def test_changing_a_transform_in_the_grid_changes_the_coefficients(page) -> None:
     assert page.get_by_text("log of drink_price").count() > 0
-    grid = page.locator('[data-testid="stDataFrame"]').first
-    box = grid.bounding_box()
-    # Row 1 of the grid is drink_price (row height 35 px, header included); Transform is column 4.
-    page.mouse.click(box["x"] + 60, box["y"] + 35 + 35 + 17)
-    for _ in range(3):
-        page.keyboard.press("ArrowRight")
-    page.keyboard.press("Enter")
-    time.sleep(0.4)
-    page.keyboard.type("level")
-    page.keyboard.press("Enter")
+    assert page.locator("td#glide-cell-0-1").inner_text() == "drink_price"
+    _set_grid_cell(page, row=1, column=3, text="level")  # drink_price's transform
     _wait_for_rerun(page)
-    page.wait_for_function("() => !document.body.innerText.includes('log of drink_price')", timeout=60_000)
-    assert page.locator("td#glide-cell-3-1").inner_text().startswith("level")
+    page.wait_for_function("() => !document.body.innerText.includes('log of drink_price')", timeout=120_000)
     _no_error_text(page)
     _shot(page, "transform-changed")
     assert page.problems == []
