@@ -6,7 +6,11 @@ the editor's key, which the app keeps in ``session_state["grid_key"]``.
 
 from __future__ import annotations
 
+import json
+import subprocess
+import sys
 from pathlib import Path
+from typing import Any
 
 from streamlit.testing.v1 import AppTest
 
@@ -41,3 +45,16 @@ def show(at: AppTest, view: str) -> AppTest:
     at.segmented_control(key="view").set_value(view).run()
     assert not at.exception, at.exception
     return at
+
+
+def cli_analyze(data: Path, spec_file: Path) -> dict[str, Any]:
+    """``python -m core analyze DATA --spec FILE`` as a user runs it."""
+    done = subprocess.run(
+        [sys.executable, "-m", "core", "analyze", str(data), "--spec", str(spec_file)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert done.returncode == 0, done.stderr
+    return json.loads(done.stdout)

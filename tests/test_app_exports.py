@@ -12,8 +12,6 @@ import json
 import os
 import re
 import struct
-import subprocess
-import sys
 from pathlib import Path
 from typing import Any
 
@@ -26,7 +24,7 @@ import core
 from app import charts, exports, state, tables
 from core import tables as core_tables
 from core.report import CAUTION_REVIEW
-from tests.app_support import edit_grid, show, start
+from tests.app_support import cli_analyze, edit_grid, show, start
 from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -56,19 +54,6 @@ def upload_spec(at: AppTest, name: str, raw: bytes) -> AppTest:
     at.file_uploader(key=key).set_value((name, raw, "application/json")).run()
     assert not at.exception, at.exception
     return at
-
-
-def cli_analyze(data: Path, spec_file: Path) -> dict[str, Any]:
-    """``python -m core analyze DATA --spec FILE`` as a user runs it."""
-    done = subprocess.run(
-        [sys.executable, "-m", "core", "analyze", str(data), "--spec", str(spec_file)],
-        cwd=ROOT,
-        capture_output=True,
-        text=True,
-        timeout=300,
-    )
-    assert done.returncode == 0, done.stderr
-    return json.loads(done.stdout)
 
 
 def png_size(data: bytes) -> tuple[int, int]:

@@ -200,8 +200,6 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     import csv
     import json
     import struct
-    import subprocess
-    import sys
 
     import pandas as pd
 
@@ -229,15 +227,9 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     spec_path = tmp_path / info.value.suggested_filename
     info.value.save_as(spec_path)
     assert spec_path.name.startswith("formwise-spec-") and spec_path.suffix == ".json"
-    done = subprocess.run(
-        [sys.executable, "-m", "core", "analyze", str(demo), "--spec", str(spec_path)],
-        cwd=ROOT,
-        capture_output=True,
-        text=True,
-        timeout=300,
-    )
-    assert done.returncode == 0, done.stderr
-    assert {t["name"]: t["estimate"] for t in json.loads(done.stdout)["terms"]} == estimates
+    from tests.app_support import cli_analyze
+
+    assert {t["name"]: t["estimate"] for t in cli_analyze(demo, spec_path)["terms"]} == estimates
 
     # The chart toolbar's camera: a full-slide PNG at twice the pixels.
     page.get_by_role("radio", name="Approximation check", exact=True).click()
