@@ -177,12 +177,29 @@ def test_full_slide_png_is_3840_by_2160(monkeypatch: pytest.MonkeyPatch) -> None
     )
     figure = charts.with_caption(figure, charts.caption_text("kiosks.csv", result["n_obs"], "demo default model"))
     options = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
-    png = figure.to_image(format="png", width=options["width"], height=options["height"], scale=options["scale"])
+    png = _static_image(figure, "png", options["width"], options["height"], options["scale"])
     assert png_size(png) == (3840, 2160)
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
     (SCREENSHOTS / "export-full-slide.png").write_bytes(png)
-    svg = figure.to_image(format="svg", width=options["width"], height=options["height"]).decode()
+    svg = _static_image(figure, "svg", options["width"], options["height"], 1).decode()
     assert 'width="1920"' in svg and 'height="1080"' in svg
+
+
+def _static_image(figure: Any, image_format: str, width: int, height: int, scale: int) -> bytes:
+    """Render through kaleido from a page that loads nothing from the network.
+
+    kaleido's default page fetches MathJax from a CDN; on a machine whose network drops such
+    requests the page never finishes loading and the render fails. The page here loads plotly.js
+    from the installed plotly package and no MathJax (the charts use no TeX).
+    """
+    import kaleido
+    import plotly
+
+    plotly_js = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
+    page = kaleido.PageGenerator(plotly=str(plotly_js), mathjax=False)
+    assert "http" not in page.generate_index()  # nothing fetched from the network
+    options = {"format": image_format, "width": width, "height": height, "scale": scale}
+    return kaleido.calc_fig_sync(figure.to_dict(), opts=options, kopts={"page_generator": page})
 
 
 # --- tables -------------------------------------------------------------------------------------------
