@@ -289,17 +289,21 @@ def gap_figure(
 
 # --- shared look of the views' charts ------------------------------------------------------------------
 GREY = "#7B8794"
+BEYOND_NAME = "Beyond the data: extrapolated"
 SHADE = "#9AA5B1"
 SUBTLE = "#52606D"
 CONFIG = {"displaylogo": False}
-# Type sizes in pixels of the figure's own canvas. A chart is drawn once and exported at slide
-# size (1920 px wide for a full slide), so the type is set for the slide: larger than a web
-# page's usual 14 px, still fitting the on-screen charts.
-TYPE = {"base": 18, "title": 26, "subtitle": 18, "legend": 17, "note": 16, "caption": 15}
+# Type sizes in CSS pixels of the figure's own canvas. The canvas of a full-slide export is
+# 1280 x 720 px, which at 96 px per inch is the 13.33 x 7.5 in of a 16:9 slide: a size here
+# times 0.75 is the size in points on the slide (ticks 15 pt, title 22.5 pt), the same figure
+# on screen reads like a preview of the slide.
+TYPE = {"base": 20, "title": 30, "subtitle": 20, "legend": 19, "note": 18, "caption": 16}
 # Room per row of the legend placed between the subtitle and the plot.
-_LEGEND_ROW = 30
-# Width a legend has to fit in at the narrowest export (half slide, 960 px, less the margins).
-_LEGEND_WIDTH = 840
+_LEGEND_ROW = 32
+# Widest line of title, subtitle, legend or caption: the chart's width less the margins, and
+# never more than fits the chart on a laptop screen.
+_SCREEN_TEXT_WIDTH = 980
+_SIDE_MARGINS = 120
 
 
 def _floats(values: list[Any] | None) -> np.ndarray:
@@ -318,19 +322,53 @@ def wrap(text: str, limit: int) -> tuple[str, int]:
     return "<br>".join(lines), max(1, len(lines))
 
 
-def _chars_per_line(size: float) -> int:
-    """Characters of a ``size``-pixel font that fit the narrowest export width."""
-    return int(_LEGEND_WIDTH / (0.54 * size))
+def text_width(canvas_width: int | None = None) -> int:
+    """Pixels a line of text may take on a canvas ``canvas_width`` wide (the full slide when
+    not given), capped so the same line fits the chart on screen."""
+    width = canvas_width or SLIDE_SIZES["full"][1]
+    return min(width - _SIDE_MARGINS, _SCREEN_TEXT_WIDTH)
 
 
-def legend_rows(fig: go.Figure) -> int:
-    """How many rows the horizontal legend takes at the narrowest export width (an estimate
-    from the entries' lengths: about half an em per character plus the symbol)."""
+def _chars_per_line(size: float, canvas_width: int | None = None) -> int:
+    """Characters of a ``size``-pixel font that fit one line (about 0.52 em per character)."""
+    return int(text_width(canvas_width) / (0.52 * size))
+
+
+def legend_rows(fig: go.Figure, canvas_width: int | None = None) -> int:
+    """How many rows the horizontal legend takes on the canvas: entries packed left to right
+    as Plotly does, each about half an em per character plus its symbol."""
     names = [t.name for t in fig.data if t.name and t.showlegend is not False]
     if not names:
         return 0
-    width = sum(len(name) * 0.52 * TYPE["legend"] + 48 for name in names)
-    return max(1, math.ceil(width / _LEGEND_WIDTH))
+    room = text_width(canvas_width)
+    rows, used = 1, 0.0
+    for name in names:
+        width = len(name) * 0.52 * TYPE["legend"] + 50
+        if used and used + width > room:
+            rows, used = rows + 1, 0.0
+        used += width
+    return rows
+
+
+def _top_margin(fig: go.Figure, canvas_width: int | None = None) -> tuple[str, str, int, int]:
+    """Title and subtitle wrapped for the canvas, the title's padding from the top edge, and
+    the top margin that holds title, subtitle and legend. The unwrapped texts are kept in the
+    figure's ``meta`` by ``_style``."""
+    meta = fig.layout.meta or {}
+    size = meta.get("title_size") or TYPE["title"]
+    title, title_lines = wrap(meta.get("title", ""), _chars_per_line(size, canvas_width))
+    subtitle, subtitle_lines = wrap(meta.get("subtitle", ""), _chars_per_line(TYPE["subtitle"], canvas_width))
+    rows = legend_rows(fig, canvas_width) if meta.get("legend", True) else 0
+    line = round(1.3 * size)
+    top = 18 + line * title_lines + round(1.35 * TYPE["subtitle"]) * subtitle_lines + 26
+    return title, subtitle, top + _LEGEND_ROW * rows, title_pad(size, title_lines)
+
+
+def title_pad(size: int, lines: int) -> int:
+    """Padding above a title anchored at the figure's top edge. Plotly lifts a title of more
+    than one line by about 0.7 em (measured in rendered PNGs for 2 to 4 lines at 22 and 30 px),
+    which cuts the first line off; the extra padding puts it back."""
+    return 18 + (round(0.7 * size) if lines > 1 else 0)
 
 
 def _style(
@@ -348,11 +386,9 @@ def _style(
     the plot (pinned to the plot's top edge, so it never drifts when the export is taller or
     wider than the screen), and the axis titles naming the variables and their transforms.
     Call it after the traces are added (the legend's height depends on them)."""
-    rows = legend_rows(fig) if legend else 0
     size = title_size or TYPE["title"]
-    title, title_lines = wrap(title, _chars_per_line(size))
-    subtitle, subtitle_lines = wrap(subtitle, _chars_per_line(TYPE["subtitle"]))
-    top = 18 + round(1.3 * size) * title_lines + round(1.35 * TYPE["subtitle"]) * subtitle_lines + 26
+    fig.update_layout(meta={"title": title, "subtitle": subtitle, "title_size": size, "legend": legend, "x_title": x_title})
+    title, subtitle, top, title_pad = _top_margin(fig)
     fig.update_layout(
         template="plotly_white",
         paper_bgcolor="white",
@@ -367,7 +403,7 @@ def _style(
             "y": 1.0,
             "yanchor": "top",
             "yref": "container",
-            "pad": {"t": 18},
+            "pad": {"t": title_pad},
             "font": {"size": size},
         },
         xaxis={"title": {"text": x_title}, "gridcolor": GRID, "zeroline": False},
@@ -384,7 +420,7 @@ def _style(
             "traceorder": "normal",
             "entrywidth": 0,
         },
-        margin={"l": 90, "r": 30, "t": top + _LEGEND_ROW * rows, "b": 84},
+        margin={"l": 90, "r": 30, "t": top, "b": 84},
         height=height,
         hovermode="closest",
     )
@@ -392,17 +428,25 @@ def _style(
 
 
 # --- export at slide size -----------------------------------------------------------------------
-# name: (words, width, height) in pixels of the figure; the download is drawn at EXPORT_SCALE
-# times that (a full slide's PNG is 3840 x 2160, sharp on a 4K projector or when zoomed).
+# name: (words, width, height) of the figure's canvas in CSS pixels. A 16:9 slide is 13.33 x 7.5 in,
+# 1280 x 720 px at 96 px per inch, so an SVG drops onto a slide at its real size and the type
+# keeps its point sizes (see TYPE). PNGs are drawn at EXPORT_SCALE times the canvas: a full
+# slide's PNG is 3840 x 2160, twice the pixels of a 1920 x 1080 screen, sharp on a 4K projector.
 SLIDE_SIZES = {
-    "full": ("Full slide, 16:9 (1920 × 1080)", 1920, 1080),
-    "half": ("Half slide (960 × 1080)", 960, 1080),
-    "square": ("Square (1080 × 1080)", 1080, 1080),
+    "full": ("Full slide, 16:9", 1280, 720),
+    "half": ("Half slide, 8:9", 640, 720),
+    "square": ("Square", 720, 720),
 }
 EXPORT_FORMATS = {"png": "PNG (picture)", "svg": "SVG (scalable, editable)"}
-EXPORT_SCALE = 2
+EXPORT_SCALE = 3
 # Distance of the caption line under the plot: clear of the tick labels and the x-axis title.
-_CAPTION_GAP = {True: 78, False: 40}
+_CAPTION_GAP = {True: 84, False: 44}
+
+
+def size_label(size: str) -> str:
+    """'Full slide, 16:9 (PNG 3840 × 2160)': the words and the pixels of the PNG."""
+    words, width, height = SLIDE_SIZES[size]
+    return f"{words} (PNG {width * EXPORT_SCALE} × {height * EXPORT_SCALE})"
 
 
 def file_stem(text: str, limit: int = 80) -> str:
@@ -412,8 +456,8 @@ def file_stem(text: str, limit: int = 80) -> str:
 
 
 def export_config(size: str = "full", fmt: str = "png", filename: str = "formwise-chart") -> dict[str, Any]:
-    """Plotly's config for a chart: the toolbar's download button draws the chart at the slide
-    size (``SLIDE_SIZES``) in PNG at twice the pixels, or in SVG."""
+    """Plotly's config for a chart: the toolbar's download button draws the chart on the slide
+    canvas (``SLIDE_SIZES``), in PNG at ``EXPORT_SCALE`` times its pixels, or in SVG."""
     _, width, height = SLIDE_SIZES[size]
     return {
         "displaylogo": False,
@@ -438,15 +482,32 @@ def caption_text(data_name: str, n_obs: int | None, spec_name: str | None) -> st
     return " · ".join(parts)
 
 
-def with_caption(fig: go.Figure, caption: str | None) -> go.Figure:
+def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None) -> go.Figure:
+    """The figure laid out for the slide canvas it will be downloaded at: title, subtitle and
+    legend wrapped to that width, and the source line (data file, N, model) under the plot when
+    given. A copy, so a cached figure is never altered."""
+    canvas_width = SLIDE_SIZES[size][1]
+    out = go.Figure(fig)
+    if out.layout.meta:
+        title, subtitle, top, title_pad = _top_margin(out, canvas_width)
+        out.update_layout(title_text=title, title_subtitle_text=subtitle, title_pad_t=title_pad, margin_t=top)
+        x_title, x_lines = wrap(out.layout.meta.get("x_title") or "", _chars_per_line(TYPE["base"], canvas_width))
+        if x_lines > 1:
+            extra = round(1.3 * TYPE["base"]) * (x_lines - 1)
+            out.update_layout(xaxis_title_text=x_title, margin_b=(out.layout.margin.b or 84) + extra)
+    return with_caption(out, caption, canvas_width)
+
+
+def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None = None) -> go.Figure:
     """The figure with a source line (data file, N, model) under the plot, or unchanged
     without one; a copy, so a cached figure is never altered."""
     if not caption:
         return fig
     out = go.Figure(fig)
-    has_x_title = bool(out.layout.xaxis.title.text)
+    x_title = out.layout.xaxis.title.text or ""
+    x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
-    text, lines = wrap(plain(caption), _chars_per_line(TYPE["caption"]))
+    text, lines = wrap(plain(caption), _chars_per_line(TYPE["caption"], canvas_width))
     out.add_annotation(
         text=text,
         xref="paper",
@@ -455,7 +516,7 @@ def with_caption(fig: go.Figure, caption: str | None) -> go.Figure:
         yref="paper",
         y=0.0,
         yanchor="top",
-        yshift=-_CAPTION_GAP[has_x_title],
+        yshift=-_CAPTION_GAP[bool(x_title)] - x_extra,
         showarrow=False,
         align="left",
         font={"size": TYPE["caption"], "color": SUBTLE},
@@ -609,20 +670,24 @@ def curve_figure(
         curves.append(oy[okeep])
 
     x_low, x_high = float(np.nanmin(x)), float(np.nanmax(x))
-    for left, right, side in ((x_low, observed_min, "left"), (observed_max, x_high, "right")):
+    shaded = False
+    for left, right in ((x_low, observed_min), (observed_max, x_high)):
         if right - left <= 1e-12 * max(1.0, abs(right)):
             continue
         fig.add_vrect(x0=left, x1=right, fillcolor=SHADE, opacity=0.16, line_width=0, layer="below")
-        fig.add_annotation(
-            x=right if side == "left" else left,
-            xanchor="right" if side == "left" else "left",
-            y=1.0,
-            yref="paper",
-            yanchor="top",
-            text="beyond the data",
-            showarrow=False,
-            font={"size": TYPE["note"], "color": SUBTLE},
-            xshift=-4 if side == "left" else 4,
+        shaded = True
+    if shaded:
+        # Named in the legend rather than written in the strips: a strip can be too narrow
+        # for a label on a half-slide export.
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=BEYOND_NAME,
+                marker={"symbol": "square", "size": 16, "color": "rgba(154, 165, 177, 0.35)"},
+                hoverinfo="skip",
+            )
         )
 
     y_low, y_high = _y_range(curves, pts_y)
@@ -968,6 +1033,32 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
     fig.update_annotations(font={"size": TYPE["note"], "color": SUBTLE})
     fig.update_xaxes(gridcolor=GRID, zeroline=False)
     fig.update_yaxes(gridcolor=GRID, zeroline=False, title_text="Rows", row=1, col=1)
+    return fig
+
+
+def profile_histogram_figure(entry: dict[str, Any]) -> go.Figure | None:
+    """A column's histogram as recorded (from its profile), with its skewness and row count:
+    the evidence beside the advisor's suggestion."""
+    histogram = entry.get("histogram")
+    if not histogram:
+        return None
+    edges = np.asarray(histogram["edges"], dtype=float)
+    counts = np.asarray(histogram["counts"], dtype=float)
+    column = plain(entry["column"])
+    fig = go.Figure(
+        go.Bar(
+            x=(edges[:-1] + edges[1:]) / 2,
+            y=counts,
+            width=np.diff(edges),
+            marker={"color": SKY, "line": {"color": "white", "width": 1}},
+            hovertemplate="%{x:.4g}: %{y:,} rows<extra></extra>",
+            showlegend=False,
+        )
+    )
+    n = entry.get("n")
+    subtitle = f"Skewness {_skew_text(entry.get('skewness'))}" + (f" · {int(n):,} values" if n is not None else "")
+    _style(fig, f"{column} as recorded", subtitle, column, "Rows", height=420, legend=False)
+    fig.update_layout(bargap=0)
     return fig
 
 

@@ -116,7 +116,7 @@ def chart(figure: go.Figure, key: str) -> None:
     fmt = ss.get(FORMAT_KEY) or "png"
     caption = ss.get(CHART_CAPTION_KEY) if ss.get(CAPTION_KEY) else None
     st.plotly_chart(
-        charts.with_caption(figure, caption),
+        charts.for_slide(figure, size, caption),
         theme=None,
         config=charts.export_config(size, fmt, f"formwise-{key}"),
         key=key,
@@ -138,8 +138,8 @@ def chart_settings() -> None:
         "Chart size for slides",
         list(charts.SLIDE_SIZES),
         key=SIZE_KEY,
-        format_func=lambda s: charts.SLIDE_SIZES[s][0],
-        help="The camera button in each chart's toolbar downloads the chart at this size.",
+        format_func=charts.size_label,
+        help="The camera button in each chart's toolbar downloads the chart at this size, with type sized for a slide.",
     )
     st.radio(
         "Chart file",
@@ -149,9 +149,10 @@ def chart_settings() -> None:
         horizontal=True,
     )
     st.checkbox("Caption under each chart (data, rows, model)", key=CAPTION_KEY)
+    _, width, height = charts.SLIDE_SIZES["full"]
     st.caption(
-        f"PNG files have twice the pixels of the size chosen (a full slide: "
-        f"{1920 * charts.EXPORT_SCALE:,} × {1080 * charts.EXPORT_SCALE:,}); SVG stays sharp at any size."
+        f"Charts are laid out on a slide of {width} × {height} px (13.33 × 7.5 in), so an SVG drops onto "
+        f"a slide at its real size; PNGs have {charts.EXPORT_SCALE}× its pixels for sharp projection."
     )
 
 

@@ -23,9 +23,7 @@ import os
 from collections.abc import Callable, Mapping
 from typing import Any
 
-import numpy as np
 import pandas as pd
-import plotly.graph_objects as go
 import streamlit as st
 
 from app import charts, exports, state
@@ -412,35 +410,6 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
 
 
 # --- the Column profiles view ---------------------------------------------------------------------------
-def _histogram_figure(entry: dict[str, Any]) -> go.Figure | None:
-    histogram = entry.get("histogram")
-    if not histogram:
-        return None
-    edges = np.asarray(histogram["edges"], dtype=float)
-    counts = np.asarray(histogram["counts"], dtype=float)
-    mids, widths = (edges[:-1] + edges[1:]) / 2, np.diff(edges)
-    fig = go.Figure(
-        go.Bar(
-            x=mids,
-            y=counts,
-            width=widths,
-            marker={"color": charts.SKY, "line": {"color": "white", "width": 1}},
-            hovertemplate="%{x:.4g}: %{y:,} rows<extra></extra>",
-        )
-    )
-    fig.update_layout(
-        template="plotly_white",
-        height=230,
-        margin={"l": 60, "r": 15, "t": 10, "b": 45},
-        font={"family": charts.FONT, "size": 13, "color": charts.INK},
-        xaxis={"title": {"text": charts.plain(entry["column"])}, "gridcolor": charts.GRID},
-        yaxis={"title": {"text": "rows"}, "gridcolor": charts.GRID},
-        bargap=0,
-        showlegend=False,
-    )
-    return fig
-
-
 def profiles_view(ctx: Any = None) -> None:
     """Every column of the current data: kind, counts, range, shape and the advisor's suggestion,
     then the reasons and evidence for one column at a time."""
@@ -503,19 +472,16 @@ def profiles_view(ctx: Any = None) -> None:
     pick = st.selectbox("Column", names, key="profile_pick")
     entry = entries[pick]
     with st.container(border=True):
-        figure = _histogram_figure(entry)
-        left, right = st.columns([2, 3]) if figure is not None else (None, st.container())
-        if left is not None and figure is not None:
-            with left:
-                exports.chart(figure, key="profile_histogram")
-        with right:
-            suggested = transform_words(entry.get("suggested_transform"))
-            where = " · the outcome in your grid" if pick == outcome else ""
-            st.markdown(f"**Suggested: {suggested}** · {kind_words(entry)}{where}")
-            reasons = [state.sentence_case(arrows(r)) for r in entry.get("reasons") or []]
-            if reasons:
-                st.markdown("\n".join(f"- {state.plain(r)}" for r in reasons))
-            lines = evidence_lines(entry, outcome=pick == outcome)
-            if lines:
-                st.markdown("**Evidence**")
-                st.markdown("\n".join(f"- {state.plain(line)}" for line in lines))
+        suggested = transform_words(entry.get("suggested_transform"))
+        where = " · the outcome in your grid" if pick == outcome else ""
+        st.markdown(f"**Suggested: {suggested}** · {kind_words(entry)}{where}")
+        reasons = [state.sentence_case(arrows(r)) for r in entry.get("reasons") or []]
+        if reasons:
+            st.markdown("\n".join(f"- {state.plain(r)}" for r in reasons))
+        lines = evidence_lines(entry, outcome=pick == outcome)
+        if lines:
+            st.markdown("**Evidence**")
+            st.markdown("\n".join(f"- {state.plain(line)}" for line in lines))
+        figure = charts.profile_histogram_figure(entry)
+        if figure is not None:
+            exports.chart(figure, key="profile_histogram")

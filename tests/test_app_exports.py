@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import plotly.graph_objects as go
 import pytest
 from streamlit.testing.v1 import AppTest
 
@@ -65,10 +66,13 @@ def png_size(data: bytes) -> tuple[int, int]:
 
 # --- charts -------------------------------------------------------------------------------------------
 def test_export_config_sizes_formats_and_file_names() -> None:
+    # A 16:9 slide is 13.33 x 7.5 in; at the CSS 96 px per inch (CSS Values and Units Level 3,
+    # section 5.2) that is 1280 x 720 px, and three times that is 3840 x 2160.
     full = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
-    assert full == {"format": "png", "filename": "formwise-curve_chart", "width": 1920, "height": 1080, "scale": 2}
-    assert charts.export_config("half")["toImageButtonOptions"]["width"] == 960
-    assert charts.export_config("square")["toImageButtonOptions"]["height"] == 1080
+    assert full == {"format": "png", "filename": "formwise-curve_chart", "width": 1280, "height": 720, "scale": 3}
+    assert charts.export_config("half")["toImageButtonOptions"]["width"] == 640
+    assert charts.export_config("square")["toImageButtonOptions"]["height"] == 720
+    assert charts.size_label("full") == "Full slide, 16:9 (PNG 3840 × 2160)"
     assert charts.export_config("full", "svg")["toImageButtonOptions"]["format"] == "svg"
     assert charts.file_stem("formwise-dist_![x](http://h/p.png)") == "formwise-dist__x_http_h_p.png"
     assert charts.file_stem("../..") == "chart"
@@ -107,9 +111,9 @@ def test_every_chart_exports_at_the_chosen_slide_size() -> None:
         assert config["toImageButtonOptions"] == {
             "format": "png",
             "filename": name,
-            "width": 1920,
-            "height": 1080,
-            "scale": 2,
+            "width": 1280,
+            "height": 720,
+            "scale": 3,
         }, name
         assert name.startswith("formwise-") and config["displaylogo"] is False
     at.selectbox(key=exports.SIZE_KEY).set_value("half").run()
@@ -119,10 +123,63 @@ def test_every_chart_exports_at_the_chosen_slide_size() -> None:
     assert config["toImageButtonOptions"] | {} == {
         "format": "svg",
         "filename": "formwise-gap_chart",
-        "width": 960,
-        "height": 1080,
-        "scale": 2,
+        "width": 640,
+        "height": 720,
+        "scale": 3,
     }
+
+
+def _font_sizes(node: Any) -> list[float]:
+    """Every font size set anywhere in a figure's JSON."""
+    found: list[float] = []
+    if isinstance(node, dict):
+        for key, value in node.items():
+            if key in ("font", "tickfont") and isinstance(value, dict) and "size" in value:
+                found.append(float(value["size"]))
+            found += _font_sizes(value)
+    elif isinstance(node, list):
+        for value in node:
+            found += _font_sizes(value)
+    return found
+
+
+@pytest.mark.parametrize("size", ["full", "half"])
+def test_slide_type_is_readable_and_text_fits_the_canvas(size: str) -> None:
+    """On the slide canvas (px x 0.75 = pt), no text in any chart is smaller than 12 pt, tick
+    labels and axis titles are at least 15 pt, and no title line is wider than the canvas.
+    Floor of 12 pt on slides: common practice, no source."""
+    at = start()
+    at.selectbox(key=exports.SIZE_KEY).set_value(size).run()
+    canvas_width = charts.SLIDE_SIZES[size][1]
+    checked = 0
+    for view in at.segmented_control(key="view").options:
+        show(at, view)
+        for figure, _ in chart_elements(at):
+            layout = figure["layout"]
+            assert min(_font_sizes(figure)) * 0.75 >= 12, layout.get("title", {}).get("text")
+            assert layout["font"]["size"] * 0.75 >= 13.5  # ticks and axis titles
+            title = layout.get("title", {})
+            for line in (title.get("text") or "").split("<br>"):
+                # about half an em per character of the title's font
+                assert len(line) * 0.5 * title["font"]["size"] <= canvas_width, line
+            checked += 1
+    assert checked >= 9
+
+
+def test_a_title_of_several_lines_is_padded_back_into_view() -> None:
+    """Plotly lifts a multi-line title anchored at its top by about 0.7 em (measured in
+    rendered PNGs); the padding must make up for it, or the first line is cut off."""
+    title = "Predicted weekly revenue of every kiosk in the network as the average drink price varies"
+    fig = charts._style(go.Figure(go.Scatter(x=[1, 2], y=[1, 2], name="curve")), title, "subtitle", "x", "y")
+    full, half = charts.for_slide(fig, "full"), charts.for_slide(fig, "half")
+    full_lines, half_lines = (f.layout.title.text.count("<br>") + 1 for f in (full, half))
+    assert half_lines > full_lines >= 1
+    for figure, lines in ((full, full_lines), (half, half_lines)):
+        lifted = round(0.7 * figure.layout.title.font.size) if lines > 1 else 0
+        assert figure.layout.title.pad.t == 18 + lifted
+        assert figure.layout.title.text.replace("<br>", " ") == title
+    assert half.layout.margin.t > full.layout.margin.t
+    assert fig.layout.title.text == charts.for_slide(fig, "full").layout.title.text  # the original is untouched
 
 
 def test_caption_under_the_charts_names_data_rows_and_model() -> None:
@@ -175,14 +232,14 @@ def test_full_slide_png_is_3840_by_2160(monkeypatch: pytest.MonkeyPatch) -> None
         points=state.sample_points(frame, curve["column"], "weekly_revenue"),
         show_naive=True,
     )
-    figure = charts.with_caption(figure, charts.caption_text("kiosks.csv", result["n_obs"], "demo default model"))
+    figure = charts.for_slide(figure, "full", charts.caption_text("kiosks.csv", result["n_obs"], "demo default model"))
     options = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
     png = _static_image(figure, "png", options["width"], options["height"], options["scale"])
     assert png_size(png) == (3840, 2160)
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
     (SCREENSHOTS / "export-full-slide.png").write_bytes(png)
     svg = _static_image(figure, "svg", options["width"], options["height"], 1).decode()
-    assert 'width="1920"' in svg and 'height="1080"' in svg
+    assert 'width="1280"' in svg and 'height="720"' in svg
 
 
 def _static_image(figure: Any, image_format: str, width: int, height: int, scale: int) -> bytes:
