@@ -295,9 +295,9 @@ SUBTLE = "#52606D"
 CONFIG = {"displaylogo": False}
 # Type sizes in CSS pixels of the figure's own canvas. The canvas of a full-slide export is
 # 1280 x 720 px, which at 96 px per inch is the 13.33 x 7.5 in of a 16:9 slide: a size here
-# times 0.75 is the size in points on the slide (ticks 15 pt, title 22.5 pt), the same figure
+# times 0.75 is the size in points on the slide (ticks 14 pt, title 19.5 pt), the same figure
 # on screen reads like a preview of the slide.
-TYPE = {"base": 20, "title": 30, "subtitle": 20, "legend": 19, "note": 18, "caption": 16}
+TYPE = {"base": 19, "title": 26, "subtitle": 18, "legend": 18, "note": 17, "caption": 16}
 # Room per row of the legend placed between the subtitle and the plot.
 _LEGEND_ROW = 32
 # Widest line of title, subtitle, legend or caption: the chart's width less the margins, and
@@ -482,11 +482,14 @@ def caption_text(data_name: str, n_obs: int | None, spec_name: str | None) -> st
     return " · ".join(parts)
 
 
-def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None) -> go.Figure:
-    """The figure laid out for the slide canvas it will be downloaded at: title, subtitle and
-    legend wrapped to that width, and the source line (data file, N, model) under the plot when
-    given. A copy, so a cached figure is never altered."""
+def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None, screen_width: int | None = None) -> go.Figure:
+    """The figure laid out for the slide canvas it will be downloaded at: title, subtitle,
+    legend and x-axis title wrapped to that width (or to ``screen_width``, the width of the
+    column that shows it, when narrower), and the source line (data file, N, model) under the
+    plot when given. A copy, so a cached figure is never altered."""
     canvas_width = SLIDE_SIZES[size][1]
+    if screen_width:
+        canvas_width = min(canvas_width, screen_width)
     out = go.Figure(fig)
     if out.layout.meta:
         title, subtitle, top, title_pad = _top_margin(out, canvas_width)
@@ -1014,7 +1017,7 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
         template="plotly_white",
         paper_bgcolor="white",
         plot_bgcolor="white",
-        font={"family": FONT, "size": TYPE["base"] - 2, "color": INK},
+        font={"family": FONT, "size": TYPE["base"] - 1, "color": INK},
         title={
             "text": f"{plain(item['column'])} ({item['role']})",
             "x": 0.01,

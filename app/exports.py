@@ -108,15 +108,16 @@ def report_file(frame: pd.DataFrame, spec: dict[str, Any], data_name: str, saved
 
 
 # --- charts -----------------------------------------------------------------------------------------
-def chart(figure: go.Figure, key: str) -> None:
+def chart(figure: go.Figure, key: str, screen_width: int | None = None) -> None:
     """A chart whose toolbar download gives the chosen slide size and format, with the
-    source line under it when asked for."""
+    source line under it when asked for. ``screen_width``: about how wide the column showing
+    it is (pixels at a 1440 px window), so its text is wrapped to fit there too."""
     ss = st.session_state
     size = ss.get(SIZE_KEY) or "full"
     fmt = ss.get(FORMAT_KEY) or "png"
     caption = ss.get(CHART_CAPTION_KEY) if ss.get(CAPTION_KEY) else None
     st.plotly_chart(
-        charts.for_slide(figure, size, caption),
+        charts.for_slide(figure, size, caption, screen_width),
         theme=None,
         config=charts.export_config(size, fmt, f"formwise-{key}"),
         key=key,

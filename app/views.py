@@ -97,8 +97,13 @@ class Context:
         return state.variable_label(outcome["column"], outcome["transform"], "outcome")
 
 
-def chart(figure: Any, key: str) -> None:
-    exports.chart(figure, key)
+# Width of a chart in one of two side-by-side columns at a 1440 px window: its text is
+# wrapped to fit that column.
+HALF_COLUMN = 500
+
+
+def chart(figure: Any, key: str, screen_width: int | None = None) -> None:
+    exports.chart(figure, key, screen_width)
 
 
 def failed(exc: Exception) -> None:
@@ -193,15 +198,12 @@ def units_view(ctx: Context) -> None:
         if warning:
             st.warning(state.plain(warning))
         words = [state.factor_words(r["factor"]) for r in check["rows"]]
-        left, right = st.columns([1.15, 1])
-        with left:
-            st.table(
-                tables.styled(tables.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
-                hide_index=True,
-            )
-        with right:
-            ticks = ["×1" if w[0] == "as recorded" else w[0] for w in words]
-            chart(charts.units_figure(check, ctx.outcome, ticks), key=f"units_{column}")
+        st.table(
+            tables.styled(tables.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
+            hide_index=True,
+        )
+        ticks = ["×1" if w[0] == "as recorded" else w[0] for w in words]
+        chart(charts.units_figure(check, ctx.outcome, ticks), key=f"units_{column}")
 
 
 def approximation_view(ctx: Context) -> None:
@@ -342,14 +344,14 @@ def checks_view(ctx: Context) -> None:
         fitted_label = ctx.outcome_label
         top = st.columns(2)
         with top[0]:
-            chart(charts.residuals_figure(residuals, fitted_label), key="resid_fitted")
+            chart(charts.residuals_figure(residuals, fitted_label), key="resid_fitted", screen_width=HALF_COLUMN)
         with top[1]:
-            chart(charts.qq_figure(residuals), key="resid_qq")
+            chart(charts.qq_figure(residuals), key="resid_qq", screen_width=HALF_COLUMN)
         bottom = st.columns(2)
         with bottom[0]:
-            chart(charts.residual_histogram(residuals), key="resid_hist")
+            chart(charts.residual_histogram(residuals), key="resid_hist", screen_width=HALF_COLUMN)
         with bottom[1]:
-            chart(charts.scale_location_figure(residuals, fitted_label), key="resid_scale")
+            chart(charts.scale_location_figure(residuals, fitted_label), key="resid_scale", screen_width=HALF_COLUMN)
 
     st.markdown(f"##### Is the transform of {state.plain(ctx.outcome)} right?")
     boxcox = result.get("boxcox")

@@ -199,7 +199,7 @@ def test_residual_checks_view_reads_the_tests_in_plain_words() -> None:
     assert "log of drink_price" in set(vif["Term"])
     influence = table_with(at, "Cook's distance")
     assert {"Sheet row", "Leverage", "weekly_revenue", "region"} <= set(influence.columns)
-    titles = [f["layout"]["title"]["text"] for f in figures(at)]
+    titles = [f["layout"]["title"]["text"].replace("<br>", " ") for f in figures(at)]  # wrapped to fit
     for expected in (
         "Residuals against fitted values",
         "Residuals against a normal curve (Q–Q)",
