@@ -9,9 +9,7 @@ from __future__ import annotations
 import csv
 import io
 import json
-import os
 import re
-import struct
 from pathlib import Path
 from typing import Any
 
@@ -22,7 +20,7 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, exports, state, tables
+from app import charts, exports, tables
 from core import tables as core_tables
 from core.report import CAUTION_REVIEW
 from tests.app_support import cli_analyze, edit_grid, show, start
@@ -33,7 +31,6 @@ MAIN = str(ROOT / "app" / "main.py")
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = json.loads((ROOT / "demo_data" / "default_spec.json").read_text(encoding="utf-8"))
 TIMEOUT = 120
-SCREENSHOTS = ROOT / "tests" / "screenshots"
 
 
 # --- helpers ---------------------------------------------------------------------------------------
@@ -55,13 +52,6 @@ def upload_spec(at: AppTest, name: str, raw: bytes) -> AppTest:
     at.file_uploader(key=key).set_value((name, raw, "application/json")).run()
     assert not at.exception, at.exception
     return at
-
-
-def png_size(data: bytes) -> tuple[int, int]:
-    """Width and height from a PNG's IHDR chunk (PNG specification, section 11.2.2)."""
-    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG"
-    assert data[12:16] == b"IHDR"
-    return struct.unpack(">II", data[16:24])
 
 
 # --- charts -------------------------------------------------------------------------------------------
@@ -201,62 +191,6 @@ def test_caption_under_the_charts_names_data_rows_and_model() -> None:
     (figure, _), *_ = chart_elements(at)
     captions = [a["text"] for a in figure["layout"]["annotations"] if (a.get("text") or "").startswith("Data:")]
     assert captions[0].endswith("Model: Kiosk model A")
-
-
-def _browser_path() -> str | None:
-    for candidate in ("/usr/bin/chromium", "/usr/bin/chromium-browser"):
-        if Path(candidate).exists():
-            return candidate
-    return None
-
-
-def test_full_slide_png_is_3840_by_2160(monkeypatch: pytest.MonkeyPatch) -> None:
-    """Plotly's own static export (kaleido, driving the system Chromium) draws a chart at the
-    full-slide export settings; the file has 3840 × 2160 pixels."""
-    pytest.importorskip("kaleido")
-    browser = os.environ.get("BROWSER_PATH") or _browser_path()
-    if browser is None:
-        message = "the PNG export test needs Debian's Chromium: run 'sudo apt-get install chromium'"
-        if os.environ.get("CI", "").lower() == "true":
-            pytest.fail(message)
-        pytest.skip(message)
-    monkeypatch.setenv("BROWSER_PATH", browser)  # kaleido 1.x drives the browser named here
-    frame = pd.read_csv(DEMO_CSV)
-    result = core.analyze(frame, DEMO_SPEC, parts={"terms", "fit", "curves"})
-    curve = result["curves"][0]
-    figure = charts.curve_figure(
-        curve,
-        regressor_label="log of drink_price",
-        outcome_column="weekly_revenue",
-        outcome_label="log of weekly_revenue",
-        points=state.sample_points(frame, curve["column"], "weekly_revenue"),
-        show_naive=True,
-    )
-    figure = charts.for_slide(figure, "full", charts.caption_text("kiosks.csv", result["n_obs"], "demo default model"))
-    options = charts.export_config("full", "png", "formwise-curve_chart")["toImageButtonOptions"]
-    png = _static_image(figure, "png", options["width"], options["height"], options["scale"])
-    assert png_size(png) == (3840, 2160)
-    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
-    (SCREENSHOTS / "export-full-slide.png").write_bytes(png)
-    svg = _static_image(figure, "svg", options["width"], options["height"], 1).decode()
-    assert 'width="1280"' in svg and 'height="720"' in svg
-
-
-def _static_image(figure: Any, image_format: str, width: int, height: int, scale: int) -> bytes:
-    """Render through kaleido from a page that loads nothing from the network.
-
-    kaleido's default page fetches MathJax from a CDN; on a machine whose network drops such
-    requests the page never finishes loading and the render fails. The page here loads plotly.js
-    from the installed plotly package and no MathJax (the charts use no TeX).
-    """
-    import kaleido
-    import plotly
-
-    plotly_js = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
-    page = kaleido.PageGenerator(plotly=str(plotly_js), mathjax=False)
-    assert "http" not in page.generate_index()  # nothing fetched from the network
-    options = {"format": image_format, "width": width, "height": height, "scale": scale}
-    return kaleido.calc_fig_sync(figure.to_dict(), opts=options, kopts={"page_generator": page})
 
 
 # --- tables -------------------------------------------------------------------------------------------

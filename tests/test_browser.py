@@ -240,8 +240,22 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     with page.expect_download(timeout=60_000) as info:
         camera.click()
     assert info.value.suggested_filename == "formwise-gap_chart.png"
-    header = Path(info.value.path()).read_bytes()[:24]
-    assert header[:8] == b"\x89PNG\r\n\x1a\n" and struct.unpack(">II", header[16:24]) == (3840, 2160)
+    png = Path(info.value.path()).read_bytes()
+    assert png[:8] == b"\x89PNG\r\n\x1a\n" and struct.unpack(">II", png[16:24]) == (3840, 2160)
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    (SCREENSHOTS / "export-full-slide.png").write_bytes(png)
+
+    # The same chart as SVG: the slide canvas itself, 1280 x 720 px (13.33 x 7.5 in at 96 px/in).
+    page.get_by_text("SVG (scalable, editable)", exact=True).click()
+    _wait_for_rerun(page)
+    chart = page.locator('[data-testid="stPlotlyChart"]').first
+    chart.hover()
+    with page.expect_download(timeout=60_000) as info:
+        chart.locator('.modebar-btn[data-title^="Download plot"]').click()
+    assert info.value.suggested_filename == "formwise-gap_chart.svg"
+    svg = Path(info.value.path()).read_text(encoding="utf-8")
+    assert svg.startswith("<svg") and 'width="1280"' in svg and 'height="720"' in svg
+    assert "How far the shortcut drifts" in svg
     _no_error_text(page)
     assert page.problems == []
 
