@@ -335,19 +335,18 @@ def _chars_per_line(size: float, canvas_width: int | None = None) -> int:
 
 
 def legend_rows(fig: go.Figure, canvas_width: int | None = None) -> int:
-    """How many rows the horizontal legend takes on the canvas: entries packed left to right
-    as Plotly does, each about half an em per character plus its symbol."""
+    """How many rows the horizontal legend takes on the canvas. Each entry is about half an em
+    per character plus its symbol; entries that do not fit on one row are set by Plotly in a
+    grid of columns as wide as the widest entry (seen in rendered exports)."""
     names = [t.name for t in fig.data if t.name and t.showlegend is not False]
     if not names:
         return 0
     room = text_width(canvas_width)
-    rows, used = 1, 0.0
-    for name in names:
-        width = len(name) * 0.52 * TYPE["legend"] + 50
-        if used and used + width > room:
-            rows, used = rows + 1, 0.0
-        used += width
-    return rows
+    widths = [len(name) * 0.52 * TYPE["legend"] + 50 for name in names]
+    if sum(widths) <= room:
+        return 1
+    columns = max(1, int(room // max(widths)))
+    return math.ceil(len(names) / columns)
 
 
 def _top_margin(fig: go.Figure, canvas_width: int | None = None) -> tuple[str, str, int, int]:
