@@ -304,6 +304,8 @@ _LEGEND_ROW = 32
 # never more than fits the chart on a laptop screen.
 _SCREEN_TEXT_WIDTH = 980
 _SIDE_MARGINS = 120
+# Bottom margin under the plot: the tick labels and a one-line x-axis title.
+_BOTTOM = 84
 
 
 def _floats(values: list[Any] | None) -> np.ndarray:
@@ -419,7 +421,7 @@ def _style(
             "traceorder": "normal",
             "entrywidth": 0,
         },
-        margin={"l": 90, "r": 30, "t": top, "b": 84},
+        margin={"l": 90, "r": 30, "t": top, "b": _BOTTOM},
         height=height,
         hovermode="closest",
     )
@@ -485,27 +487,26 @@ def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None, sc
     """The figure laid out for the slide canvas it will be downloaded at: title, subtitle,
     legend and x-axis title wrapped to that width (or to ``screen_width``, the width of the
     column that shows it, when narrower), and the source line (data file, N, model) under the
-    plot when given. A copy, so a cached figure is never altered."""
+    plot when given. Changes the figure it is given and returns it: figures are built afresh
+    on each rerun, and copying one of 20,000 points would cost more than drawing it."""
     canvas_width = SLIDE_SIZES[size][1]
     if screen_width:
         canvas_width = min(canvas_width, screen_width)
-    out = go.Figure(fig)
+    out = fig
     if out.layout.meta:
         title, subtitle, top, title_pad = _top_margin(out, canvas_width)
         out.update_layout(title_text=title, title_subtitle_text=subtitle, title_pad_t=title_pad, margin_t=top)
         x_title, x_lines = wrap(out.layout.meta.get("x_title") or "", _chars_per_line(TYPE["base"], canvas_width))
-        if x_lines > 1:
-            extra = round(1.3 * TYPE["base"]) * (x_lines - 1)
-            out.update_layout(xaxis_title_text=x_title, margin_b=(out.layout.margin.b or 84) + extra)
+        out.update_layout(xaxis_title_text=x_title, margin_b=_BOTTOM + round(1.3 * TYPE["base"]) * (x_lines - 1))
     return with_caption(out, caption, canvas_width)
 
 
 def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None = None) -> go.Figure:
     """The figure with a source line (data file, N, model) under the plot, or unchanged
-    without one; a copy, so a cached figure is never altered."""
+    without one. Changes the figure it is given (see ``for_slide``)."""
     if not caption:
         return fig
-    out = go.Figure(fig)
+    out = fig
     x_title = out.layout.xaxis.title.text or ""
     x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84

@@ -174,16 +174,22 @@ def test_a_title_of_several_lines_is_padded_back_into_view() -> None:
     """Plotly lifts a multi-line title anchored at its top by about 0.7 em (measured in
     rendered PNGs); the padding must make up for it, or the first line is cut off."""
     title = "Predicted weekly revenue of every kiosk in the network as the average drink price varies"
-    fig = charts._style(go.Figure(go.Scatter(x=[1, 2], y=[1, 2], name="curve")), title, "subtitle", "x", "y")
-    full, half = charts.for_slide(fig, "full"), charts.for_slide(fig, "half")
+
+    def figure() -> go.Figure:
+        return charts._style(go.Figure(go.Scatter(x=[1, 2], y=[1, 2], name="curve")), title, "subtitle", "x", "y")
+
+    full, half = charts.for_slide(figure(), "full"), charts.for_slide(figure(), "half")
     full_lines, half_lines = (f.layout.title.text.count("<br>") + 1 for f in (full, half))
     assert half_lines > full_lines >= 1
-    for figure, lines in ((full, full_lines), (half, half_lines)):
-        lifted = round(0.7 * figure.layout.title.font.size) if lines > 1 else 0
-        assert figure.layout.title.pad.t == 18 + lifted
-        assert figure.layout.title.text.replace("<br>", " ") == title
+    for laid_out, lines in ((full, full_lines), (half, half_lines)):
+        lifted = round(0.7 * laid_out.layout.title.font.size) if lines > 1 else 0
+        assert laid_out.layout.title.pad.t == 18 + lifted
+        assert laid_out.layout.title.text.replace("<br>", " ") == title
     assert half.layout.margin.t > full.layout.margin.t
-    assert fig.layout.title.text == charts.for_slide(fig, "full").layout.title.text  # the original is untouched
+    # Laying out again for another size starts from the unwrapped texts, not from the last wrap.
+    again = charts.for_slide(half, "full")
+    assert again.layout.title.text == full.layout.title.text
+    assert (again.layout.margin.t, again.layout.margin.b) == (full.layout.margin.t, full.layout.margin.b)
 
 
 def test_caption_under_the_charts_names_data_rows_and_model() -> None:
