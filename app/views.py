@@ -39,10 +39,17 @@ UNITS_CHECK_AUTO_ROWS = 200_000
 
 
 # --- cached work ----------------------------------------------------------------------------------
+@st.cache_resource(max_entries=4, show_spinner=False)
+def column_cache(data_id: str) -> core.ColumnCache:
+    """Converted and transformed columns of one loaded table, shared by its refits: a toggle
+    recomputes only the column it changed. The loaded frame is never edited in place."""
+    return core.ColumnCache()
+
+
 @st.cache_data(max_entries=64, show_spinner=False)
 def run_model(data_id: str, spec_json: str, parts: tuple[str, ...], _frame: pd.DataFrame) -> dict[str, Any]:
     """Fit once per (data, spec, parts): the frame itself is not hashed, its identity is."""
-    return core.analyze(_frame, json.loads(spec_json), parts=set(parts))
+    return core.analyze(_frame, json.loads(spec_json), parts=set(parts), columns=column_cache(data_id))
 
 
 @st.cache_data(max_entries=16, show_spinner=False)

@@ -1,9 +1,11 @@
 """Formwise core: pure computation for regressions with transformed variables.
 
-``analyze(data, spec, parts=None)`` is the single entry point (SPEC §2).
+``analyze(data, spec, parts=None)`` is the single entry point (SPEC §2); a ``ColumnCache``
+passed as ``columns=`` lets the refits of an edit loop reuse converted and transformed columns.
 """
 
 from core.analysis import analyze
+from core.design import ColumnCache
 from core.errors import DataError, FormwiseError, SpecError
 
-__all__ = ["analyze", "FormwiseError", "SpecError", "DataError"]
+__all__ = ["analyze", "ColumnCache", "FormwiseError", "SpecError", "DataError"]

@@ -13,7 +13,7 @@ from scipy import stats
 
 from core.covariance import covariance, sandwich
 from core.curves import effect_curve
-from core.design import Design, build_design, rescaled_design
+from core.design import ColumnCache, Design, build_design, rescaled_design
 from core.diagnostics import diagnostics
 from core.effects import Model, compute_effects, gap_curve
 from core.errors import DataError, FormwiseError
@@ -42,12 +42,16 @@ CAUTIONS = [
 ]
 
 
-def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) -> dict[str, Any]:
+def analyze(
+    data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None, columns: ColumnCache | None = None
+) -> dict[str, Any]:
     """Fit the model described by ``spec`` on ``data`` and return the result contract (SPEC §4).
 
     ``parts`` names the sections to compute (default: all); the header keys (n_obs, dropped,
     outcome, covariance, warnings) are always present. Raises ``FormwiseError`` with a
-    message for the user on bad input. The result holds only JSON-able values.
+    message for the user on bad input. The result holds only JSON-able values. ``columns``
+    (a ``ColumnCache`` kept by the caller for this table) lets a refit reuse the columns and
+    transforms the previous fits already computed; the result is the same without it.
     """
     if not isinstance(data, pd.DataFrame):
         raise DataError("the data must be a table (a pandas DataFrame).")
@@ -57,7 +61,7 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
         raise FormwiseError(f"unknown result part(s): {', '.join(sorted(unknown))}; use some of {', '.join(sorted(ALL_PARTS))}.")
 
     model_spec = parse_spec(spec, data)
-    design, fit, model = fit_model(data, model_spec)
+    design, fit, model = fit_model(data, model_spec, columns)
     cov, df = model.cov, model.df
     warnings = list(design.warnings)
 
@@ -148,14 +152,14 @@ def analyze(data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None) 
     return json_safe(result)
 
 
-def fit_model(data: pd.DataFrame, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
+def fit_model(data: pd.DataFrame, model_spec: ModelSpec, columns: ColumnCache | None = None) -> tuple[Design, OLSFit, Model]:
     """Design, fit and covariance: everything the effect engine needs.
 
     For PPML the returned fit carries the Poisson estimates in the least-squares record
     (residuals y - μ̂, fitted values the index x'b, r2 the squared correlation of y and μ̂), and
     the model is seen by the effect engine as a log-link mean with no residual spread.
     """
-    return fit_design(build_design(data, model_spec), model_spec)
+    return fit_design(build_design(data, model_spec, columns), model_spec)
 
 
 def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:

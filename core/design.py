@@ -13,6 +13,10 @@ of the fit read every column of a chunk; with no row dropped no column is gather
 
 from __future__ import annotations
 
+import threading
+import weakref
+from collections import OrderedDict
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -21,7 +25,7 @@ import pandas as pd
 
 from core.errors import DataError
 from core.spec import ModelSpec, RegressorSpec
-from core.transforms import Category
+from core.transforms import Category, Transform
 
 
 @dataclass(frozen=True)
@@ -69,13 +73,20 @@ class Encoder:
     blocks: list[Block]
     width: int
 
-    def encode(self, values: dict[str, Any], n: int, codes: dict[str, Coded] | None = None) -> np.ndarray:
+    def encode(
+        self,
+        values: dict[str, Any],
+        n: int,
+        codes: dict[str, Coded] | None = None,
+        bases: dict[str, np.ndarray] | None = None,
+    ) -> np.ndarray:
         """Design rows for n points; each value is an array of n or a scalar shared by all.
 
         X is allocated in Fortran (column-major) order: every block writes whole columns, and
         the fit reads row chunks of all columns. ``codes`` may give, per category column, the
         rows' integer codes and the level name of each code (what ``build_design`` already
-        has), so the dummies come from integer comparisons instead of string ones.
+        has), so the dummies come from integer comparisons instead of string ones. ``bases``
+        may give, per numeric column, its design columns for these n rows already computed.
         """
         X = np.empty((n, self.width), order="F")
         X[:, 0] = 1.0
@@ -95,6 +106,8 @@ class Encoder:
                 labels = np.broadcast_to(np.asarray(values[column]).astype(str), (n,))
                 for j, level in enumerate(block.levels):
                     X[:, block.start + j] = labels == level
+            elif bases is not None and column in bases:
+                X[:, block.start : block.stop] = bases[column]
             else:
                 numbers = np.broadcast_to(np.asarray(values[column], dtype=float), (n,))
                 X[:, block.start : block.stop] = block.spec.transform.basis(numbers)
@@ -189,8 +202,89 @@ def _category_codes(series: pd.Series) -> Coded:
     return Coded(codes, names)
 
 
-def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
-    """Transform, drop and encode: the design matrix for ``spec`` on ``data``."""
+class ColumnCache:
+    """Columns of one table converted and transformed once, for the refits of an edit loop
+    that changes one transform at a time: per column its numbers and finite mask, or its
+    category codes; per (column, transform) the rows the transform cannot take and the
+    transformed values over all rows. Every cached array is read-only, so no caller can alter
+    a cached value, and ``build_design`` copies what it hands on.
+
+    It serves one table at a time, which must not be edited in place while cached (the app
+    never edits a loaded table); given another table object it starts afresh. At most
+    ``max_bytes`` of arrays are kept, the least recently used going first.
+    """
+
+    def __init__(self, max_bytes: int = 256 * 10**6) -> None:
+        self.max_bytes = max_bytes
+        self.hits = 0
+        self.misses = 0
+        self._table: weakref.ref[pd.DataFrame] | None = None
+        self._entries: OrderedDict[tuple[Any, ...], tuple[Any, int]] = OrderedDict()
+        self._bytes = 0
+        self._lock = threading.Lock()
+
+    def get(self, data: pd.DataFrame, key: tuple[Any, ...], make: Callable[[], Any]) -> Any:
+        """The cached value for ``key`` on ``data``, made by ``make()`` on a miss. An error
+        raised by ``make`` is raised to the caller and nothing is cached."""
+        with self._lock:
+            if self._table is None or self._table() is not data:
+                self._entries.clear()
+                self._bytes = 0
+                self._table = weakref.ref(data)
+            if key in self._entries:
+                self._entries.move_to_end(key)
+                self.hits += 1
+                return self._entries[key][0]
+        value = make()  # outside the lock: a million-row transform need not block other sessions
+        size = _freeze(value)
+        with self._lock:
+            self.misses += 1
+            if self._table() is data and key not in self._entries and size <= self.max_bytes:
+                self._entries[key] = (value, size)
+                self._bytes += size
+                while self._bytes > self.max_bytes:
+                    _, (_, dropped) = self._entries.popitem(last=False)
+                    self._bytes -= dropped
+        return value
+
+
+def _freeze(value: Any) -> int:
+    """Make every array in ``value`` (an array, a tuple or a ``Coded``) read-only; their bytes."""
+    if isinstance(value, np.ndarray):
+        value.flags.writeable = False
+        return value.nbytes
+    if isinstance(value, Coded):
+        return _freeze(value.codes) + _freeze(value.names)
+    if isinstance(value, tuple):
+        return sum(_freeze(v) for v in value)
+    return 0
+
+
+def _numbers_and_finite(series: pd.Series, column: str) -> tuple[np.ndarray, np.ndarray]:
+    values = _numeric(series, column)
+    return values, np.isfinite(values)
+
+
+def _basis_all_rows(transform: Transform, x: np.ndarray) -> np.ndarray:
+    """A regressor's design columns over every row, rows it cannot take included (they are
+    dropped before use)."""
+    with np.errstate(all="ignore"):
+        return np.ascontiguousarray(transform.basis(x))
+
+
+def _forward_all_rows(transform: Transform, x: np.ndarray) -> np.ndarray:
+    with np.errstate(all="ignore"):
+        return np.asarray(transform.forward(x), dtype=float)
+
+
+def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | None = None) -> Design:
+    """Transform, drop and encode: the design matrix for ``spec`` on ``data``. ``columns``
+    keeps converted and transformed columns between calls on the same table (see
+    ``ColumnCache``); the design is the same with or without it."""
+
+    def cached(key: tuple[Any, ...], make: Callable[[], Any]) -> Any:
+        return make() if columns is None else columns.get(data, key, make)
+
     n_total = len(data)
     if n_total == 0:
         raise DataError("the data has no rows; load a file with a header row and at least a few data rows.")
@@ -219,23 +313,27 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         if column == spec.cluster and column not in {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}:
             continue
         if column in category_columns:
-            coded[column] = _category_codes(series)
+            coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
             drop(coded[column].codes < 0, column, "missing value")
             continue
-        values = _numeric(series, column)
+        values, finite[column] = cached(
+            ("numbers", column), lambda series=series, column=column: _numbers_and_finite(series, column)
+        )
         raw[column] = values
-        finite[column] = np.isfinite(values)
         if not finite[column].all():
             drop(np.isnan(values), column, "missing value")
             drop(np.isinf(values), column, "infinite value")
 
+    def invalid(column: str, transform: Transform) -> tuple[np.ndarray, str]:
+        return cached(("invalid", column, transform), lambda: transform.invalid(raw[column]))
+
     y_transform = spec.outcome_transform
-    bad, reason = y_transform.invalid(raw[spec.outcome_column])
+    bad, reason = invalid(spec.outcome_column, y_transform)
     drop(bad & finite[spec.outcome_column], spec.outcome_column, reason)
     for reg in spec.regressors:
         if reg.column in category_columns:
             continue
-        bad, reason = reg.transform.invalid(raw[reg.column])
+        bad, reason = invalid(reg.column, reg.transform)
         drop(bad & finite[reg.column], reg.column, reason)
     if spec.weights:
         w = raw[spec.weights]
@@ -331,15 +429,27 @@ def build_design(data: pd.DataFrame, spec: ModelSpec) -> Design:
         )
 
     encoder = Encoder(blocks, width)
-    X = encoder.encode(values, n, codes_used)
+    bases = None
+    if columns is not None:
+        bases = {}
+        for block in blocks:
+            reg = block.spec
+            if not block.is_category:
+                full = cached(("basis", reg.column, reg.transform), lambda r=reg: _basis_all_rows(r.transform, raw[r.column]))
+                bases[reg.column] = full if every_row else full[rows]
+    X = encoder.encode(values, n, codes_used, bases)
     y_raw = used(raw[spec.outcome_column])
     if float(np.ptp(y_raw)) == 0:
         raise DataError(
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
             "there is nothing to explain. Pick another outcome."
         )
-    with np.errstate(all="ignore"):
-        y = y_transform.forward(y_raw)
+    if columns is not None:
+        outcome = spec.outcome_column
+        y = used(cached(("forward", outcome, y_transform), lambda: _forward_all_rows(y_transform, raw[outcome])))
+    else:
+        with np.errstate(all="ignore"):
+            y = y_transform.forward(y_raw)
 
     reference = reference_point(spec, blocks, values, modes)
     return Design(

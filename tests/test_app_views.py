@@ -70,17 +70,24 @@ def test_slow_sections_run_only_in_their_views(monkeypatch: pytest.MonkeyPatch) 
     asked: list[frozenset[str]] = []
     real = core.analyze
 
-    def recording(data: pd.DataFrame, spec: dict, parts: Any = None) -> dict:
+    caches: list[Any] = []
+
+    def recording(data: pd.DataFrame, spec: dict, parts: Any = None, columns: Any = None) -> dict:
         asked.append(frozenset(parts or ()))
-        return real(data, spec, parts=parts)
+        caches.append(columns)
+        return real(data, spec, parts=parts, columns=columns)
 
     monkeypatch.setattr(core, "analyze", recording)
     st.cache_data.clear()
     at = start()
     slow = {"units_check", "diagnostics", "boxcox", "curves", "predictions"}
     assert asked and all(not (parts & slow) for parts in asked), asked
+    hits = caches[-1].hits
     edit_grid(at, {"drink_price": {"transform": "level"}})
     assert all(not (parts & slow) for parts in asked), "a refit with the views closed asked for a slow section"
+    # Every fit of the loaded table shares one column cache, and the toggle reused its columns.
+    assert all(isinstance(c, core.ColumnCache) for c in caches) and len({id(c) for c in caches}) == 1
+    assert caches[-1].hits > hits
     show(at, "Effects of changes")
     assert any("units_check" in parts for parts in asked)
     assert not any("diagnostics" in parts for parts in asked)
