@@ -213,6 +213,15 @@ def units_view(ctx: Context) -> None:
         chart(charts.units_figure(check, ctx.outcome, ticks), key=f"units_{column}")
 
 
+def regressor_pick(ctx: Context, names: list[str], key: str) -> str:
+    """A regressor chooser, named with its transform, that keeps its choice while the column
+    stays in the model and falls back to the first one otherwise."""
+    if st.session_state.get(key) not in names:
+        st.session_state[key] = names[0]
+    transforms = ctx.transforms
+    return st.selectbox("Regressor", names, key=key, format_func=lambda c: state.variable_label(c, transforms.get(c)))
+
+
 def approximation_view(ctx: Context) -> None:
     result = ctx.result
     curves = result.get("gap_curves") or []
@@ -222,14 +231,10 @@ def approximation_view(ctx: Context) -> None:
             "range of change sizes to compare. Their exact and approximate effects are in the effects table."
         )
         return
-    ss = st.session_state
-    transforms = ctx.transforms
     names = [c["column"] for c in curves]
-    if ss.get("gap_pick") not in names:
-        ss.gap_pick = names[0]
     left, right = st.columns([2, 3])
     with left:
-        pick = st.selectbox("Regressor", names, key="gap_pick", format_func=lambda c: state.variable_label(c, transforms.get(c)))
+        pick = regressor_pick(ctx, names, "gap_pick")
     with right:
         tolerance = st.slider(
             "Tolerance: largest acceptable relative error (%)",
@@ -244,7 +249,7 @@ def approximation_view(ctx: Context) -> None:
     figure = charts.gap_figure(
         curve,
         tolerance,
-        regressor_label=state.variable_label(pick, transforms.get(pick)),
+        regressor_label=state.variable_label(pick, ctx.transforms.get(pick)),
         outcome_label=state.variable_label(outcome["column"], outcome["transform"], "outcome"),
         outcome_column=outcome["column"],
     )
@@ -262,13 +267,9 @@ def curves_view(ctx: Context) -> None:
         return
     transforms = ctx.transforms
     names = [c["column"] for c in curves]
-    if ss.get("curve_pick") not in names:
-        ss.curve_pick = names[0]
     left, right = st.columns([2, 3])
     with left:
-        pick = st.selectbox(
-            "Regressor", names, key="curve_pick", format_func=lambda c: state.variable_label(c, transforms.get(c))
-        )
+        pick = regressor_pick(ctx, names, "curve_pick")
     curve = curves[names.index(pick)]
     current = transforms.get(pick, "level")
     overlay, overlay_label = None, None
