@@ -1,7 +1,7 @@
 """The Cautions section under the results: what the numbers can and cannot say.
 
 The wording is the report's (``core.analysis.CAUTIONS`` via the result, and
-``core.report.CAUTION_REVIEW``), so the screen and the HTML report say the same; small samples
+``core.output.report.CAUTION_REVIEW``), so the screen and the HTML report say the same; small samples
 get their own line here and there.
 """
 
@@ -12,7 +12,7 @@ from typing import Any
 import streamlit as st
 
 from app import state
-from core.report import CAUTION_REVIEW
+from core.output.report import CAUTION_REVIEW
 
 # Below these the estimates are fragile (common rules of thumb, as in core's warning).
 SMALL_N = 30

@@ -1,7 +1,7 @@
 """Export: charts at slide size, result tables as files, the HTML report, and the spec file
 (downloaded, and uploaded to restore the whole screen).
 
-Everything is built by ``core`` (``core.tables``, ``core.report``, ``core.specfile``), so a file
+Everything is built by ``core`` (``core.output.tables``, ``core.output.report``, ``core.model.specfile``), so a file
 from the app and one from the command line are the same; this module only offers them. The
 pure helpers (no widgets) come first and are tested without a browser.
 """
@@ -18,10 +18,10 @@ import streamlit as st
 
 import core
 from app import charts, state
-from core import tables as core_tables
-from core.report import build_report
-from core.spec import parse_spec
-from core.specfile import parse_spec_document, spec_document
+from core.model.spec import parse_spec
+from core.model.specfile import parse_spec_document, spec_document
+from core.output import tables as core_tables
+from core.output.report import build_report
 
 # Session keys of the export choices (sidebar).
 SIZE_KEY = "export_size"
@@ -40,7 +40,7 @@ TABLE_FORMATS = {
 # --- pure helpers ------------------------------------------------------------------------------------
 def table_file(table: core_tables.Table, fmt: str) -> str:
     """One result table as a file: CSV with numbers as numbers and formula-like text cells
-    neutralised (``core.tables.to_csv``), Markdown or LaTeX (``core.tables.render``)."""
+    neutralised (``core.output.tables.to_csv``), Markdown or LaTeX (``core.output.tables.render``)."""
     if fmt == "csv":
         return core_tables.to_csv(table)
     return core_tables.render([table], fmt)
@@ -98,7 +98,7 @@ def restore_notes(spec: dict[str, Any], frame: pd.DataFrame) -> list[str]:
 
 
 def report_file(frame: pd.DataFrame, spec: dict[str, Any], data_name: str, saved: dict[str, dict[str, Any]]) -> str:
-    """The self-contained HTML report (``core.report.build_report``) for the model on screen
+    """The self-contained HTML report (``core.output.report.build_report``) for the model on screen
     and the saved models; named after the saved model when it is one."""
     current = {k: v for k, v in spec.items() if k != "name"}
     name = model_name(current, saved)

@@ -1,7 +1,7 @@
 """Getting a table in, and the advisor on screen.
 
 - reading an upload (and, for a workbook, the chosen sheet) once per file, with the notes on
-  what reading changed and the column profiles of ``core.profile``;
+  what reading changed and the column profiles of ``core.intake.profile``;
 - the app's own cap on upload size (``FORMWISE_MAX_UPLOAD_MB``), below Streamlit's hard cap
   ``server.maxUploadSize``;
 - the "Column profiles" view: what each column holds, its shape, and the transform the advisor
@@ -9,7 +9,7 @@
 - "Apply every suggestion", and identifier and date columns kept out of the model unless the
   user asks for them.
 
-The rules live in ``core.reader`` and ``core.profile``; the pure helpers here (no widgets) only
+The rules live in ``core.intake.reader`` and ``core.intake.profile``; the pure helpers here (no widgets) only
 turn them into grid edits and words, so they are tested without a browser. User text (column
 names, notes, values) is shown through ``st.text`` and ``st.dataframe``, which render no
 Markdown, or escaped for figures.
@@ -27,8 +27,8 @@ import pandas as pd
 import streamlit as st
 
 from app import charts, exports, state
-from core.profile import profile_table
-from core.reader import read_table_with_notes
+from core.intake.profile import profile_table
+from core.intake.reader import read_table_with_notes
 
 CAP_VARIABLE = "FORMWISE_MAX_UPLOAD_MB"
 DEFAULT_CAP_MB = 200.0

@@ -16,9 +16,9 @@ import pandas as pd
 from scipy import stats
 
 from core.analysis import fit_model
-from core.covariance import leverage
-from core.spec import parse_spec
-from core.transforms import parse_transform
+from core.model.covariance import leverage
+from core.model.spec import parse_spec
+from core.model.transforms import parse_transform
 
 GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
 ROLES = ["outcome", "regressor", "not used"]
@@ -163,7 +163,7 @@ def default_spec(frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> 
     Outcome: the first strictly positive numeric column that is not a counter or time index.
     Regressors: the other numeric columns that vary, and text columns with a few levels as
     categories, up to ``MAX_DEFAULT_REGRESSORS``. Raises ``GridError`` when no column fits
-    as an outcome. With the file's ``profile`` (``core.profile.profile_table``) the advisor
+    as an outcome. With the file's ``profile`` (``core.intake.profile.profile_table``) the advisor
     decides: kinds pick the columns and its suggested transforms fill the grid.
     """
     if profile is not None:

@@ -19,7 +19,7 @@ import streamlit as st
 
 import core
 from app import charts, exports, intake, state, tables
-from core import tables as core_tables
+from core.output import tables as core_tables
 
 VIEWS = [
     "Coefficients",

@@ -1,4 +1,4 @@
-"""Peak memory and load time at 1,000,000 rows: CSV -> core.reader.read_table -> core.analyze.
+"""Peak memory and load time at 1,000,000 rows: CSV -> core.intake.reader.read_table -> core.analyze.
 
     .venv/bin/python bench/memory.py                    # 1,000,000 rows; full analysis included
     .venv/bin/python bench/memory.py --rows 200000 --skip-full
@@ -20,7 +20,7 @@ ru_maxrss is used as is):
                 cache holds its cap of converted and transformed columns
 
 Target: peak below 2 GB (2,000,000,000 bytes) for loading and analysing at that size.
-Load time: core.reader.read_table(path) against plain pandas.read_csv(path), median of
+Load time: core.intake.reader.read_table(path) against plain pandas.read_csv(path), median of
 --repeats alternating calls in one process, and their ratio.
 
 No timed or sized assertions: this prints what it measures.
@@ -58,7 +58,7 @@ def child(mode: str, path: str, repeats: int) -> dict:
         return out
 
     import core
-    from core.reader import read_table
+    from core.intake.reader import read_table
 
     if mode == "load-times":
         reader_times, pandas_times = [], []
@@ -186,7 +186,9 @@ def main() -> None:
     t_reader = statistics.median(times["read_table_s"])
     t_pandas = statistics.median(times["read_csv_s"])
     print(f"\nCSV load time (median of {args.repeats} alternating calls in one process, after one warm-up)")
-    print(f"  core.reader.read_table(path)  {t_reader:7.2f} s   runs: {', '.join(f'{t:.2f}' for t in times['read_table_s'])}")
+    print(
+        f"  core.intake.reader.read_table(path)  {t_reader:7.2f} s   runs: {', '.join(f'{t:.2f}' for t in times['read_table_s'])}"
+    )
     print(f"  pandas.read_csv(path)         {t_pandas:7.2f} s   runs: {', '.join(f'{t:.2f}' for t in times['read_csv_s'])}")
     print(f"  ratio read_table / read_csv   {t_reader / t_pandas:7.2f}x")
     print(

@@ -5,7 +5,7 @@ passed as ``columns=`` lets the refits of an edit loop reuse converted and trans
 """
 
 from core.analysis import analyze
-from core.design import ColumnCache
 from core.errors import DataError, FormwiseError, SpecError
+from core.model.design import ColumnCache
 
 __all__ = ["analyze", "ColumnCache", "FormwiseError", "SpecError", "DataError"]

@@ -11,18 +11,18 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from core.covariance import covariance, sandwich
-from core.curves import effect_curve
-from core.design import ColumnCache, Design, build_design, rescaled_design
-from core.diagnostics import diagnostics
-from core.effects import Model, compute_effects, gap_curve
 from core.errors import DataError, FormwiseError
-from core.ols import NEAR_COLLINEAR, OLSFit, fit_ols
-from core.ppml import fit_ppml
-from core.readings import reading
-from core.retransform import boxcox_profile, fit_on_original_scale, predict
-from core.spec import Change, ModelSpec, parse_spec
-from core.transforms import Log
+from core.inference.curves import effect_curve
+from core.inference.diagnostics import diagnostics
+from core.inference.effects import Model, compute_effects, gap_curve
+from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
+from core.model.covariance import covariance, sandwich
+from core.model.design import ColumnCache, Design, build_design, rescaled_design
+from core.model.ols import NEAR_COLLINEAR, OLSFit, fit_ols
+from core.model.ppml import fit_ppml
+from core.model.spec import Change, ModelSpec, parse_spec
+from core.model.transforms import Log
+from core.output.readings import reading
 
 ALL_PARTS = frozenset(
     {"terms", "fit", "effects", "gap_curves", "curves", "units_check", "diagnostics", "boxcox", "retransform", "predictions"}
@@ -218,7 +218,7 @@ def units_check(
 
     ``fitted`` is the model already fitted on ``data`` (``fit_model``), if at hand. Each
     rescaled refit reuses its design and redoes only the rescaled regressor's columns
-    (``core.design.rescaled_design``) unless rescaling changes which rows are used.
+    (``core.model.design.rescaled_design``) unless rescaling changes which rows are used.
     """
     design, _, base_model = fitted if fitted is not None else fit_model(data, model_spec)
     base_effects, _ = compute_effects(base_model, only=column, with_average=False)

@@ -12,11 +12,11 @@ from typing import Any
 
 from core.analysis import analyze
 from core.errors import FormwiseError
-from core.formats import FORMATS, to_json
-from core.profile import profile_table
-from core.reader import read_table, read_table_with_notes
-from core.report import build_report
-from core.specfile import read_spec_file
+from core.intake.profile import profile_table
+from core.intake.reader import read_table, read_table_with_notes
+from core.model.specfile import read_spec_file
+from core.output.formats import FORMATS, to_json
+from core.output.report import build_report
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 DEMO_DATA = DEMO_DIR / "kiosks.csv"

@@ -9,7 +9,7 @@ import pandas as pd
 from streamlit.testing.v1 import AppTest
 
 from app import cautions
-from core.report import CAUTION_REVIEW
+from core.output.report import CAUTION_REVIEW
 from tests.helpers import shown
 
 MAIN = str(Path(__file__).resolve().parent.parent / "app" / "main.py")

@@ -21,8 +21,8 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, exports, tables
-from core import tables as core_tables
-from core.report import CAUTION_REVIEW
+from core.output import tables as core_tables
+from core.output.report import CAUTION_REVIEW
 from tests.app_support import cli_analyze, edit_grid, show, start
 from tests.helpers import shown, shown_table
 
@@ -325,7 +325,7 @@ def test_spec_upload_restores_grid_errors_and_saved_models() -> None:
     at = start()
     spec = restored_spec()
     saved = {"levels only": {**spec, "outcome": {"column": "weekly_revenue", "transform": "level"}}}
-    document = core.specfile.spec_document(spec, saved)
+    document = core.model.specfile.spec_document(spec, saved)
     upload_spec(at, "my model.json", document.encode())
     assert not at.error, [shown(e.value) for e in at.error]
     grid = at.session_state["grid_base"].set_index("column")

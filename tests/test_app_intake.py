@@ -13,8 +13,8 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import intake, state
-from core.profile import profile_table
-from core.reader import read_table_with_notes
+from core.intake.profile import profile_table
+from core.intake.reader import read_table_with_notes
 from tests.app_support import edit_grid
 
 ROOT = Path(__file__).resolve().parent.parent

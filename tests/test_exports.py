@@ -11,8 +11,8 @@ import numpy as np
 import pandas as pd
 
 import core
-from core.report import build_report
-from core.tables import coefficient_table, comparison_table, effects_table, neutralise, render, to_csv, to_latex
+from core.output.report import build_report
+from core.output.tables import coefficient_table, comparison_table, effects_table, neutralise, render, to_csv, to_latex
 
 HOSTILE_Y = '=HYPERLINK("http://example.invalid","x")'
 HOSTILE_X = "<script>alert(1)</script>"
@@ -94,7 +94,7 @@ def test_comparison_table_renders_in_every_format() -> None:
 
 
 def test_markdown_tables_keep_user_text_literal() -> None:
-    from core.tables import Table, to_markdown
+    from core.output.tables import Table, to_markdown
 
     table = Table(
         "t",

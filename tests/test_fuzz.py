@@ -11,7 +11,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import core
-from core.specfile import parse_spec_document
+from core.model.specfile import parse_spec_document
 
 COLUMNS = ["y", "x", "z", "group", "zeros"]
 TRANSFORMS = [

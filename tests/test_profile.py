@@ -17,8 +17,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.profile import KINDS, profile_table, suggest_transform
-from core.reader import read_table_with_notes
+from core.intake.profile import KINDS, profile_table, suggest_transform
+from core.intake.reader import read_table_with_notes
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"

@@ -34,7 +34,7 @@ def invented(seed: int, n: int = 80) -> pd.DataFrame:
     return pd.DataFrame({"y": 10.0 * np.exp(index), "x1": x1, "x2": x2})
 
 
-# --- transforms written out independently of core.transforms --------------------------------
+# --- transforms written out independently of core.model.transforms --------------------------------
 # Outcome transforms: forward g and the retransform g⁻¹ used for smearing (Duan 1983). For sqrt
 # the retransform is z², for Box-Cox (1 + L·z)^(1/L) (common practice, no source).
 OUTCOMES = {

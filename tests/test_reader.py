@@ -21,8 +21,8 @@ from hypothesis import strategies as st
 
 import core
 from core.errors import DataError, FormwiseError
-from core.profile import profile_table
-from core.reader import read_table, read_table_with_notes
+from core.intake.profile import profile_table
+from core.intake.reader import read_table, read_table_with_notes
 from tests.corpus import make_corpus
 
 CORPUS = Path(__file__).resolve().parent / "corpus"

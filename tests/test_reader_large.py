@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 from core.errors import DataError
-from core.reader import _DECODE_BYTES, read_table_with_notes
+from core.intake.reader import _DECODE_BYTES, read_table_with_notes
 
 
 def _rows(count: int, text: str = "é") -> str:

@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 
 import core.analysis as analysis
-from core.spec import parse_spec
+from core.model.spec import parse_spec
 
 
 @pytest.fixture(scope="module")

@@ -21,8 +21,8 @@ from typing import Any
 
 import numpy as np
 
-from core.design import Block
-from core.effects import Model
+from core.inference.effects import Model
+from core.model.design import Block
 
 GRID_POINTS = 121
 EXTEND = 0.15

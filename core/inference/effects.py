@@ -39,9 +39,9 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from core.design import Block, Design, match_level
-from core.spec import Change
-from core.transforms import Transform
+from core.model.design import Block, Design, match_level
+from core.model.spec import Change
+from core.model.transforms import Transform
 
 # Cap on the (rows x residuals) grid evaluated at once when smearing, to bound memory.
 _SMEAR_CHUNK = 4_000_000

@@ -14,9 +14,9 @@ from typing import Any
 import pandas as pd
 
 from core.analysis import analyze
-from core.svgplot import OKABE_ITO, Band, Chart, Series, render
-from core.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, format_cell
-from core.transforms import parse_transform
+from core.model.transforms import parse_transform
+from core.output.svgplot import OKABE_ITO, Band, Chart, Series, render
+from core.output.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, format_cell
 
 STYLE = """
 body { font-family: Helvetica, Arial, sans-serif; color: #1F2933; max-width: 1100px; margin: 2rem auto; padding: 0 1rem;

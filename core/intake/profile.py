@@ -23,8 +23,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from core.reader import ATTRS_KEY
-from core.retransform import boxcox_profile
+from core.inference.retransform import boxcox_profile
+from core.intake.reader import ATTRS_KEY
 
 KINDS = ("money", "count", "duration_years", "share", "percent", "binary", "category", "continuous", "identifier", "date", "text")
 HISTOGRAM_BINS = 20

@@ -37,9 +37,9 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from core.covariance import leverage
-from core.design import Design
-from core.ols import CHUNK_ROWS, OLSFit, row_chunks
+from core.model.covariance import leverage
+from core.model.design import Design
+from core.model.ols import CHUNK_ROWS, OLSFit, row_chunks
 
 MAX_LISTED_ROWS = 25
 # Eigenvalues of the unit-diagonal auxiliary Gram matrix below RANK_TOLERANCE·p times the

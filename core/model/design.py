@@ -24,8 +24,8 @@ import numpy as np
 import pandas as pd
 
 from core.errors import DataError
-from core.spec import ModelSpec, RegressorSpec
-from core.transforms import Category, Transform
+from core.model.spec import ModelSpec, RegressorSpec
+from core.model.transforms import Category, Transform
 
 
 @dataclass(frozen=True)

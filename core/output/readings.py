@@ -10,8 +10,8 @@ from __future__ import annotations
 
 import math
 
-from core.design import Block, Term
-from core.transforms import Transform
+from core.model.design import Block, Term
+from core.model.transforms import Transform
 
 HELD = "other regressors held fixed"
 

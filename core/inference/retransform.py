@@ -26,8 +26,8 @@ import numpy as np
 import scipy.linalg as sla
 from scipy import optimize, stats
 
-from core.effects import Model
-from core.transforms import Transform
+from core.inference.effects import Model
+from core.model.transforms import Transform
 
 _HERMITE_X, _HERMITE_W = np.polynomial.hermite.hermgauss(40)
 # Above this many (rows x residuals), smearing for every row is evaluated on an index grid and

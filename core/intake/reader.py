@@ -41,7 +41,7 @@ EXCEL_SUFFIXES = {".xlsx"}
 MISSING_MARKERS = ["", "NA", "N/A", "n/a", "na", "NaN", "nan", "#N/A", "null", "NULL", "None", "-", ".", "?", "missing"]
 # Product limit: beyond this a table is almost surely not a regression data set.
 MAX_COLUMNS = 500
-# Where frame.attrs keeps per-column facts for core.profile (currency removed, percent units, ...).
+# Where frame.attrs keeps per-column facts for core.intake.profile (currency removed, percent units, ...).
 ATTRS_KEY = "formwise_intake"
 
 _MISSING = {m.lower() for m in MISSING_MARKERS} | {"#na", "n.a.", "--", "none", "nil"}
@@ -132,7 +132,7 @@ def read_table_with_notes(
 ) -> tuple[pd.DataFrame, list[str]]:
     """Read a table and say, in plain notes, every conversion made on the way.
 
-    The notes are also kept, with per-column facts for ``core.profile``, in
+    The notes are also kept, with per-column facts for ``core.intake.profile``, in
     ``frame.attrs["formwise_intake"]``. Bad input raises ``DataError`` saying what to do.
     """
     raw, name = _load(source, name)

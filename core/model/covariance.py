@@ -14,7 +14,7 @@ leverage):
 
 Degrees of freedom for t-based intervals: n-k, and G-1 for cluster (Cameron & Miller 2015, §VI.C).
 
-Every meat is a sum over rows, so it is accumulated over row chunks (``core.ols.CHUNK_ROWS``):
+Every meat is a sum over rows, so it is accumulated over row chunks (``core.model.ols.CHUNK_ROWS``):
 for a chunk, the scores x̃ᵢ·uᵢ (divided by (1-hᵢ)^{1/2} or (1-hᵢ) for HC2/HC3) are formed
 and S'S, or for clusters the per-group sums of the scores, is added; no n x k array of scores
 or of weighted rows is held. The rows x̃ᵢ = rᵢ·xᵢ are passed as X and the row factors rᵢ
@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from core.errors import DataError
-from core.ols import CHUNK_ROWS, OLSFit, row_chunks
+from core.model.ols import CHUNK_ROWS, OLSFit, row_chunks
 
 
 def leverage(X: np.ndarray, bread: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:

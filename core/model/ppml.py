@@ -5,7 +5,7 @@ which are consistent whenever the mean is right, whatever the distribution of y 
 Monfort & Trognon 1984; Santos Silva & Tenreyro 2006, REStat 88(4)). The outcome is used in
 levels, zeros included, so no row is lost to a log. Solved by Newton steps with step halving.
 Robust standard errors use the sandwich with bread (X'MX)^{-1}, M = diag(μ̂), and scores
-(yᵢ - μ̂ᵢ)·xᵢ; in ``core.covariance`` terms the rows are sqrt(μ̂)·x and the residuals
+(yᵢ - μ̂ᵢ)·xᵢ; in ``core.model.covariance`` terms the rows are sqrt(μ̂)·x and the residuals
 (y - μ̂)/sqrt(μ̂). Coefficients read as for a log outcome.
 """
 

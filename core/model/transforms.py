@@ -8,7 +8,7 @@ design matrix and their derivatives with respect to the original variable. Every
 also names the rows it cannot take and carries a plain-word label.
 
 Exact effects, approximations, retransformation and curves are written once against this
-interface (see ``core.effects``), so a new transform is added here and nowhere else.
+interface (see ``core.inference.effects``), so a new transform is added here and nowhere else.
 
 Formulas (x the original variable, C > 0 a shift, L the Box-Cox power):
 
@@ -281,7 +281,7 @@ class Quadratic(Transform):
 
 @dataclass(frozen=True)
 class Category(Transform):
-    """Dummies for every level but the reference. Levels are handled in ``core.design``."""
+    """Dummies for every level but the reference. Levels are handled in ``core.model.design``."""
 
     name: str = "category"
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from core.tables import markdown_escape, neutralise, render, result_tables
+from core.output.tables import markdown_escape, neutralise, render, result_tables
 
 
 def to_json(result: dict[str, Any]) -> str:

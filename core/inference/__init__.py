@@ -1,0 +1,1 @@
+"""What a fitted model says: effects, curves, retransformation, residual checks, the units check."""

@@ -1,0 +1,1 @@
+"""From a spec and a table to a fitted model: spec, transforms, design, least squares, covariance."""

@@ -1,0 +1,1 @@
+"""Results turned into words, numbers and files: readings, tables, documents and the report."""
