@@ -11,7 +11,7 @@ from typing import Any
 
 import streamlit as st
 
-from app import state
+from core.output.escape import plain
 from core.output.report import CAUTION_REVIEW
 
 # Below these the estimates are fragile (common rules of thumb, as in core's warning).
@@ -53,6 +53,6 @@ def section(result: dict[str, Any]) -> None:
         st.markdown("##### Cautions")
         for line in lines(result):
             if line in small:
-                st.warning(state.plain(line), icon=":material/warning:")
+                st.warning(plain(line), icon=":material/warning:")
             else:
-                st.markdown(f"- {state.plain(line)}")
+                st.markdown(f"- {plain(line)}")

@@ -15,6 +15,8 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
+from core.output.escape import html
+
 BLUE = "#0072B2"
 ORANGE = "#E69F00"
 SKY = "#56B4E9"
@@ -24,12 +26,6 @@ GREEN = "#009E73"
 INK = "#1F2933"
 GRID = "#E4E7EB"
 FONT = "Source Sans Pro, Segoe UI, Helvetica, Arial, sans-serif"
-
-
-def plain(text: Any) -> str:
-    """User text (column names, category levels) as literal text in a figure: Plotly reads a
-    few HTML tags in titles, labels and legends, so '<', '>' and '&' are escaped."""
-    return str(text).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def _arrays(curve: dict[str, Any]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -167,8 +163,8 @@ def gap_figure(
     tolerance. Effects are on the outcome itself (a % change or a change in its units), so the
     subtitle names the outcome, and the model's transform of it only as the model."""
     sizes, approx, exact = _arrays(curve)
-    column = plain(curve["column"])
-    regressor_label, outcome_label, outcome_column = plain(regressor_label), plain(outcome_label), plain(outcome_column)
+    column = html(curve["column"])
+    regressor_label, outcome_label, outcome_column = html(regressor_label), html(outcome_label), html(outcome_column)
     percent_change = curve["kind"] == "percent"
     percent_effect = curve["units"] == "percent"
     chosen = float(curve["chosen"])
@@ -510,7 +506,7 @@ def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None =
     x_title = out.layout.xaxis.title.text or ""
     x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
-    text, lines = wrap(plain(caption), _chars_per_line(TYPE["caption"], canvas_width))
+    text, lines = wrap(html(caption), _chars_per_line(TYPE["caption"], canvas_width))
     out.add_annotation(
         text=text,
         xref="paper",
@@ -587,10 +583,10 @@ def curve_figure(
     reference point): the CI band, the smearing and the naive retransform, a light sample of the
     data, the stretches beyond the observed data shaded, and optionally the smearing curve of
     another transform of the same regressor."""
-    regressor_label, outcome_column, outcome_label = plain(regressor_label), plain(outcome_column), plain(outcome_label)
+    regressor_label, outcome_column, outcome_label = html(regressor_label), html(outcome_column), html(outcome_label)
     if curve["kind"] == "levels":
         return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml)
-    column = plain(curve["column"])
+    column = html(curve["column"])
     x = _floats(curve["x"])
     smear, naive = _floats(curve["smearing"]), _floats(curve["naive"])
     low, high = _floats(curve["ci_low"]), _floats(curve["ci_high"])
@@ -665,7 +661,7 @@ def curve_figure(
                 x=ox[okeep],
                 y=oy[okeep],
                 mode="lines",
-                name=plain(overlay_label or "Other transform"),
+                name=html(overlay_label or "Other transform"),
                 line={"color": VERMILLION, "width": 3, "dash": "dashdot"},
                 hovertemplate=f"{column} %{{x:.4g}}<br>%{{y:,.4g}}<extra>other transform</extra>",
             )
@@ -720,9 +716,9 @@ def _levels_figure(
 ) -> go.Figure:
     """Categories and 0/1 variables: one point per level with its 95 % interval as error bars,
     the data as a light jittered strip behind."""
-    column = plain(curve["column"])
+    column = html(curve["column"])
     levels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in curve["x"]]
-    ticks = [plain(f"{lv} (reference)" if i == 0 and len(levels) > 2 else lv) for i, lv in enumerate(levels)]
+    ticks = [html(f"{lv} (reference)" if i == 0 and len(levels) > 2 else lv) for i, lv in enumerate(levels)]
     positions = np.arange(len(levels), dtype=float)
     smear, naive = _floats(curve["smearing"]), _floats(curve["naive"])
     low, high = _floats(curve["ci_low"]), _floats(curve["ci_high"])
@@ -803,7 +799,7 @@ def _levels_figure(
 def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[str]) -> go.Figure:
     """The exact effect of the same real change when the variable is recorded in other units."""
     rows = check["rows"]
-    column, outcome_column = plain(check["column"]), plain(outcome_column)
+    column, outcome_column = html(check["column"]), html(outcome_column)
     factors = [r["factor"] for r in rows]
     exact = _floats([r["exact"] for r in rows])
     percent = check["units"] == "percent"
@@ -838,7 +834,7 @@ def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[st
     y_title = f"% change in {outcome_column}" if percent else f"change in {outcome_column}"
     _style(
         fig,
-        title=f"Effect of {plain(check['change'])} in {column}, by units",
+        title=f"Effect of {html(check['change'])} in {column}, by units",
         subtitle="A flat line would mean the units do not matter",
         x_title=f"{column} rescaled",
         y_title=y_title,
@@ -892,7 +888,7 @@ def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
         fig,
         "Residuals against fitted values",
         "Good: an even cloud around zero, flat red line",
-        f"Fitted {plain(fitted_label)}",
+        f"Fitted {html(fitted_label)}",
         "Residual",
         height=470,
         title_size=22,
@@ -984,7 +980,7 @@ def scale_location_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
         fig,
         "Spread of residuals against fitted values",
         "Good: a flat red line; rising or falling means the spread changes",
-        f"Fitted {plain(fitted_label)}",
+        f"Fitted {html(fitted_label)}",
         "√|standardised residual|",
         height=470,
         title_size=22,
@@ -995,7 +991,7 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
     """One variable's histogram as recorded and, beside it, as transformed."""
     panels = [("raw", f"As recorded<br>skewness {_skew_text(item['skew_raw'])}")]
     if item.get("transformed"):
-        panels.append(("transformed", f"As {plain(item['label'])}<br>skewness {_skew_text(item['skew_transformed'])}"))
+        panels.append(("transformed", f"As {html(item['label'])}<br>skewness {_skew_text(item['skew_transformed'])}"))
     fig = make_subplots(rows=1, cols=len(panels), subplot_titles=[t for _, t in panels], horizontal_spacing=0.1)
     for i, (key, _) in enumerate(panels, start=1):
         hist = item[key]
@@ -1019,7 +1015,7 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
         plot_bgcolor="white",
         font={"family": FONT, "size": TYPE["base"] - 1, "color": INK},
         title={
-            "text": f"{plain(item['column'])} ({item['role']})",
+            "text": f"{html(item['column'])} ({item['role']})",
             "x": 0.01,
             "xanchor": "left",
             "xref": "container",
@@ -1047,7 +1043,7 @@ def profile_histogram_figure(entry: dict[str, Any]) -> go.Figure | None:
         return None
     edges = np.asarray(histogram["edges"], dtype=float)
     counts = np.asarray(histogram["counts"], dtype=float)
-    column = plain(entry["column"])
+    column = html(entry["column"])
     fig = go.Figure(
         go.Bar(
             x=(edges[:-1] + edges[1:]) / 2,
@@ -1072,7 +1068,7 @@ def _skew_text(value: float | None) -> str:
 def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
     """The profile log-likelihood of the Box-Cox power λ, with λ̂, its 95 % interval and the
     two powers people usually choose between: 0 (log) and 1 (level)."""
-    outcome_column = plain(outcome_column)
+    outcome_column = html(outcome_column)
     lam = _floats(boxcox["profile"]["lambda"])
     loglik = _floats(boxcox["profile"]["loglik"])
     best, low, high = boxcox["lambda"], boxcox.get("ci_low"), boxcox.get("ci_high")

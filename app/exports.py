@@ -21,6 +21,7 @@ from app import charts, state
 from core.model.spec import parse_spec
 from core.model.specfile import parse_spec_document, spec_document
 from core.output import tables as core_tables
+from core.output.escape import plain
 from core.output.report import build_report
 
 # Session keys of the export choices (sidebar).
@@ -240,9 +241,9 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
             help="A spec file saved here or written by hand for this data: the grid, errors and saved models follow it.",
         )
         if ss.get("spec_upload_error"):
-            st.error(state.plain(ss.spec_upload_error))
+            st.error(plain(ss.spec_upload_error))
         for note in ss.get("spec_upload_notes") or []:
-            st.caption(state.plain(note))
+            st.caption(plain(note))
 
         st.markdown("##### Report")
         if not good:
@@ -255,7 +256,7 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
                     html = report_file(good["frame"], good["spec"], good["data_name"], saved)
                 except Exception as exc:  # a core bug must not become a traceback on screen
                     ss.report = None
-                    st.error(state.plain(f"The report could not be written: {exc}"))
+                    st.error(plain(f"The report could not be written: {exc}"))
                 else:
                     ss.report = {"key": key, "html": html}
         report = ss.get("report")

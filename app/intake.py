@@ -29,6 +29,8 @@ import streamlit as st
 from app import charts, exports, state
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
+from core.output.escape import plain
+from core.output.numbers import round_sig, signed
 
 CAP_VARIABLE = "FORMWISE_MAX_UPLOAD_MB"
 DEFAULT_CAP_MB = 200.0
@@ -230,7 +232,7 @@ def note_text(note: str, columns: list[str]) -> str:
 
 
 def _signed(value: float | None, digits: int = 2) -> str:
-    return "—" if value is None else state._signed(value, digits)
+    return "—" if value is None else signed(value, digits)
 
 
 def evidence_lines(entry: dict[str, Any], outcome: bool) -> list[str]:
@@ -276,7 +278,7 @@ def _number(value: Any, digits: int | None = None) -> float | None:
     if not isinstance(value, (int, float)) or not math.isfinite(value):
         return None
     if digits is not None:
-        value = round(value) if abs(value) >= 1000 else state.round_sig(float(value), digits)
+        value = round(value) if abs(value) >= 1000 else round_sig(float(value), digits)
     return float(value) + 0.0  # no "-0"
 
 
@@ -334,7 +336,7 @@ def intake_notes(data: dict[str, Any]) -> None:
     with st.expander("What was changed while reading"):
         columns = [str(c) for c in data["frame"].columns]
         ordered = note_order(list(notes), columns)
-        st.caption("\n".join(f"- {state.plain(note_text(note, columns))}" for note in ordered))
+        st.caption("\n".join(f"- {plain(note_text(note, columns))}" for note in ordered))
         if len(ordered) <= 1:
             st.caption("Nothing else needed converting.")
 
@@ -343,7 +345,7 @@ def cap_note() -> None:
     """A word under the uploader when the cap setting cannot be used."""
     _, problem = upload_cap()
     if problem:
-        st.caption(f"⚠ {state.plain(problem)}")
+        st.caption(f"⚠ {plain(problem)}")
 
 
 def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
@@ -374,7 +376,7 @@ def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
     with right:
         message = ss.pop("advice_message", None)
         if message:
-            st.caption(state.plain(message))
+            st.caption(plain(message))
         else:
             st.caption("The advisor's transform for each column, with its reasons, is in the Column profiles view below.")
 
@@ -399,8 +401,8 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
             st.rerun()
     message = ss.pop("lock_message", None)
     if message:
-        st.info(state.plain(message), icon=":material/lock:")
-    names = state.plain(state.join_words(list(locked)))
+        st.info(plain(message), icon=":material/lock:")
+    names = plain(state.join_words(list(locked)))
     st.checkbox(
         "Let me use identifier and date columns anyway",
         key=UNLOCK_KEY,
@@ -423,7 +425,7 @@ def profiles_view(ctx: Any = None) -> None:
     entries = state.profile_entries(profile)
     outcome = state.outcome_column(grid) if grid is not None else None
     st.caption(
-        f"**{state.plain(data.get('name', ''))}**: {profile.get('n_rows', 0):,} rows × {len(entries)} columns. "
+        f"**{plain(data.get('name', ''))}**: {profile.get('n_rows', 0):,} rows × {len(entries)} columns. "
         "The suggestions are rules of thumb from each "
         "column's name and values (amounts → log, zeros → IHS or levels, years and shares → levels); change any of "
         "them in the grid, or set them all with “Apply every suggestion” above it. Bars: how the values are spread "
@@ -477,11 +479,11 @@ def profiles_view(ctx: Any = None) -> None:
         st.markdown(f"**Suggested: {suggested}** · {kind_words(entry)}{where}")
         reasons = [state.sentence_case(arrows(r)) for r in entry.get("reasons") or []]
         if reasons:
-            st.markdown("\n".join(f"- {state.plain(r)}" for r in reasons))
+            st.markdown("\n".join(f"- {plain(r)}" for r in reasons))
         lines = evidence_lines(entry, outcome=pick == outcome)
         if lines:
             st.markdown("**Evidence**")
-            st.markdown("\n".join(f"- {state.plain(line)}" for line in lines))
+            st.markdown("\n".join(f"- {plain(line)}" for line in lines))
         figure = charts.profile_histogram_figure(entry)
         if figure is not None:
             exports.chart(figure, key="profile_histogram")

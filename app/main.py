@@ -22,6 +22,7 @@ import streamlit as st  # noqa: E402
 
 import core  # noqa: E402
 from app import cautions, exports, intake, state, views  # noqa: E402
+from core.output.escape import plain  # noqa: E402
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
@@ -95,7 +96,7 @@ def sidebar() -> None:
     frame: pd.DataFrame = ss.data["frame"]
     with st.sidebar:
         st.markdown("### Data")
-        st.markdown(f"**{state.plain(ss.data['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
+        st.markdown(f"**{plain(ss.data['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
         intake.intake_notes(ss.data)
         upload = st.file_uploader(
             "Load your own table",
@@ -107,8 +108,8 @@ def sidebar() -> None:
         if upload is not None:
             take_upload(upload)
         if ss.get("upload_error"):
-            st.error(state.plain(ss.upload_error))
-            st.caption(f"Still working with: {state.plain(ss.data['name'])}.")
+            st.error(plain(ss.upload_error))
+            st.caption(f"Still working with: {plain(ss.data['name'])}.")
         if ss.data["id"] != DEMO_ID and st.button("Back to the demo data", width="stretch"):
             load_demo()
             ss.uploader_version = ss.get("uploader_version", 0) + 1
@@ -192,7 +193,7 @@ def variables_grid() -> pd.DataFrame:
     if levels:
         st.caption(
             "Category levels (most frequent first; blank reference = the most frequent): "
-            + " · ".join(f"**{state.plain(col)}**: {', '.join(map(state.plain, vals))}" for col, vals in levels.items())
+            + " · ".join(f"**{plain(col)}**: {', '.join(map(state.plain, vals))}" for col, vals in levels.items())
         )
     return grid
 
@@ -224,7 +225,7 @@ def zeros_offer(grid: pd.DataFrame) -> str:
         if note["ppml_possible"]:
             text += (
                 " Poisson pseudo-maximum likelihood keeps those rows: it models the mean of "
-                f"{state.plain(note['column'])} directly (no log of the outcome), and its effects read as % changes."
+                f"{plain(note['column'])} directly (no log of the outcome), and its effects read as % changes."
             )
             st.markdown(text)
             st.toggle("Model the mean directly (Poisson pseudo-maximum likelihood)", key="ppml", on_change=ppml_switched)
@@ -238,10 +239,10 @@ def zeros_offer(grid: pd.DataFrame) -> str:
 def show_results(good: dict[str, Any]) -> None:
     result, spec, data_name = good["result"], good["spec"], good["data_name"]
     with st.container(border=True):
-        st.markdown(f"##### {state.plain(state.sentence_case(state.model_sentence(result)))}")
+        st.markdown(f"##### {plain(state.sentence_case(state.model_sentence(result)))}")
         estimator = spec.get("estimator") or "ols"
         st.markdown(
-            state.plain(
+            plain(
                 f"{state.rows_sentence(result)} · data: {data_name} · "
                 + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
                 + f"standard errors: {state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
@@ -250,9 +251,9 @@ def show_results(good: dict[str, Any]) -> None:
             )
         )
         for line in state.dropped_lines(result):
-            st.caption(state.plain(f"Left out: {line}"))
+            st.caption(plain(f"Left out: {line}"))
     for warning in result.get("warnings") or []:
-        st.warning(state.plain(state.sentence_case(warning)))
+        st.warning(plain(state.sentence_case(warning)))
     st.caption(
         "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
         "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
@@ -293,12 +294,12 @@ def main() -> None:
         error = f"Formwise could not fit this model because of an internal problem ({type(exc).__name__}: {exc})."
 
     for note in notes:
-        st.info(state.plain(note))
+        st.info(plain(note))
     good = ss.get("last_good")
     if error:
-        st.error(state.plain(error))
+        st.error(plain(error))
         if good:
-            other_data = "" if good["data_id"] == ss.data["id"] else f" on {state.plain(good['data_name'])}"
+            other_data = "" if good["data_id"] == ss.data["id"] else f" on {plain(good['data_name'])}"
             st.info(
                 f"The results below belong to the previous valid model{other_data}, not to the grid as it is now. "
                 "Fix the problem above and they update."

@@ -15,10 +15,12 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from core.analysis import fit_model
 from core.model.covariance import leverage
+from core.model.fitted import fit_model
 from core.model.spec import parse_spec
 from core.model.transforms import parse_transform
+from core.output.escape import plain
+from core.output.numbers import compact, p_text, round_sig, signed, step_for
 
 GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
 ROLES = ["outcome", "regressor", "not used"]
@@ -90,20 +92,6 @@ def _looks_like_index(name: str, values: pd.Series) -> bool:
 def _skewness(values: pd.Series) -> float:
     skew = values.dropna().skew()
     return float(skew) if skew is not None and math.isfinite(skew) else 0.0
-
-
-def compact(value: float) -> str:
-    """A number in few characters for the 'about' column: 4.1, 6,383, 0.0123, 3.5e+06."""
-    if not math.isfinite(value):
-        return "n/a"
-    magnitude = abs(value)
-    if magnitude == 0:
-        return "0"
-    if magnitude >= 1e6 or magnitude < 1e-3:
-        return f"{value:.2g}"
-    if magnitude >= 1000:
-        return f"{value:,.0f}"
-    return f"{value:.3g}"
 
 
 def describe_column(series: pd.Series) -> str:
@@ -514,28 +502,6 @@ def sentence_case(text: str) -> str:
     return text[:1].upper() + text[1:] if text else text
 
 
-# Characters Streamlit's Markdown (GitHub-flavoured, plus its own :color[...] directives, emoji
-# shortcodes and $...$ LaTeX) gives a meaning; each is shown literally when backslash-escaped.
-_MARKDOWN_SPECIAL = re.compile(r"([\\`*_{}\[\]()#+\-.!|<>$~:&])")
-# Bare URLs and e-mail addresses are linked *after* parsing (GFM autolink literals), so an
-# escape does not stop them; an invisible word joiner after 'http:', 'www' or '@' does.
-_AUTOLINK_START = re.compile(r"(?i)(?<=:)(?=//)|(?<=www)(?=\.)|(?<=@)")
-WORD_JOINER = "\u2060"
-
-
-def plain(text: Any) -> str:
-    """User text (column names, category levels, file and model names, cell values, messages
-    that quote them) as literal text in anything Streamlit renders as Markdown: st.markdown,
-    st.caption, st.error and the other alerts, st.table cells and headers, widget labels.
-
-    Without it a column named ``![x](http://host/p.png)`` fetches an image, ``[x](javascript:…)``
-    makes a link, ``:red[x]`` colours text and ``$x$`` typesets LaTeX. Line breaks become
-    spaces so a name cannot start a heading or a list.
-    """
-    flat = " ".join(str(text).splitlines())
-    return _MARKDOWN_SPECIAL.sub(r"\\\1", _AUTOLINK_START.sub(WORD_JOINER, flat))
-
-
 # --- the views' shared helpers ----------------------------------------------------------------------
 # Largest number of points any chart sends to the browser (SPEC §8).
 MAX_POINTS = 20_000
@@ -543,31 +509,6 @@ MAX_POINTS = 20_000
 CURVE_POINTS = 2_000
 # Significance level for the plain-word test sentences (common practice, no source).
 ALPHA = 0.05
-
-
-def p_text(p: float | None) -> str:
-    """'p = 0.92', 'p = 0.013', 'p < 0.001'; two significant digits below 0.1."""
-    if p is None or not math.isfinite(p):
-        return "p not available"
-    if p < 0.001:
-        return "p < 0.001"
-    if p < 0.1:
-        return f"p = {p:.2g}"
-    return f"p = {p:.2f}"
-
-
-def round_sig(value: float, digits: int = 4) -> float:
-    """``value`` rounded to ``digits`` significant digits (input defaults that read well)."""
-    if value == 0 or not math.isfinite(value):
-        return value
-    return round(value, digits - 1 - math.floor(math.log10(abs(value))))
-
-
-def step_for(value: float) -> float:
-    """A +/- step of about a tenth of the value's magnitude: 6383 -> 100, 4.56 -> 0.1."""
-    if value == 0 or not math.isfinite(value):
-        return 1.0
-    return float(10 ** (math.floor(math.log10(abs(value))) - 1))
 
 
 def spec_json(spec: dict[str, Any]) -> str:
@@ -861,19 +802,14 @@ def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[di
     return out
 
 
-def _signed(value: float, digits: int = 2) -> str:
-    # Rounded first, so a value that rounds to zero shows as 0.00, not −0.00.
-    return f"{round(value, digits) + 0.0:.{digits}f}".replace("-", "\u2212")
-
-
 def skew_words(before: float | None, after: float | None, zeros: int = 0) -> str:
     """'skewness 3.10 → 0.05' with a word on what changed; a transform that keeps zeros leaves
     them as a spike at zero, which a skewness near 0 does not show."""
     if before is None:
         return "skewness not available"
     if after is None:
-        return f"skewness {_signed(before)}"
-    text = f"skewness {_signed(before)} → {_signed(after)}"
+        return f"skewness {signed(before)}"
+    text = f"skewness {signed(before)} → {signed(after)}"
     if abs(after) < 0.5 <= abs(before):
         text += " (the transform tamed the long tail)"
     elif abs(after) > abs(before) + 0.25:
@@ -951,8 +887,8 @@ def boxcox_sentence(boxcox: dict[str, Any], column: str) -> str:
     if lam is None:
         return f"The Box-Cox profile for {column} could not be computed."
     if low is None or high is None:
-        return f"The best power for {column} is λ = {_signed(lam)}; its 95 % interval is open on one side."
-    head = f"The best power for {column} is λ = {_signed(lam)} (95 % interval {_signed(low)} to {_signed(high)}). "
+        return f"The best power for {column} is λ = {signed(lam)}; its 95 % interval is open on one side."
+    head = f"The best power for {column} is λ = {signed(lam)} (95 % interval {signed(low)} to {signed(high)}). "
 
     def inside(value: float) -> bool:
         return low <= value <= high

@@ -14,44 +14,13 @@ import pandas as pd
 from pandas.io.formats.style import Styler
 
 from app.state import plain, variable_label
+from core.output.numbers import interval, p_value, sig
 
 DASH = "—"
 MINUS = "\u2212"
 # Non-breaking space: keeps '−6.94 %' on one line in narrow table columns.
 NBSP = "\u00a0"
 EXTRAPOLATED = "⚠ beyond the observed data"
-
-
-def sig(value: float | None, digits: int = 4, signed: bool = False) -> str:
-    """``value`` to ``digits`` significant digits, thousands separated, scientific only
-    for very large or very small magnitudes; a dash for missing values."""
-    if value is None or not math.isfinite(value):
-        return DASH
-    magnitude = abs(value)
-    if magnitude == 0:
-        text = "0"
-    elif magnitude >= 1e7 or magnitude < 1e-4:
-        text = f"{magnitude:.{digits - 1}e}"
-    else:
-        decimals = max(0, digits - 1 - math.floor(math.log10(magnitude)))
-        text = f"{magnitude:,.{decimals}f}"
-    if value < 0 and text.strip("0.,e+-") != "":
-        return MINUS + text
-    return ("+" if signed and value > 0 else "") + text
-
-
-def p_value(value: float | None) -> str:
-    if value is None or not math.isfinite(value):
-        return DASH
-    if value < 0.001:
-        return "< 0.001"
-    return f"{value:.3f}"
-
-
-def interval(low: float | None, high: float | None, digits: int = 3, suffix: str = "") -> str:
-    if low is None or high is None:
-        return DASH
-    return f"{sig(low, digits)}{suffix} to {sig(high, digits)}{suffix}"
 
 
 def term_label(term: dict[str, Any], references: dict[str, str]) -> str:

@@ -20,6 +20,8 @@ import streamlit as st
 import core
 from app import charts, exports, intake, state, tables
 from core.output import tables as core_tables
+from core.output.escape import plain
+from core.output.numbers import compact, sig
 
 VIEWS = [
     "Coefficients",
@@ -116,11 +118,9 @@ def chart(figure: Any, key: str, screen_width: int | None = None) -> None:
 def failed(exc: Exception) -> None:
     """A view's own computation failed: say so in the view, keep the rest of the page."""
     if isinstance(exc, core.FormwiseError):
-        st.error(state.plain(state.sentence_case(str(exc))))
+        st.error(plain(state.sentence_case(str(exc))))
     else:
-        st.error(
-            state.plain(f"Formwise could not compute this view because of an internal problem ({type(exc).__name__}: {exc}).")
-        )
+        st.error(plain(f"Formwise could not compute this view because of an internal problem ({type(exc).__name__}: {exc})."))
 
 
 def show(ctx: Context) -> None:
@@ -169,10 +169,7 @@ def effects_view(ctx: Context) -> None:
     point = result.get("reference_point") or {}
     if point:
         st.caption(
-            state.plain(
-                "Reference values: "
-                + ", ".join(f"{k} = {tables.sig(v, 4) if isinstance(v, float) else v}" for k, v in point.items())
-            )
+            plain("Reference values: " + ", ".join(f"{k} = {sig(v, 4) if isinstance(v, float) else v}" for k, v in point.items()))
         )
     units_view(ctx)
 
@@ -184,7 +181,7 @@ def units_view(ctx: Context) -> None:
         return
     if ctx.result.get("n_obs", 0) > UNITS_CHECK_AUTO_ROWS:
         # Six refits per variable take seconds at this size: run them when asked, not on every refit.
-        st.markdown(f"##### Does the effect of {state.plain(state.join_words(unit_bound))} depend on the units?")
+        st.markdown(f"##### Does the effect of {plain(state.join_words(unit_bound))} depend on the units?")
         if not st.toggle(
             f"Check it (refits the model {6 * len(unit_bound)} times on {ctx.result['n_obs']:,} rows)", key="units_check_on"
         ):
@@ -193,9 +190,9 @@ def units_view(ctx: Context) -> None:
         checks = ctx.analyze({"units_check"}).get("units_check") or []
     for check in checks:
         column = check["column"]
-        st.markdown(f"##### Does the effect of {state.plain(column)} depend on its units?")
+        st.markdown(f"##### Does the effect of {plain(column)} depend on its units?")
         st.caption(
-            state.plain(
+            plain(
                 f"With {state.variable_label(column, ctx.transforms.get(column))}, the fitted effect can change when "
                 f"{column} is recorded in other units (say thousands instead of units), although the data mean the same. "
                 "Here the model is refitted with the variable rescaled and the same real change asked each time."
@@ -203,7 +200,7 @@ def units_view(ctx: Context) -> None:
         )
         warning = state.units_warning(check, ctx.transforms.get(column))
         if warning:
-            st.warning(state.plain(warning))
+            st.warning(plain(warning))
         words = [state.factor_words(r["factor"]) for r in check["rows"]]
         st.table(
             tables.styled(tables.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
@@ -254,7 +251,7 @@ def approximation_view(ctx: Context) -> None:
         outcome_column=outcome["column"],
     )
     chart(figure, key="gap_chart")
-    st.markdown(state.plain(charts.curve_summary(curve, tolerance)))
+    st.markdown(plain(charts.curve_summary(curve, tolerance)))
 
 
 # --- effect curves ----------------------------------------------------------------------------------------
@@ -280,7 +277,7 @@ def curves_view(ctx: Context) -> None:
             if ss.get("curve_overlay") not in choices:
                 ss.curve_overlay = "none"
             other = st.selectbox(
-                f"Compare with another transform of {state.plain(pick)}",
+                f"Compare with another transform of {plain(pick)}",
                 choices,
                 key="curve_overlay",
                 format_func=lambda t: "no comparison" if t == "none" else state.transform_phrase(pick, t),
@@ -293,7 +290,7 @@ def curves_view(ctx: Context) -> None:
                     overlay = next(c for c in found if c["column"] == pick)
                     overlay_label = f"With {state.transform_phrase(pick, other)} instead: expected value"
                 except core.FormwiseError as exc:
-                    st.warning(state.plain(f"The model with {pick} as {other} could not be fitted: {exc}"))
+                    st.warning(plain(f"The model with {pick} as {other} could not be fitted: {exc}"))
     show_naive = state.retransforms_differ(curve) and not ctx.ppml
     points = point_sample(ctx.data_id, pick, ctx.outcome, ctx.frame)
     figure = charts.curve_figure(
@@ -308,7 +305,7 @@ def curves_view(ctx: Context) -> None:
         ppml=ctx.ppml,
     )
     chart(figure, key="curve_chart")
-    st.markdown(state.plain(state.curve_sentence(curve, ctx.outcome, show_naive)))
+    st.markdown(plain(state.curve_sentence(curve, ctx.outcome, show_naive)))
     notes = [f"Grey dots: the data, {state.showing_words(points['shown'], points['total'])}."]
     if curve["kind"] == "continuous":
         notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
@@ -319,7 +316,7 @@ def curves_view(ctx: Context) -> None:
         )
     elif not ctx.ppml and ctx.result["outcome"]["transform"] == "level":
         notes.append(f"{ctx.outcome} is modelled in levels, so no back-transform is needed.")
-    st.caption(state.plain(" ".join(notes)))
+    st.caption(plain(" ".join(notes)))
 
 
 # --- residual checks ----------------------------------------------------------------------------------------
@@ -338,13 +335,13 @@ def checks_view(ctx: Context) -> None:
         residuals = residual_data(ctx.data_id, state.spec_json(spec), ctx.frame)
     st.markdown("##### What the tests say")
     for concern, sentence in state.check_sentences(result.get("diagnostics") or {}, result.get("covariance", "HC1")):
-        st.markdown(f"{':orange[**⚠**]' if concern else ':green[**✓**]'} {state.plain(sentence)}")
+        st.markdown(f"{':orange[**⚠**]' if concern else ':green[**✓**]'} {plain(sentence)}")
     if result.get("diagnostics"):
         exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
     if residuals is not None:
         st.markdown("##### The residuals")
         st.caption(
-            state.plain(
+            plain(
                 f"Residuals are on the scale of {ctx.outcome_label}. "
                 f"Dots: {state.showing_words(residuals['shown'], residuals['n'])}; lines and bars use every row."
             )
@@ -361,14 +358,14 @@ def checks_view(ctx: Context) -> None:
         with bottom[1]:
             chart(charts.scale_location_figure(residuals, fitted_label), key="resid_scale", screen_width=HALF_COLUMN)
 
-    st.markdown(f"##### Is the transform of {state.plain(ctx.outcome)} right?")
+    st.markdown(f"##### Is the transform of {plain(ctx.outcome)} right?")
     boxcox = result.get("boxcox")
     if boxcox:
         chart(charts.boxcox_figure(boxcox, ctx.outcome), key="boxcox_chart")
-        st.markdown(state.plain(state.boxcox_sentence(boxcox, ctx.outcome)))
+        st.markdown(plain(state.boxcox_sentence(boxcox, ctx.outcome)))
     else:
         st.info(
-            state.plain(
+            plain(
                 f"The Box-Cox profile needs {ctx.outcome} above zero in every row used; it is not, so only the "
                 "transforms that accept zeros (levels, IHS, log(x + 1), PPML) apply."
             )
@@ -399,9 +396,9 @@ def checks_view(ctx: Context) -> None:
     else:
         st.caption(
             f"{influence.get('n_above_cutoff', 0):,} rows have a Cook's distance above 4/n = "
-            f"{tables.sig(influence.get('cooks_cutoff'), 2)} (a common rule of thumb); the {len(table)} largest are listed, "
+            f"{sig(influence.get('cooks_cutoff'), 2)} (a common rule of thumb); the {len(table)} largest are listed, "
             "numbered as in the spreadsheet (the header is row 1). Leverage measures how unusual a row's regressors "
-            f"are ({influence.get('n_high_leverage', 0):,} rows above 2k/n = {tables.sig(influence.get('high_leverage_cutoff'), 2)})."
+            f"are ({influence.get('n_high_leverage', 0):,} rows above 2k/n = {sig(influence.get('high_leverage_cutoff'), 2)})."
         )
         st.table(tables.styled(table, numbers_in=columns), hide_index=True)
 
@@ -422,7 +419,7 @@ def distributions_section(ctx: Context) -> None:
                 chart(charts.distribution_figure(item), key=f"dist_{item['column']}")
                 extra = f" · {item['n_left_out']:,} rows the transform cannot take left out" if item["n_left_out"] else ""
                 words = state.skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
-                st.caption(state.plain(f"{item['label']}: {words}{extra}"))
+                st.caption(plain(f"{item['label']}: {words}{extra}"))
 
 
 # --- compare models ----------------------------------------------------------------------------------------
@@ -465,7 +462,7 @@ def compare_view(ctx: Context) -> None:
         with remove_col:
             st.button("Remove", key="remove_model", on_click=_remove_model, args=(ctx.data_id,), width="stretch")
     if ss.get("save_message"):
-        st.caption(state.plain(ss.pop("save_message")))
+        st.caption(plain(ss.pop("save_message")))
 
     entries = [(m["name"], m["spec"]) for m in saved]
     current_json = state.spec_json(ctx.spec)
@@ -480,7 +477,7 @@ def compare_view(ctx: Context) -> None:
             try:
                 result = ctx.analyze(set(state.COMPARE_PARTS), spec)
             except core.FormwiseError as exc:
-                st.warning(state.plain(f"“{name}” could not be fitted on this data: {exc}"))
+                st.warning(plain(f"“{name}” could not be fitted on this data: {exc}"))
                 continue
             rows.append(state.compare_row(name, spec, result, ctx.data_id))
             fitted[name] = result
@@ -533,7 +530,7 @@ def predict_view(ctx: Context) -> None:
         return
     st.caption(
         "Enter the values to predict for; they start at the reference point (sample means, most frequent levels). "
-        f"The prediction is on the scale of {state.plain(ctx.outcome)} as recorded."
+        f"The prediction is on the scale of {plain(ctx.outcome)} as recorded."
     )
     values: dict[str, Any] = {}
     per_row = 4
@@ -549,7 +546,7 @@ def predict_view(ctx: Context) -> None:
                         st.session_state.pop(key, None)
                     default = options.index(item["default"]) if item["default"] in options else 0
                     values[column] = st.selectbox(
-                        state.plain(column),
+                        plain(column),
                         options,
                         index=default,
                         key=key,
@@ -557,12 +554,12 @@ def predict_view(ctx: Context) -> None:
                     )
                 else:
                     values[column] = st.number_input(
-                        state.plain(column),
+                        plain(column),
                         value=float(item["default"]),
                         step=float(item["step"]),
                         format=_number_format(float(item["default"])),
                         key=key,
-                        help=f"Observed from {state.compact(item['low'])} to {state.compact(item['high'])}.",
+                        help=f"Observed from {compact(item['low'])} to {compact(item['high'])}.",
                     )
     st.button("Back to the reference point", key="predict_reset", on_click=_reset_inputs, args=([i["column"] for i in inputs],))
     with st.spinner("Predicting…"):
@@ -572,17 +569,15 @@ def predict_view(ctx: Context) -> None:
         st.info("No prediction could be made for these values.")
         return
     outside = state.outside_words(prediction, inputs)
-    headline = tables.sig(prediction.get("smearing"), 4)
-    st.markdown(f"#### Expected {state.plain(ctx.outcome)}: {state.plain(headline)}" + (" ⚠" if outside else ""))
+    headline = sig(prediction.get("smearing"), 4)
+    st.markdown(f"#### Expected {plain(ctx.outcome)}: {plain(headline)}" + (" ⚠" if outside else ""))
     st.table(
         tables.styled(tables.prediction_table(prediction, ctx.outcome, ctx.ppml), numbers_in=[f"Predicted {ctx.outcome}"]),
         hide_index=True,
     )
     if outside:
         st.warning(
-            state.plain(
-                "Beyond the data: " + "; ".join(outside) + ". The prediction extrapolates the fitted curve and may be far off."
-            )
+            plain("Beyond the data: " + "; ".join(outside) + ". The prediction extrapolates the fitted curve and may be far off.")
         )
     transform = ctx.result["outcome"]["transform"]
     if ctx.ppml:
@@ -591,10 +586,10 @@ def predict_view(ctx: Context) -> None:
             "expected value; PPML says nothing about the spread of a single new observation."
         )
     elif transform == "level":
-        st.caption(f"{state.plain(ctx.outcome)} is modelled in levels, so the three retransforms coincide.")
+        st.caption(f"{plain(ctx.outcome)} is modelled in levels, so the three retransforms coincide.")
     else:
         st.caption(
-            f"The model predicts {state.plain(ctx.outcome_label)}; turning that back into {state.plain(ctx.outcome)} needs a "
+            f"The model predicts {plain(ctx.outcome_label)}; turning that back into {plain(ctx.outcome)} needs a "
             "retransform. The naive one "
             "undoes the transform of the prediction alone; smearing (Duan 1983) averages over the model's residuals; "
             "normal theory assumes the residuals are normal. The prediction interval is for one new row and is wider "

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -14,23 +13,19 @@ from scipy import stats
 from core.errors import DataError, FormwiseError
 from core.inference.curves import effect_curve
 from core.inference.diagnostics import diagnostics
-from core.inference.effects import Model, compute_effects, gap_curve
+from core.inference.effects import compute_effects, gap_curve
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
-from core.model.covariance import covariance, sandwich
-from core.model.design import ColumnCache, Design, build_design, rescaled_design
-from core.model.ols import NEAR_COLLINEAR, OLSFit, fit_ols
-from core.model.ppml import fit_ppml
-from core.model.spec import Change, ModelSpec, parse_spec
+from core.inference.units import needs_units_check, units_check
+from core.model.design import ColumnCache
+from core.model.fitted import fit_model
+from core.model.ols import NEAR_COLLINEAR
+from core.model.spec import parse_spec
 from core.model.transforms import Log
 from core.output.readings import reading
 
 ALL_PARTS = frozenset(
     {"terms", "fit", "effects", "gap_curves", "curves", "units_check", "diagnostics", "boxcox", "retransform", "predictions"}
 )
-# Rescalings of an IHS or shifted-log regressor for the units check (Aihounton & Henningsen 2021).
-UNIT_FACTORS = (0.001, 0.01, 0.1, 10.0, 100.0, 1000.0)
-# Relative movement of an effect across rescalings above which the user is warned.
-UNITS_TOLERANCE = 0.10
 # Fewer rows than this, or than 10 per coefficient, and results are flagged (common practice, no source).
 SMALL_SAMPLE = 30
 
@@ -135,129 +130,20 @@ def analyze(
             result["curves"] = [effect_curve(model, block) for block in design.encoder.blocks]
     if "units_check" in wanted:
         checks = []
-        for block in design.encoder.blocks:
-            code = block.spec.transform.code
-            if code == "ihs" or code.startswith("shifted_log"):
-                check = units_check(data, model_spec, block.spec.column, (design, fit, model))
-                checks.append(check)
-                if check["moves"]:
-                    warnings.append(
-                        f"the effect of '{block.spec.column}' ({code}) changes by up to {100 * check['max_relative_move']:.0f} % "
-                        "when the variable is rescaled (say from units to thousands): with this transform the result "
-                        "depends on the units of measurement. Consider log (if there are no zeros) or report the units."
-                    )
+        for column in needs_units_check(model_spec):
+            check = units_check(data, model_spec, column, (design, fit, model))
+            checks.append(check)
+            if check["moves"]:
+                code = next(r.transform.code for r in model_spec.regressors if r.column == column)
+                warnings.append(
+                    f"the effect of '{column}' ({code}) changes by up to {100 * check['max_relative_move']:.0f} % "
+                    "when the variable is rescaled (say from units to thousands): with this transform the result "
+                    "depends on the units of measurement. Consider log (if there are no zeros) or report the units."
+                )
         result["units_check"] = checks
     result["warnings"] = list(dict.fromkeys(warnings))
     result["cautions"] = CAUTIONS
     return json_safe(result)
-
-
-def fit_model(data: pd.DataFrame, model_spec: ModelSpec, columns: ColumnCache | None = None) -> tuple[Design, OLSFit, Model]:
-    """Design, fit and covariance: everything the effect engine needs.
-
-    For PPML the returned fit carries the Poisson estimates in the least-squares record
-    (residuals y - μ̂, fitted values the index x'b, r2 the squared correlation of y and μ̂), and
-    the model is seen by the effect engine as a log-link mean with no residual spread.
-    """
-    return fit_design(build_design(data, model_spec, columns), model_spec)
-
-
-def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
-    """Fit and covariance on a built design (see ``fit_model``)."""
-    names = [t.name for t in design.terms]
-    with np.errstate(all="ignore"):
-        fit = fit_ols(design.X, design.y, design.weights, names)  # also screens for collinearity
-        if model_spec.estimator == "ppml":
-            return _fit_ppml(design, model_spec, fit)
-        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
-    model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
-    return design, fit, model
-
-
-def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[Design, OLSFit, Model]:
-    ppml = fit_ppml(design.X, design.y_raw, design.weights)
-    w = design.weights if design.weights is not None else 1.0
-    root_mu = np.sqrt(w * ppml.mu)
-    u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
-    cov, df = sandwich(ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, row_scale=root_mu)
-    r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
-    fit = replace(
-        screen,
-        coef=ppml.coef,
-        resid=design.y_raw - ppml.mu,
-        fitted=design.X @ ppml.coef,
-        xtx_inv=ppml.bread,
-        r2=r2,
-        adj_r2=float("nan"),
-        sigma=float("nan"),
-        loglik=ppml.loglik,
-        ssr=float("nan"),
-    )
-    model = Model(design=design, coef=ppml.coef, cov=cov, df=df, outcome=Log(), resid=np.zeros(1))
-    return design, fit, model
-
-
-def _rescaled_change(change: Change | None, factor: float) -> Change | None:
-    if change is None or change.kind == "percent":
-        return change
-    if change.kind == "units":
-        return Change(text=f"{change.amount * factor:+g}", kind="units", amount=change.amount * factor)
-    start, end = float(change.start) * factor, float(change.end) * factor
-    return Change(text=f"{start:g}->{end:g}", kind="switch", start=start, end=end)
-
-
-def units_check(
-    data: pd.DataFrame, model_spec: ModelSpec, column: str, fitted: tuple[Design, OLSFit, Model] | None = None
-) -> dict[str, Any]:
-    """Refit with ``column`` measured in other units and report how its effect moves.
-
-    A log regressor's slope does not depend on the units (rescaling only shifts the intercept);
-    IHS and shifted-log slopes do (Aihounton & Henningsen 2021, Econometrics Journal 24(2);
-    Chen & Roth 2024, QJE 139(2)). The change is rescaled with the variable, so the same real
-    change is asked each time; the reference point scales with it.
-
-    ``fitted`` is the model already fitted on ``data`` (``fit_model``), if at hand. Each
-    rescaled refit reuses its design and redoes only the rescaled regressor's columns
-    (``core.model.design.rescaled_design``) unless rescaling changes which rows are used.
-    """
-    design, _, base_model = fitted if fitted is not None else fit_model(data, model_spec)
-    base_effects, _ = compute_effects(base_model, only=column, with_average=False)
-    base = next(e for e in base_effects if e["column"] == column)
-    rows: list[dict[str, Any]] = [{"factor": 1.0, "exact": base["exact"], "elasticity": base.get("elasticity")}]
-    work = design.X.copy(order="K")  # overwritten with each rescaling's columns
-    for factor in UNIT_FACTORS:
-        regressors = tuple(
-            replace(r, change=_rescaled_change(r.change, factor)) if r.column == column else r for r in model_spec.regressors
-        )
-        at = dict(model_spec.at)
-        if column in at:
-            at[column] = float(at[column]) * factor
-        rescaled_spec = replace(model_spec, regressors=regressors, at=at)
-        try:
-            rescaled = rescaled_design(data, design, rescaled_spec, column, factor, work)
-            if rescaled is not None:
-                _, _, model = fit_design(rescaled, rescaled_spec)
-            else:
-                scaled = data[model_spec.columns].copy()
-                scaled[column] = pd.to_numeric(scaled[column], errors="coerce") * factor
-                _, _, model = fit_model(scaled, rescaled_spec)
-            with np.errstate(all="ignore"):
-                effects, _ = compute_effects(model, only=column, with_average=False)
-            found = next(e for e in effects if e["column"] == column)
-            rows.append({"factor": factor, "exact": found["exact"], "elasticity": found.get("elasticity")})
-        except FormwiseError:
-            rows.append({"factor": factor, "exact": None, "elasticity": None})
-    reference = base["exact"]
-    moves = [abs(r["exact"] - reference) / abs(reference) for r in rows if r["exact"] is not None and reference not in (None, 0)]
-    largest = max(moves) if moves else None
-    return {
-        "column": column,
-        "change": base["change"],
-        "units": base["units"],
-        "rows": sorted(rows, key=lambda r: r["factor"]),
-        "max_relative_move": largest,
-        "moves": bool(largest is not None and largest > UNITS_TOLERANCE),
-    }
 
 
 def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:

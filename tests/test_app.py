@@ -17,6 +17,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables
+from core.output.numbers import interval, p_value, sig
 from tests.app_support import edit_grid, show, start
 from tests.helpers import shown, shown_table
 
@@ -55,7 +56,7 @@ def test_opens_on_the_demo_with_coefficients_effects_and_chart() -> None:
     expected = core.analyze(at.session_state["data"]["frame"], DEMO_SPEC)
     slope = next(t for t in expected["terms"] if t["name"] == "log(drink_price)")
     shown = table.loc[table["Term"] == "log of drink_price", "Estimate"].item()
-    assert shown == tables.sig(slope["estimate"])
+    assert shown == sig(slope["estimate"])
     assert "1,500 rows used, 0 dropped" in texts(at)
     show(at, "Effects of changes")
     effects = table_with(at, "First-order approximation")
@@ -313,14 +314,14 @@ def test_plain_words_for_the_model() -> None:
 
 # --- app/tables.py and app/charts.py ---------------------------------------------------------------------
 def test_numbers_read_well() -> None:
-    assert tables.sig(-0.7547843722) == "\u22120.7548"
-    assert tables.sig(6.2196294720) == "6.220"
-    assert tables.sig(10360.97) == "10,361"
-    assert tables.sig(0.0000123) == "1.230e-05"
-    assert tables.sig(2.5, signed=True) == "+2.500"
-    assert tables.sig(None) == tables.DASH
-    assert tables.p_value(8e-48) == "< 0.001" and tables.p_value(0.0214) == "0.021"
-    assert tables.interval(-0.853, -0.656) == "\u22120.853 to \u22120.656"
+    assert sig(-0.7547843722) == "\u22120.7548"
+    assert sig(6.2196294720) == "6.220"
+    assert sig(10360.97) == "10,361"
+    assert sig(0.0000123) == "1.230e-05"
+    assert sig(2.5, signed=True) == "+2.500"
+    assert sig(None) == tables.DASH
+    assert p_value(8e-48) == "< 0.001" and p_value(0.0214) == "0.021"
+    assert interval(-0.853, -0.656) == "\u22120.853 to \u22120.656"
 
 
 def synthetic_curve() -> dict:

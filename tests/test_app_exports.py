@@ -20,8 +20,10 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, exports, tables
+from app import charts, exports
 from core.output import tables as core_tables
+from core.output.escape import csv_cell
+from core.output.numbers import sig
 from core.output.report import CAUTION_REVIEW
 from tests.app_support import cli_analyze, edit_grid, show, start
 from tests.helpers import shown, shown_table
@@ -236,7 +238,7 @@ def test_table_files_neutralise_formula_cells_and_keep_numbers() -> None:
     built.append(core_tables.comparison_table({"=cmd|' /C calc'!A0": result}))
     for table in built:
         rows = list(csv.reader(io.StringIO(exports.table_file(table, "csv"))))
-        assert rows[0] == [core_tables.neutralise(h) for h in table.header]
+        assert rows[0] == [csv_cell(h) for h in table.header]
         for written, original in zip(rows[1:], table.rows, strict=True):
             for cell, value in zip(written, original, strict=True):
                 if isinstance(value, float):
@@ -292,7 +294,7 @@ def test_spec_file_through_the_command_line_gives_the_app_numbers(tmp_path: Path
     # And the numbers on screen are those numbers, rounded for reading.
     table = coefficients(at)
     slope = next(t for t in cli["terms"] if t["name"] == "drink_price")
-    assert table.loc[table["Term"] == "drink_price", "Estimate"].item() == tables.sig(slope["estimate"])
+    assert table.loc[table["Term"] == "drink_price", "Estimate"].item() == sig(slope["estimate"])
 
 
 def test_spec_file_carries_the_saved_models_and_the_current_name() -> None:

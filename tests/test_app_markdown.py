@@ -17,7 +17,8 @@ import pandas as pd
 import pytest
 from streamlit.testing.v1 import AppTest
 
-from app import state, tables
+from app import tables
+from core.output.escape import plain
 from tests.helpers import shown
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -63,7 +64,7 @@ def hostile_frame(n: int = 60) -> pd.DataFrame:
     ],
 )
 def test_plain_escapes_markdown(text: object, expected: str) -> None:
-    assert state.plain(text) == expected
+    assert plain(text) == expected
 
 
 @pytest.mark.parametrize(
@@ -81,7 +82,7 @@ def test_plain_escapes_markdown(text: object, expected: str) -> None:
     ],
 )
 def test_plain_reads_back_as_the_same_text(text: str) -> None:
-    escaped = state.plain(text)
+    escaped = plain(text)
     # What the reader sees is the text itself; no raw link, image or directive syntax is left.
     assert shown(escaped) == text
     assert not re.search(r"(?<!\\)[\[\]()!:$]", escaped.replace("\\\\", ""))
@@ -92,8 +93,8 @@ def test_tables_escape_cells_and_headers_for_st_table() -> None:
     table = pd.DataFrame({"Term": [HOSTILE_COLUMNS[0]], HOSTILE_COLUMNS[3]: ["1.5"]})
     styled = tables.styled(table, numbers_in=[HOSTILE_COLUMNS[3]])
     data = styled.data
-    assert list(data.columns) == [state.plain("Term"), state.plain(HOSTILE_COLUMNS[3])]
-    assert data.iloc[0, 0] == state.plain(HOSTILE_COLUMNS[0])
+    assert list(data.columns) == [plain("Term"), plain(HOSTILE_COLUMNS[3])]
+    assert data.iloc[0, 0] == plain(HOSTILE_COLUMNS[0])
     # The number column is still right-aligned under its escaped name.
     assert "text-align: right" in styled.to_html()
 

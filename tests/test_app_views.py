@@ -19,6 +19,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, state, tables, views
+from core.output.numbers import p_text, sig
 from tests.app_support import edit_grid, start
 from tests.helpers import shown, shown_table
 
@@ -196,8 +197,7 @@ def test_residual_checks_view_reads_the_tests_in_plain_words() -> None:
     result = core.analyze(at.session_state["data"]["frame"], DEMO_SPEC, parts={"diagnostics"})
     bp = result["diagnostics"]["breusch_pagan"]["p_value"]
     assert (
-        f"No sign that the spread of residuals changes with the regressors (Breusch–Pagan, Koenker form: {state.p_text(bp)})"
-        in words
+        f"No sign that the spread of residuals changes with the regressors (Breusch–Pagan, Koenker form: {p_text(bp)})" in words
     )
     assert "RESET" in words and "Jarque–Bera" in words and "White" in words
     assert "A log of weekly_revenue (λ = 0) is consistent with the data" in words
@@ -322,8 +322,8 @@ def test_compare_ranks_the_log_model_above_the_level_model_by_aic() -> None:
     assert table.at["log outcome", "Outcome as fitted"] == "log of weekly_revenue"
     frame = at.session_state["data"]["frame"]
     log_fit = core.analyze(frame, DEMO_SPEC, parts={"fit"})["fit"]
-    assert table.at["log outcome", "AIC (original scale)"] == tables.sig(log_fit["aic_original_scale"], 6)
-    assert table.at["log outcome", tables.RAW_R2] == tables.sig(log_fit["r2"], 3)
+    assert table.at["log outcome", "AIC (original scale)"] == sig(log_fit["aic_original_scale"], 6)
+    assert table.at["log outcome", tables.RAW_R2] == sig(log_fit["r2"], 3)
     assert "not comparable across different outcome transforms" in texts(at)
     effects = table_with(at, "level outcome")
     assert effects.iloc[0].tolist() == [
@@ -382,9 +382,9 @@ def test_predict_shows_three_retransforms_and_both_intervals() -> None:
     }
     expected = core.analyze(frame, {**DEMO_SPEC, "predict": [values]}, parts={"predictions"})["predictions"][0]
     predicted = table.set_index("Retransform")["Predicted weekly_revenue"]
-    assert predicted["Smearing (Duan)"] == tables.sig(expected["smearing"], 4)
-    assert predicted["Normal theory"] == tables.sig(expected["normal"], 4)
-    assert predicted["Naive back-transform"] == tables.sig(expected["naive"], 4)
+    assert predicted["Smearing (Duan)"] == sig(expected["smearing"], 4)
+    assert predicted["Normal theory"] == sig(expected["normal"], 4)
+    assert predicted["Naive back-transform"] == sig(expected["naive"], 4)
     assert expected["naive"] < expected["normal"] < expected["smearing"] * 1.01
     intervals = table.set_index("Retransform")["95 % interval"]
     assert intervals["Smearing (Duan)"].endswith("(for the expected value)")

@@ -16,8 +16,8 @@ from statsmodels.stats.outliers_influence import OLSInfluence, variance_inflatio
 from statsmodels.stats.stattools import jarque_bera
 
 import core
-from core.analysis import fit_model
 from core.inference.retransform import boxcox_profile
+from core.model.fitted import fit_model
 from core.model.spec import parse_spec
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_data"

@@ -10,7 +10,7 @@ import statsmodels.api as sm
 from statsmodels.stats import diagnostic as smd
 
 import core
-from core.analysis import fit_model
+from core.model.fitted import fit_model
 from core.model.ols import CHUNK_ROWS
 from core.model.spec import parse_spec
 from tests.helpers import rel_err, term

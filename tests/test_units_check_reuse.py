@@ -7,7 +7,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import core.analysis as analysis
+import core.inference.units as analysis
+from core.model.fitted import fit_model
 from core.model.spec import parse_spec
 
 
@@ -51,7 +52,7 @@ def test_reused_design_gives_the_rows_of_a_fresh_refit(data, name, monkeypatch):
     spec = {"outcome": {"column": "y", "transform": "log"}, "regressors": regressors, "covariance": "HC1", **extra}
     model_spec = parse_spec(spec, data)
     column = regressors[0]["column"]
-    reused = analysis.units_check(data, model_spec, column, analysis.fit_model(data, model_spec))
+    reused = analysis.units_check(data, model_spec, column, fit_model(data, model_spec))
     monkeypatch.setattr(analysis, "rescaled_design", lambda *args, **kwargs: None)
     fresh = analysis.units_check(data, model_spec, column)
     assert reused == fresh

@@ -21,8 +21,8 @@ from typing import Any
 
 import numpy as np
 
-from core.inference.effects import Model
 from core.model.design import Block
+from core.model.fitted import Model
 
 GRID_POINTS = 121
 EXTEND = 0.15

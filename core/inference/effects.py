@@ -37,67 +37,17 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy import stats
 
-from core.model.design import Block, Design, match_level
+from core.model.design import Block, match_level
+from core.model.fitted import Model
 from core.model.spec import Change
-from core.model.transforms import Transform
 
-# Cap on the (rows x residuals) grid evaluated at once when smearing, to bound memory.
-_SMEAR_CHUNK = 4_000_000
 # The sample-average effect is taken over a seeded random sample of rows when the data are
 # larger than this (its sampling error is then far below the effect's own standard error) ...
 _AVERAGE_ROWS = 20_000
 # ... and, when smearing is needed, over fewer rows and residual quantiles, to bound the work.
 _AVERAGE_ROWS_SMEARING = 2_000
 _AVERAGE_RESIDUALS = 1_000
-
-
-@dataclass
-class Model:
-    """A fitted model as the effect engine sees it."""
-
-    design: Design
-    coef: np.ndarray
-    cov: np.ndarray
-    df: int
-    outcome: Transform
-    resid: np.ndarray
-    confidence: float = 0.95
-
-    @property
-    def kind(self) -> str:
-        """'level', 'log' (closed forms) or 'smearing' (any other outcome transform)."""
-        if self.outcome.code == "level":
-            return "level"
-        if self.outcome.is_log_like:
-            return "log"
-        return "smearing"
-
-    @property
-    def units(self) -> str:
-        return "outcome" if self.kind == "level" else "percent"
-
-    @property
-    def t_crit(self) -> float:
-        return float(stats.t.ppf(0.5 + self.confidence / 2, self.df))
-
-    def encode(self, point: dict[str, Any], m: int) -> np.ndarray:
-        return self.design.encoder.encode(point, m)
-
-    # --- smearing estimate of E[y | x] and its derivative in the index -------------------
-    def smear(self, eta: np.ndarray, resid: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """S(η) = mean g⁻¹(η + ê) and S'(η) = mean (g⁻¹)'(η + ê), for each η (Duan 1983)."""
-        resid = self.resid if resid is None else resid
-        eta = np.asarray(eta, dtype=float)
-        level = np.empty_like(eta)
-        slope = np.empty_like(eta)
-        step = max(1, _SMEAR_CHUNK // max(len(resid), 1))
-        for start in range(0, len(eta), step):
-            block = eta[start : start + step, None] + resid[None, :]
-            level[start : start + step] = self.outcome.inverse(block).mean(axis=1)
-            slope[start : start + step] = self.outcome.inverse_derivative(block).mean(axis=1)
-        return level, slope
 
 
 @dataclass

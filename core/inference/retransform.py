@@ -26,7 +26,7 @@ import numpy as np
 import scipy.linalg as sla
 from scipy import optimize, stats
 
-from core.inference.effects import Model
+from core.model.fitted import Model
 from core.model.transforms import Transform
 
 _HERMITE_X, _HERMITE_W = np.polynomial.hermite.hermgauss(40)

@@ -23,6 +23,8 @@ or of weighted rows is held. The rows x̃ᵢ = rᵢ·xᵢ are passed as X and th
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
@@ -38,6 +40,114 @@ def leverage(X: np.ndarray, bread: np.ndarray, weights: np.ndarray | None = None
         chunk = X[start : start + CHUNK_ROWS]
         h[start : start + CHUNK_ROWS] = np.einsum("ij,ij->i", chunk @ bread, chunk)
     return h * weights if weights is not None else h
+
+
+@dataclass(frozen=True)
+class CovarianceKind:
+    """One covariance type: its spec name, its words, and its meat (see the module docstring).
+
+    ``words`` is the menu entry, ``short`` the name in headers and tables; ``needs_groups``
+    says the spec must name a cluster column. Subclasses override ``estimate``.
+    """
+
+    name: str
+    words: str
+    short: str
+    needs_groups: bool = False
+
+    def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
+        """V and the degrees of freedom for t intervals."""
+        raise NotImplementedError
+
+
+@dataclass(frozen=True)
+class Rows:
+    """What every meat reads: the bread B, rows x̃ᵢ = rᵢ·Xᵢ (``row_scale`` r, 1 when None),
+    residuals u, the groups and s² for the classical type."""
+
+    bread: np.ndarray
+    X: np.ndarray
+    u: np.ndarray
+    groups: np.ndarray | None
+    scale: float
+    row_scale: np.ndarray | None
+
+    @property
+    def factor(self) -> np.ndarray:
+        """Score factor per row: x̃ᵢ·uᵢ = xᵢ·(rᵢ·uᵢ)."""
+        return self.u if self.row_scale is None else self.row_scale * self.u
+
+
+class Classical(CovarianceKind):
+    def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
+        n, k = rows.X.shape
+        return rows.scale * rows.bread, n - k
+
+
+@dataclass(frozen=True)
+class HeteroskedasticityRobust(CovarianceKind):
+    """HC0-HC3: M = Σ (uᵢ/(1-hᵢ)^{power/2})² x̃ᵢx̃ᵢ', times n/(n-k) for HC1."""
+
+    power: float = 0.0
+    small_sample: bool = False
+
+    def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
+        n, k = rows.X.shape
+        factor = rows.factor
+        if self.power:
+            weights = None if rows.row_scale is None else rows.row_scale * rows.row_scale
+            h = leverage(rows.X, rows.bread, weights)
+            if np.any(h >= 1 - 1e-10):
+                bad = np.flatnonzero(h >= 1 - 1e-10)[:5]
+                raise DataError(
+                    f"{self.name} cannot be computed: row(s) {', '.join(str(r + 1) for r in bad)} fully determine their own fit "
+                    "(leverage 1). Use HC1 or classical standard errors, or drop those rows."
+                )
+            factor = factor / (1.0 - h) ** (self.power / 2.0)
+        meat = np.zeros((k, k))
+        for start in row_chunks(n):
+            scores = rows.X[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
+            meat += scores.T @ scores
+        correction = n / (n - k) if self.small_sample else 1.0
+        return correction * (rows.bread @ meat @ rows.bread), n - k
+
+
+class Clustered(CovarianceKind):
+    """M = Σ_g (X̃_g'u_g)(X̃_g'u_g)' · G/(G-1) · (n-1)/(n-k); G-1 degrees of freedom."""
+
+    def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
+        n, k = rows.X.shape
+        if rows.groups is None:
+            raise DataError("cluster-robust standard errors need a cluster column; name one in 'cluster'.")
+        codes, uniques = _group_codes(rows.groups)
+        n_groups = len(uniques)
+        if n_groups < 2:
+            raise DataError(
+                "the cluster column has a single group; cluster-robust errors need at least two groups (many more are better)."
+            )
+        factor = rows.factor
+        summed = np.zeros((n_groups, k))
+        for start in row_chunks(n):
+            scores = rows.X[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
+            part = codes[start : start + CHUNK_ROWS]
+            for j in range(k):
+                summed[:, j] += np.bincount(part, weights=scores[:, j], minlength=n_groups)
+        small_sample = n_groups / (n_groups - 1) * (n - 1) / (n - k)
+        return small_sample * (rows.bread @ (summed.T @ summed) @ rows.bread), n_groups - 1
+
+
+# The registry, in menu order: spec validation, the app's menu and the tables read it.
+KINDS: dict[str, CovarianceKind] = {
+    kind.name: kind
+    for kind in (
+        Classical("classical", "Classical (same noise in every row)", "classical"),
+        HeteroskedasticityRobust("HC0", "Robust, HC0", "robust (HC0)"),
+        HeteroskedasticityRobust("HC1", "Robust, HC1 (usual choice)", "robust (HC1)", small_sample=True),
+        HeteroskedasticityRobust("HC2", "Robust, HC2", "robust (HC2)", power=1.0),
+        HeteroskedasticityRobust("HC3", "Robust, HC3 (cautious in small samples)", "robust (HC3)", power=2.0),
+        Clustered("cluster", "Clustered by a grouping column", "clustered", needs_groups=True),
+    )
+}
 
 
 def covariance(fit: OLSFit, X: np.ndarray, kind: str, groups: np.ndarray | None = None) -> tuple[np.ndarray, int]:
@@ -58,46 +168,10 @@ def sandwich(
 ) -> tuple[np.ndarray, int]:
     """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
     ``scale`` is s² for the classical type."""
-    n, k = Xw.shape
-    if kind == "classical":
-        return scale * bread, n - k
-    if kind not in ("HC0", "HC1", "HC2", "HC3", "cluster"):
-        raise DataError(f"unknown covariance '{kind}'; use classical, HC0, HC1, HC2, HC3 or cluster.")
-    # Score factor per row: x̃ᵢ·uᵢ = xᵢ·(rᵢ·uᵢ).
-    factor = u if row_scale is None else row_scale * u
-    if kind in ("HC2", "HC3"):
-        h = leverage(Xw, bread, None if row_scale is None else row_scale * row_scale)
-        if np.any(h >= 1 - 1e-10):
-            rows = np.flatnonzero(h >= 1 - 1e-10)[:5]
-            raise DataError(
-                f"{kind} cannot be computed: row(s) {', '.join(str(r + 1) for r in rows)} fully determine their own fit "
-                "(leverage 1). Use HC1 or classical standard errors, or drop those rows."
-            )
-        power = 1.0 if kind == "HC2" else 2.0
-        factor = factor / (1.0 - h) ** (power / 2.0)
-    if kind == "cluster":
-        if groups is None:
-            raise DataError("cluster-robust standard errors need a cluster column; name one in 'cluster'.")
-        codes, uniques = _group_codes(groups)
-        n_groups = len(uniques)
-        if n_groups < 2:
-            raise DataError(
-                "the cluster column has a single group; cluster-robust errors need at least two groups (many more are better)."
-            )
-        summed = np.zeros((n_groups, k))
-        for start in row_chunks(n):
-            scores = Xw[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
-            part = codes[start : start + CHUNK_ROWS]
-            for j in range(k):
-                summed[:, j] += np.bincount(part, weights=scores[:, j], minlength=n_groups)
-        small_sample = n_groups / (n_groups - 1) * (n - 1) / (n - k)
-        return small_sample * (bread @ (summed.T @ summed) @ bread), n_groups - 1
-    meat = np.zeros((k, k))
-    for start in row_chunks(n):
-        scores = Xw[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
-        meat += scores.T @ scores
-    small_sample = n / (n - k) if kind == "HC1" else 1.0
-    return small_sample * (bread @ meat @ bread), n - k
+    found = KINDS.get(kind)
+    if found is None:
+        raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(KINDS)}.")
+    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale))
 
 
 def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

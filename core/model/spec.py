@@ -14,13 +14,13 @@ from typing import Any
 import pandas as pd
 
 from core.errors import SpecError
+from core.model.covariance import KINDS as COVARIANCE_KINDS
 from core.model.transforms import Category, Transform, parse_transform
 
 TOP_KEYS = {"outcome", "regressors", "estimator", "covariance", "cluster", "weights", "at", "name", "predict"}
 OUTCOME_KEYS = {"column", "transform"}
 REGRESSOR_KEYS = {"column", "transform", "change", "reference"}
 ESTIMATORS = ("ols", "ppml")
-COVARIANCES = ("classical", "HC0", "HC1", "HC2", "HC3", "cluster")
 
 _PERCENT = re.compile(r"^([+-])\s*(\d+(?:\.\d*)?|\.\d+)\s*%$")
 _UNITS = re.compile(r"^([+-])\s*(\d+(?:\.\d*)?(?:e[+-]?\d+)?|\.\d+)$", re.IGNORECASE)
@@ -192,13 +192,13 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         )
 
     covariance = spec.get("covariance") or "HC1"
-    by_lower = {c.lower(): c for c in COVARIANCES}
+    by_lower = {c.lower(): c for c in COVARIANCE_KINDS}
     if not isinstance(covariance, str) or covariance.lower() not in by_lower:
-        raise SpecError(f"spec.covariance: unknown covariance '{covariance}'; use one of: {', '.join(COVARIANCES)}.")
+        raise SpecError(f"spec.covariance: unknown covariance '{covariance}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
     covariance = by_lower[covariance.lower()]
 
     cluster = spec.get("cluster")
-    if covariance == "cluster":
+    if COVARIANCE_KINDS[covariance].needs_groups:
         if not cluster:
             raise SpecError("spec.cluster: covariance 'cluster' needs 'cluster' naming the column that defines the groups.")
         cluster = _require_column(cluster, data, "spec.cluster")

@@ -26,21 +26,37 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import ClassVar
 
 import numpy as np
 
 from core.errors import SpecError
 
-OUTCOME_TRANSFORMS = ("level", "log", "ihs", "shifted_log:C", "sqrt", "boxcox:L")
-REGRESSOR_TRANSFORMS = ("level", "log", "ihs", "shifted_log:C", "sqrt", "quadratic", "category")
-
 
 @dataclass(frozen=True)
 class Transform:
-    """An elementwise transform g with its inverse and derivatives (identity here)."""
+    """An elementwise transform g with its inverse and derivatives (identity here).
+
+    Besides the maths, a transform declares what the rest of Formwise reads from it, so a new
+    one is added here and nowhere else: the roles it can take (``roles``); whether a
+    regressor's effect of the same real change is the same whatever the units it is recorded
+    in (``unit_invariant``; IHS and shifted logs are not, Aihounton & Henningsen 2021); whether
+    its default change is relative, +10 %, rather than one unit (``relative_change``); the code
+    and words offered in the app's menus (``menu_code``, ``menu_word``); and its label and phrase.
+    """
 
     name: str = "level"
+
+    roles: ClassVar[frozenset[str]] = frozenset({"outcome", "regressor"})
+    unit_invariant: ClassVar[bool] = True
+    relative_change: ClassVar[bool] = False
+    # The spec code offered in menus (None: not offered), and its words there.
+    menu_code: ClassVar[str | None] = "level"
+    menu_word: ClassVar[str] = "level (as is)"
+    # Whether a regressor's coefficient reads per 1 % higher x (the log-like readings).
+    reads_per_percent: ClassVar[bool] = False
 
     # --- words -------------------------------------------------------------------------
     @property
@@ -49,8 +65,16 @@ class Transform:
         return self.name
 
     def label(self, column: str) -> str:
-        """Plain words for the transformed variable, e.g. 'log of price'."""
+        """Plain words for the transformed variable, e.g. 'log of price'; the bare name in levels."""
         return column
+
+    def phrase(self, column: str) -> str:
+        """The variable taken this way, e.g. 'price as a log' (for 'compare with ...')."""
+        return f"{column} in levels" if self.name == "level" else f"{column} as {self.label(column)}"
+
+    def reading_caveat(self, column: str) -> str:
+        """Where a regressor's per-1 % reading holds, appended to it ('' when it always does)."""
+        return ""
 
     # --- the map -------------------------------------------------------------------------
     def forward(self, x: np.ndarray) -> np.ndarray:
@@ -101,9 +125,16 @@ class Transform:
 @dataclass(frozen=True)
 class Log(Transform):
     name: str = "log"
+    relative_change: ClassVar[bool] = True
+    menu_code: ClassVar[str | None] = "log"
+    menu_word: ClassVar[str] = "log"
+    reads_per_percent: ClassVar[bool] = True
 
     def label(self, column: str) -> str:
         return f"log of {column}"
+
+    def phrase(self, column: str) -> str:
+        return f"{column} as a log"
 
     def forward(self, x):
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -129,9 +160,21 @@ class Log(Transform):
 @dataclass(frozen=True)
 class IHS(Transform):
     name: str = "ihs"
+    unit_invariant: ClassVar[bool] = False
+    relative_change: ClassVar[bool] = True
+    menu_code: ClassVar[str | None] = "ihs"
+    menu_word: ClassVar[str] = "IHS (asinh)"
+    reads_per_percent: ClassVar[bool] = True
 
     def label(self, column: str) -> str:
-        return f"inverse hyperbolic sine of {column}"
+        return f"IHS of {column}"
+
+    def reading_caveat(self, column: str) -> str:
+        # Bellemare & Wichman 2020: asinh x ≈ ln 2x only for x well above 1.
+        return f" for values of {column} well above 1 (IHS behaves like a log there); near zero the effect depends on {column}'s units"
+
+    def phrase(self, column: str) -> str:
+        return f"{column} as IHS"
 
     def forward(self, x):
         return np.arcsinh(np.asarray(x, dtype=float))
@@ -151,13 +194,21 @@ class IHS(Transform):
 class ShiftedLog(Transform):
     name: str = "shifted_log"
     shift: float = 1.0
+    unit_invariant: ClassVar[bool] = False
+    relative_change: ClassVar[bool] = True
+    menu_code: ClassVar[str | None] = "shifted_log:1"
+    menu_word: ClassVar[str] = "log(x + 1)"
+    reads_per_percent: ClassVar[bool] = True
+
+    def reading_caveat(self, column: str) -> str:
+        return " where the shift is small next to " + column + "; otherwise see the effects table"
 
     @property
     def code(self) -> str:
         return f"shifted_log:{_fmt(self.shift)}"
 
     def label(self, column: str) -> str:
-        return f"log of ({column} + {_fmt(self.shift)})"
+        return f"log({column} + {_fmt(self.shift)})"
 
     def forward(self, x):
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -182,9 +233,15 @@ class ShiftedLog(Transform):
 @dataclass(frozen=True)
 class Sqrt(Transform):
     name: str = "sqrt"
+    relative_change: ClassVar[bool] = True
+    menu_code: ClassVar[str | None] = "sqrt"
+    menu_word: ClassVar[str] = "square root"
 
     def label(self, column: str) -> str:
         return f"square root of {column}"
+
+    def phrase(self, column: str) -> str:
+        return f"{column} as a square root"
 
     def forward(self, x):
         with np.errstate(invalid="ignore"):
@@ -210,13 +267,15 @@ class Sqrt(Transform):
 class BoxCox(Transform):
     name: str = "boxcox"
     power: float = 1.0
+    roles: ClassVar[frozenset[str]] = frozenset({"outcome"})
+    menu_code: ClassVar[str | None] = None  # its power comes from the Box-Cox profile, not a menu
 
     @property
     def code(self) -> str:
         return f"boxcox:{_fmt(self.power)}"
 
     def label(self, column: str) -> str:
-        return f"Box-Cox (lambda = {_fmt(self.power)}) of {column}"
+        return f"Box-Cox (λ = {_fmt(self.power)}) of {column}"
 
     def forward(self, x):
         x = np.asarray(x, dtype=float)
@@ -259,9 +318,15 @@ class BoxCox(Transform):
 @dataclass(frozen=True)
 class Quadratic(Transform):
     name: str = "quadratic"
+    roles: ClassVar[frozenset[str]] = frozenset({"regressor"})
+    menu_code: ClassVar[str | None] = "quadratic"
+    menu_word: ClassVar[str] = "quadratic (x and x²)"
 
     def label(self, column: str) -> str:
         return f"{column} and its square"
+
+    def phrase(self, column: str) -> str:
+        return f"{column} as a quadratic"
 
     @property
     def width(self) -> int:
@@ -284,20 +349,120 @@ class Category(Transform):
     """Dummies for every level but the reference. Levels are handled in ``core.model.design``."""
 
     name: str = "category"
+    roles: ClassVar[frozenset[str]] = frozenset({"regressor"})
+    menu_code: ClassVar[str | None] = "category"
+    menu_word: ClassVar[str] = "category (dummies)"
 
     def label(self, column: str) -> str:
         return f"{column} (categories)"
 
 
-_SIMPLE: dict[str, Transform] = {
-    "level": Transform(),
-    "log": Log(),
-    "ihs": IHS(),
-    "sqrt": Sqrt(),
-    "quadratic": Quadratic(),
-    "category": Category(),
-}
-_PARAM = re.compile(r"^(shifted_log|boxcox)\s*:\s*(.+)$")
+# The registry: spec name -> how to make the transform from the text after the colon (None for
+# a plain name). Menus, readings, the units check and spec validation all read it.
+Maker = Callable[[str | None, str, str], Transform]
+_REGISTRY: dict[str, tuple[type[Transform], Maker, str | None]] = {}
+
+
+def register(kind: type[Transform], make: Maker | None = None, parameter: str | None = None) -> type[Transform]:
+    """Add a transform class to the registry under its ``name``. ``make(parameter, text,
+    where)`` builds an instance from the text after the colon, and ``parameter`` names that
+    number in messages ('C' in 'shifted_log:C'); without them the class takes no parameter."""
+    _REGISTRY[kind.name] = (kind, make or _plain_maker(kind), parameter)
+    return kind
+
+
+def unregister(name: str) -> None:
+    """Remove a transform (tests register temporary ones)."""
+    _REGISTRY.pop(name, None)
+
+
+def _plain_maker(kind: type[Transform]) -> Maker:
+    instance = kind()
+
+    def make(parameter: str | None, text: str, where: str) -> Transform:
+        if parameter is not None:
+            raise SpecError(f"{where}: '{text}' takes no number after a colon; write '{instance.name}'.")
+        return instance
+
+    return make
+
+
+def _number(parameter: str | None, text: str, where: str, example: str) -> float:
+    if parameter is None:
+        raise SpecError(f"{where}: '{text}' needs a number after a colon, e.g. '{example}'.")
+    try:
+        value = float(parameter)
+    except ValueError:
+        raise SpecError(f"{where}: '{text}' needs a number after the colon, e.g. '{example}'.") from None
+    if not math.isfinite(value):
+        raise SpecError(f"{where}: '{text}' needs a finite number after the colon.")
+    return value
+
+
+def _make_shifted_log(parameter: str | None, text: str, where: str) -> Transform:
+    value = _number(parameter, text, where, "shifted_log:1")
+    if value <= 0:
+        raise SpecError(f"{where}: the shift in '{text}' must be above zero, e.g. 'shifted_log:1'.")
+    return ShiftedLog(shift=value)
+
+
+def _make_boxcox(parameter: str | None, text: str, where: str) -> Transform:
+    value = _number(parameter, text, where, "boxcox:0.5")
+    if abs(value) > 5:
+        raise SpecError(f"{where}: a Box-Cox power of {_fmt(value)} is outside -5..5; pick a power in that range.")
+    return BoxCox(power=value)
+
+
+# In menu order.
+register(Transform)
+register(Log)
+register(IHS)
+register(ShiftedLog, _make_shifted_log, "C")
+register(Sqrt)
+register(Quadratic)
+register(Category)
+register(BoxCox, _make_boxcox, "L")
+
+
+def spec_forms(role: str) -> list[str]:
+    """The spec forms a role accepts, for messages: 'log', 'shifted_log:C', 'boxcox:L', ..."""
+    return [
+        name if parameter is None else f"{name}:{parameter}"
+        for name, (kind, _, parameter) in _REGISTRY.items()
+        if role in kind.roles
+    ]
+
+
+def menu_codes(role: str) -> list[str]:
+    """The transform codes the app offers for a role, in registry order."""
+    return [kind.menu_code for kind, _, _ in _REGISTRY.values() if role in kind.roles and kind.menu_code]
+
+
+def menu_word(code: str) -> str:
+    """The words for a transform code in the app's menus ('IHS (asinh)'); the code itself if unknown."""
+    name = code.split(":", 1)[0].strip().lower()
+    found = _REGISTRY.get(name)
+    if found and found[0].menu_code == code:
+        return found[0].menu_word
+    return code
+
+
+def lookup(code: str, role: str = "regressor") -> Transform | None:
+    """The transform a code names, or None when it names none (no error)."""
+    try:
+        return parse_transform(code, role, "transform")
+    except SpecError:
+        return None
+
+
+def label(column: str, code: str | None, role: str = "regressor") -> str:
+    """Short plain name of a transformed variable ('log of price', 'IHS of spend'); the code
+    itself for an unknown one, so a label never fails."""
+    found = lookup((code or "level").strip(), role) or lookup((code or "level").strip(), "outcome")
+    return found.label(column) if found is not None else f"{code} of {column}"
+
+
+_CODE = re.compile(r"^([a-z_][a-z0-9_]*)\s*(?::\s*(.+))?$")
 
 
 def parse_transform(text: object, role: str, where: str) -> Transform:
@@ -305,35 +470,18 @@ def parse_transform(text: object, role: str, where: str) -> Transform:
 
     ``role`` is 'outcome' or 'regressor'; ``where`` names the spec entry in error messages.
     """
-    allowed = OUTCOME_TRANSFORMS if role == "outcome" else REGRESSOR_TRANSFORMS
-    hint = f"use one of: {', '.join(allowed)}"
+    hint = f"use one of: {', '.join(spec_forms(role))}"
     if not isinstance(text, str) or not text.strip():
         raise SpecError(f"{where}: transform must be a word such as 'log'; {hint}.")
-    key = text.strip().lower()
-    if key in _SIMPLE:
-        found = _SIMPLE[key]
-        if role == "outcome" and key in ("quadratic", "category"):
-            raise SpecError(f"{where}: '{key}' applies to regressors only; {hint}.")
-        return found
-    match = _PARAM.match(key)
-    if match:
-        kind, raw = match.groups()
-        try:
-            value = float(raw)
-        except ValueError:
-            raise SpecError(f"{where}: '{text}' needs a number after the colon, e.g. '{kind}:1'.") from None
-        if not math.isfinite(value):
-            raise SpecError(f"{where}: '{text}' needs a finite number after the colon.")
-        if kind == "shifted_log":
-            if value <= 0:
-                raise SpecError(f"{where}: the shift in '{text}' must be above zero, e.g. 'shifted_log:1'.")
-            return ShiftedLog(shift=value)
-        if role != "outcome":
-            raise SpecError(f"{where}: 'boxcox' applies to the outcome only; {hint}.")
-        if abs(value) > 5:
-            raise SpecError(f"{where}: a Box-Cox power of {_fmt(value)} is outside -5..5; pick a power in that range.")
-        return BoxCox(power=value)
-    raise SpecError(f"{where}: unknown transform '{text}'; {hint}.")
+    match = _CODE.match(text.strip().lower())
+    found = _REGISTRY.get(match.group(1)) if match else None
+    if found is None:
+        raise SpecError(f"{where}: unknown transform '{text}'; {hint}.")
+    kind, make, _ = found
+    if role not in kind.roles:
+        only = "regressors" if role == "outcome" else "the outcome"
+        raise SpecError(f"{where}: '{match.group(1)}' applies to {only} only; {hint}.")
+    return make(match.group(2), text, where)
 
 
 def _fmt(value: float) -> str:

@@ -5,7 +5,8 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from core.output.tables import markdown_escape, neutralise, render, result_tables
+from core.output.escape import csv_cell, markdown
+from core.output.tables import render, result_tables
 
 
 def to_json(result: dict[str, Any]) -> str:
@@ -22,15 +23,15 @@ def model_sentence(result: dict[str, Any]) -> str:
 
 def to_markdown(result: dict[str, Any]) -> str:
     """A memo-ready summary: model, coefficients, effects, checks, warnings and cautions."""
-    out = ["# Formwise results", "", markdown_escape(model_sentence(result)), "", render(result_tables(result), "markdown")]
+    out = ["# Formwise results", "", markdown(model_sentence(result)), "", render(result_tables(result), "markdown")]
     if result.get("warnings"):
-        out += ["## Warnings", ""] + [f"- {markdown_escape(w)}" for w in result["warnings"]] + [""]
-    out += ["## Cautions", ""] + [f"- {markdown_escape(c)}" for c in result.get("cautions", [])]
+        out += ["## Warnings", ""] + [f"- {markdown(w)}" for w in result["warnings"]] + [""]
+    out += ["## Cautions", ""] + [f"- {markdown(c)}" for c in result.get("cautions", [])]
     return "\n".join(out) + "\n"
 
 
 def to_csv(result: dict[str, Any]) -> str:
-    return f"{neutralise(model_sentence(result))}\n\n" + render(result_tables(result), "csv")
+    return f"{csv_cell(model_sentence(result))}\n\n" + render(result_tables(result), "csv")
 
 
 def to_latex(result: dict[str, Any]) -> str:

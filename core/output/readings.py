@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 from core.model.design import Block, Term
-from core.model.transforms import Transform
+from core.model.transforms import Transform, lookup
 
 HELD = "other regressors held fixed"
 
@@ -21,7 +21,7 @@ def _num(value: float) -> str:
         return "n/a"
     magnitude = abs(value)
     if magnitude >= 1000:
-        return f"{value:,.0f}"
+        return f"{value:,.0f}" if magnitude < 1e15 else f"{value:.3g}"
     if magnitude >= 1:
         return f"{value:.3g}" if magnitude < 100 else f"{value:.1f}"
     return f"{value:.3g}"
@@ -31,12 +31,17 @@ def _signed_pct(value: float) -> str:
     return f"{'+' if value >= 0 else ''}{_num(value)} %"
 
 
+def _exact_pct(b: float) -> float:
+    """100·(e^b − 1), infinite rather than an overflow error for a huge coefficient."""
+    return 100.0 * math.expm1(b) if b < 700 else math.inf
+
+
 def _outcome_move(outcome: Transform, y: str, b: float) -> str:
     """How a one-unit move in the index reads on the outcome."""
     if outcome.code == "level":
         return f"a change of {_num(b)} in {y}"
     if outcome.is_log_like:
-        return f"about {_signed_pct(100 * b)} in {y} (exactly {_signed_pct(100 * math.expm1(b))})"
+        return f"about {_signed_pct(100 * b)} in {y} (exactly {_signed_pct(_exact_pct(b))})"
     return f"a change of {_num(b)} in the {outcome.label(y)}; see the effects table for {y} itself"
 
 
@@ -62,21 +67,14 @@ def reading(term: Term, estimate: float, outcome: Transform, y: str, block: Bloc
     if term.power == 2:
         shape = "flattens then reverses" if estimate < 0 else "steepens"
         return f"Curvature: as {x} grows its effect {shape} (square term {_num(estimate)} on the model's scale)."
-    tx = term.transform or "level"
-    log_like_x = tx == "log"
-    if tx == "level":
+    transform = block.spec.transform if block is not None else lookup(term.transform or "level")
+    if transform is None or transform.code == "level":
         return f"One more unit of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
-    if log_like_x or tx == "ihs" or tx.startswith("shifted_log"):
-        caveat = ""
-        if tx == "ihs":
-            caveat = " for values of x well above 1 (IHS behaves like a log there); near zero the effect depends on x's units"
-        elif tx.startswith("shifted_log"):
-            caveat = " where the shift is small next to x; otherwise see the effects table"
+    if transform.reads_per_percent:
+        caveat = transform.reading_caveat(x)
         if outcome.code == "level":
             return f"A 1 % higher {x} goes with a change of about {_num(estimate / 100)} in {y}{caveat}, {HELD}."
         if outcome.is_log_like:
             return f"A 1 % higher {x} goes with about {_signed_pct(estimate)} in {y} (an elasticity){caveat}, {HELD}."
         return f"A 1 % higher {x} moves the {outcome.label(y)} by about {_num(estimate / 100)}{caveat}, {HELD}."
-    if tx == "sqrt":
-        return f"One more unit of the square root of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
-    return f"One more unit of the {tx} of {x} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."
+    return f"One more unit of the {transform.label(x)} goes with {_outcome_move(outcome, y, estimate)}, {HELD}."

@@ -11,25 +11,13 @@ from __future__ import annotations
 
 import csv
 import io
-import math
 from dataclasses import dataclass
 from typing import Any
 
-Cell = float | int | str | None
+from core.output import escape
+from core.output.numbers import format_cell
 
-FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
-_LATEX_SPECIAL = {
-    "\\": r"\textbackslash{}",
-    "&": r"\&",
-    "%": r"\%",
-    "$": r"\$",
-    "#": r"\#",
-    "_": r"\_",
-    "{": r"\{",
-    "}": r"\}",
-    "~": r"\textasciitilde{}",
-    "^": r"\textasciicircum{}",
-}
+Cell = float | int | str | None
 
 
 @dataclass
@@ -37,26 +25,6 @@ class Table:
     title: str
     header: list[str]
     rows: list[list[Cell]]
-
-
-def format_cell(value: Cell, digits: int = 4) -> str:
-    if value is None:
-        return ""
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if not math.isfinite(value):
-            return ""
-        if value == 0:
-            return "0"
-        if 10**digits <= abs(value) < 1e15:
-            return f"{value:,.0f}"
-        if abs(value) >= 1e15 or abs(value) < 10 ** (-digits):
-            return f"{value:.{digits - 1}e}"
-        return f"{value:.{digits}g}"
-    return str(value)
 
 
 # --- building tables from a result ------------------------------------------------------------
@@ -160,46 +128,24 @@ def result_tables(result: dict[str, Any]) -> list[Table]:
 # --- rendering ---------------------------------------------------------------------------------
 
 
-def neutralise(cell: Cell) -> Cell:
-    """Text a spreadsheet would run as a formula gets a leading apostrophe; numbers pass."""
-    if isinstance(cell, str) and cell.startswith(FORMULA_STARTS):
-        return "'" + cell
-    return cell
-
-
 def to_csv(table: Table) -> str:
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow([neutralise(h) for h in table.header])
+    writer.writerow([escape.csv_cell(h) for h in table.header])
     for row in table.rows:
-        writer.writerow(["" if c is None else (repr(c) if isinstance(c, float) else neutralise(c)) for c in row])
+        writer.writerow(["" if c is None else (repr(c) if isinstance(c, float) else escape.csv_cell(c)) for c in row])
     return buffer.getvalue()
-
-
-# Characters that change meaning inside a Markdown table cell or paragraph (CommonMark §2.4).
-_MARKDOWN_SPECIAL = set("\\`*_{}[]()#+!|<>$~")
-
-
-def markdown_escape(text: str) -> str:
-    """User text as literal Markdown: special characters backslash-escaped, line breaks folded,
-    and bare URLs broken with a word joiner so no renderer turns them into links or images."""
-    escaped = "".join("\\" + ch if ch in _MARKDOWN_SPECIAL else ch for ch in text.replace("\r", " ").replace("\n", " "))
-    return escaped.replace("://", ":\u2060//").replace("www", "w\u2060ww").replace("@", "@\u2060")
 
 
 def to_markdown(table: Table) -> str:
     def clean(cell: Cell) -> str:
         text = format_cell(cell)
-        return text if isinstance(cell, (int, float)) else markdown_escape(text)
+        return text if isinstance(cell, (int, float)) else escape.markdown(text)
 
-    lines = [f"**{markdown_escape(table.title)}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
+    lines = [f"**{escape.markdown(table.title)}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
     lines.append("|" + "|".join("---:" if _numeric_column(table, i) else "---" for i in range(len(table.header))) + "|")
     lines += ["| " + " | ".join(clean(c) for c in row) + " |" for row in table.rows]
     return "\n".join(lines) + "\n"
-
-
-def latex_escape(text: str) -> str:
-    return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in text)
 
 
 def to_latex(table: Table) -> str:
@@ -207,14 +153,14 @@ def to_latex(table: Table) -> str:
     lines = [
         r"\begin{table}[htbp]",
         r"\centering",
-        rf"\caption{{{latex_escape(table.title)}}}",
+        rf"\caption{{{escape.latex(table.title)}}}",
         rf"\begin{{tabular}}{{{align}}}",
         r"\toprule",
-        " & ".join(latex_escape(h) for h in table.header) + r" \\",
+        " & ".join(escape.latex(h) for h in table.header) + r" \\",
         r"\midrule",
     ]
     for row in table.rows:
-        lines.append(" & ".join(latex_escape(format_cell(c)) for c in row) + r" \\")
+        lines.append(" & ".join(escape.latex(format_cell(c)) for c in row) + r" \\")
     lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}"]
     return "\n".join(lines) + "\n"
 
@@ -231,5 +177,5 @@ def render(tables: list[Table], fmt: str) -> str:
     """Several tables in one document; CSV tables are separated by a blank line and a title row."""
     renderer = RENDERERS[fmt]
     if fmt == "csv":
-        return "\n".join(f"{neutralise(t.title)}\n{renderer(t)}" for t in tables)
+        return "\n".join(f"{escape.csv_cell(t.title)}\n{renderer(t)}" for t in tables)
     return "\n".join(renderer(t) for t in tables)

@@ -1,0 +1,118 @@
+"""The fitted model: design, coefficients, their covariance and residuals, as every later step
+(effects, curves, retransformation, predictions) sees it; and the one function that fits it.
+
+For PPML the least-squares record carries the Poisson estimates (residuals y - μ̂, fitted values
+the index x'b, r2 the squared correlation of y and μ̂), and the model is seen by the effect engine
+as a log-link mean with no residual spread, so effects need no special case.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from core.model.covariance import covariance, sandwich
+from core.model.design import ColumnCache, Design, build_design
+from core.model.ols import OLSFit, fit_ols
+from core.model.ppml import fit_ppml
+from core.model.spec import ModelSpec
+from core.model.transforms import Log, Transform
+
+# Cap on the (rows x residuals) grid evaluated at once when smearing, to bound memory.
+_SMEAR_CHUNK = 4_000_000
+
+
+@dataclass
+class Model:
+    """A fitted model as the effect engine sees it."""
+
+    design: Design
+    coef: np.ndarray
+    cov: np.ndarray
+    df: int
+    outcome: Transform
+    resid: np.ndarray
+    confidence: float = 0.95
+
+    @property
+    def kind(self) -> str:
+        """'level', 'log' (closed forms) or 'smearing' (any other outcome transform)."""
+        if self.outcome.code == "level":
+            return "level"
+        if self.outcome.is_log_like:
+            return "log"
+        return "smearing"
+
+    @property
+    def units(self) -> str:
+        return "outcome" if self.kind == "level" else "percent"
+
+    @property
+    def t_crit(self) -> float:
+        return float(stats.t.ppf(0.5 + self.confidence / 2, self.df))
+
+    def encode(self, point: dict[str, Any], m: int) -> np.ndarray:
+        return self.design.encoder.encode(point, m)
+
+    # --- smearing estimate of E[y | x] and its derivative in the index -------------------
+    def smear(self, eta: np.ndarray, resid: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """S(η) = mean g⁻¹(η + ê) and S'(η) = mean (g⁻¹)'(η + ê), for each η (Duan 1983)."""
+        resid = self.resid if resid is None else resid
+        eta = np.asarray(eta, dtype=float)
+        level = np.empty_like(eta)
+        slope = np.empty_like(eta)
+        step = max(1, _SMEAR_CHUNK // max(len(resid), 1))
+        for start in range(0, len(eta), step):
+            block = eta[start : start + step, None] + resid[None, :]
+            level[start : start + step] = self.outcome.inverse(block).mean(axis=1)
+            slope[start : start + step] = self.outcome.inverse_derivative(block).mean(axis=1)
+        return level, slope
+
+
+def fit_model(data: pd.DataFrame, model_spec: ModelSpec, columns: ColumnCache | None = None) -> tuple[Design, OLSFit, Model]:
+    """Design, fit and covariance: everything the effect engine needs.
+
+    For PPML the returned fit carries the Poisson estimates in the least-squares record
+    (residuals y - μ̂, fitted values the index x'b, r2 the squared correlation of y and μ̂), and
+    the model is seen by the effect engine as a log-link mean with no residual spread.
+    """
+    return fit_design(build_design(data, model_spec, columns), model_spec)
+
+
+def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, Model]:
+    """Fit and covariance on a built design (see ``fit_model``)."""
+    names = [t.name for t in design.terms]
+    with np.errstate(all="ignore"):
+        fit = fit_ols(design.X, design.y, design.weights, names)  # also screens for collinearity
+        if model_spec.estimator == "ppml":
+            return _fit_ppml(design, model_spec, fit)
+        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
+    model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
+    return design, fit, model
+
+
+def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[Design, OLSFit, Model]:
+    ppml = fit_ppml(design.X, design.y_raw, design.weights)
+    w = design.weights if design.weights is not None else 1.0
+    root_mu = np.sqrt(w * ppml.mu)
+    u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
+    cov, df = sandwich(ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, row_scale=root_mu)
+    r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
+    fit = replace(
+        screen,
+        coef=ppml.coef,
+        resid=design.y_raw - ppml.mu,
+        fitted=design.X @ ppml.coef,
+        xtx_inv=ppml.bread,
+        r2=r2,
+        adj_r2=float("nan"),
+        sigma=float("nan"),
+        loglik=ppml.loglik,
+        ssr=float("nan"),
+    )
+    model = Model(design=design, coef=ppml.coef, cov=cov, df=df, outcome=Log(), resid=np.zeros(1))
+    return design, fit, model
