@@ -503,7 +503,7 @@ def sentence_case(text: str) -> str:
 
 
 # --- the views' shared helpers ----------------------------------------------------------------------
-# Largest number of points any chart sends to the browser (SPEC §8).
+# Largest number of points any chart sends to the browser (docs/contract.md §6).
 MAX_POINTS = 20_000
 # Data points drawn lightly behind an effect curve.
 CURVE_POINTS = 2_000

@@ -40,7 +40,7 @@ CAUTIONS = [
 def analyze(
     data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None, columns: ColumnCache | None = None
 ) -> dict[str, Any]:
-    """Fit the model described by ``spec`` on ``data`` and return the result contract (SPEC §4).
+    """Fit the model described by ``spec`` on ``data`` and return the result contract (docs/contract.md §3).
 
     ``parts`` names the sections to compute (default: all); the header keys (n_obs, dropped,
     outcome, covariance, warnings) are always present. Raises ``FormwiseError`` with a

@@ -1,6 +1,6 @@
 """Checks of core.analyze against values published outside the project.
 
-Sources (SPEC §7):
+Sources (docs/contract.md §3.13):
 - NIST StRD linear regression, Longley data set: certified values (the data set itself is
   shipped by statsmodels as statsmodels.datasets.longley).
 - J. M. Wooldridge, Introductory Econometrics: A Modern Approach, 7th ed., worked examples on
@@ -80,7 +80,7 @@ LONGLEY_CERT_SE = {
 }
 LONGLEY_CERT_RESIDUAL_SD = 304.854073561965  # NIST StRD certified value
 LONGLEY_CERT_R2 = 0.995479004577296  # NIST StRD certified value
-# SPEC §8 target: at least 10 significant digits on the certified coefficients.
+# docs/contract.md §6 target: at least 10 significant digits on the certified coefficients.
 LONGLEY_MIN_LRE = 10.0
 
 
@@ -421,13 +421,13 @@ def test_category_default_reference_is_most_frequent(wage1_regions):
     result = _fit(
         wage1_regions, ("wage", "log"), [{"column": "educ", "transform": "level"}, {"column": "region", "transform": "category"}]
     )
-    mode = wage1_regions["region"].value_counts().idxmax()  # SPEC §3: default reference = most frequent level
+    mode = wage1_regions["region"].value_counts().idxmax()  # docs/contract.md §2: default reference = most frequent level
     levels = {t["level"] for t in result["terms"] if t["column"] == "region"}
     assert levels == set(wage1_regions["region"]) - {mode}
 
 
 def test_category_change_between_numeric_levels(wage1):
-    """SPEC §3: change 'A->B' also names category levels; numdep's levels are 0..6."""
+    """docs/contract.md §2: change 'A->B' also names category levels; numdep's levels are 0..6."""
     result = _fit(
         wage1,
         ("wage", "log"),

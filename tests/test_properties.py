@@ -85,9 +85,9 @@ def _expected_exact(data: pd.DataFrame, result: dict, y_t: str, x_t: str, x1_fro
     eta0 = (_design(data, x_t, x1_from, x2_bar) @ b)[0]
     eta1 = (_design(data, x_t, x1_to, x2_bar) @ b)[0]
     if y_t == "level":
-        return eta1 - eta0  # difference of predictions (SPEC §4)
+        return eta1 - eta0  # difference of predictions (docs/contract.md §3)
     if y_t == "log":
-        return 100.0 * math.expm1(eta1 - eta0)  # SPEC §4; Wooldridge 7th ed., §6.2
+        return 100.0 * math.expm1(eta1 - eta0)  # docs/contract.md §3; Wooldridge 7th ed., §6.2
     smear0 = np.mean(inverse(eta0 + resid))  # Duan (1983) smearing estimate of E[y | x]
     smear1 = np.mean(inverse(eta1 + resid))
     return 100.0 * (smear1 / smear0 - 1.0)
@@ -113,7 +113,7 @@ def test_exact_effect_is_the_models_own_prediction_change(y_t, x_t, seed, percen
     np.testing.assert_allclose(b, b_ls, rtol=1e-8, atol=1e-10)
 
     row = effect(result, "x1")
-    x_bar = data["x1"].mean()  # SPEC §3: reference point defaults to the sample mean
+    x_bar = data["x1"].mean()  # docs/contract.md §2: reference point defaults to the sample mean
     assert _close(row["reference"]["x1"], x_bar, 1e-12)
     assert row["units"] == ("outcome" if y_t == "level" else "percent")
     expected = _expected_exact(data, result, y_t, x_t, x_bar, x_bar * (1.0 + percent / 100.0))

@@ -1,4 +1,4 @@
-"""Bad specs and bad data get a clear error naming the offending part (SPEC §3, §4, §8).
+"""Bad specs and bad data get a clear error naming the offending part (docs/contract.md §2, §3, §6).
 
 The data is the project's invented demo data (demo_data/kiosks.csv) with its default spec,
 bent one way at a time.
@@ -72,7 +72,7 @@ def test_outcome_also_a_regressor(kiosks, default_spec):
     _raises(core.SpecError, kiosks, default_spec, "weekly_revenue", "outcome")
 
 
-# SPEC §3 names signed forms only ("+10%", "-0.5", "A->B"); unsigned text such as "10" is
+# docs/contract.md §2 names signed forms only ("+10%", "-0.5", "A->B"); unsigned text such as "10" is
 # ambiguous (percent or units?) and is refused.
 @pytest.mark.parametrize("text", ["ten percent", "+10%%", "10", "*2", "->", "+0%", "+0", "4.5->4.5"])
 def test_bad_change_text(kiosks, default_spec, text):
@@ -211,7 +211,7 @@ def test_result_is_strict_json(kiosks, default_spec):
 
 
 def test_non_finite_numbers_become_null():
-    """SPEC §2: the result is plain JSON data; NaN and inf become null, numpy scalars plain Python."""
+    """docs/contract.md §1: the result is plain JSON data; NaN and inf become null, numpy scalars plain Python."""
     from core.analysis import json_safe
 
     raw = {"a": float("nan"), "b": np.inf, "c": [np.float64(-np.inf), np.float32(1.5)], "d": np.int64(3), "e": np.bool_(True)}

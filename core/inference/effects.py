@@ -4,7 +4,7 @@ A change moves one regressor from x0 to x1 in original units, with every other r
 held at the reference point. The design rows X0 and X1 come from the same encoder the fit
 used, so the linear index moves by Δη = (X1 - X0)·b for any regressor transform (level, log,
 IHS, shifted log, square root, quadratic, category). The effect on y then depends only on
-the outcome transform g (SPEC §4):
+the outcome transform g (docs/contract.md §3):
 
 - level y:      exact = Δη                          (difference of predictions, y's units)
 - log y:        exact = 100·(exp(Δη) - 1)           (percent; Halvorsen & Palmquist 1980 for

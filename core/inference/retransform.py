@@ -7,8 +7,8 @@
 - Retransform factors: mean over rows of the retransformed mean divided by the mean of the
   naive g⁻¹(η̂ᵢ); for log y exactly mean(exp(ê)) and exp(σ²/2).
 - Original-scale log-likelihood: ℓ_g + Σ ln|g'(yᵢ)| (Box & Cox 1964, eq. 7), AIC = -2ℓ + 2k,
-  BIC = -2ℓ + k·ln n, k the number of coefficients (SPEC §4).
-- r2_original_scale: squared correlation of y and the smearing prediction (SPEC §4).
+  BIC = -2ℓ + k·ln n, k the number of coefficients (docs/contract.md §3).
+- r2_original_scale: squared correlation of y and the smearing prediction (docs/contract.md §3).
 - Box-Cox profile (Box & Cox 1964, §3): with u = y / ẏ (ẏ the geometric mean),
   ℓ(λ) = -n/2·ln(ẏ²·SSR(λ)/n), SSR(λ) the residual sum of squares of (u^λ - 1)/λ on X; λ̂
   maximises it and the 95 % interval is {λ : 2(ℓ(λ̂) - ℓ(λ)) ≤ χ²₁(0.95)}.

@@ -1,6 +1,6 @@
 """The model specification: validated up front, parsed as plain data only.
 
-A spec is a JSON-able dict (SPEC §3). ``parse_spec`` checks every key against the data's
+A spec is a JSON-able dict (docs/contract.md §2). ``parse_spec`` checks every key against the data's
 columns and returns a ``ModelSpec``; every problem raises ``SpecError`` naming the part.
 """
 
