@@ -17,12 +17,15 @@ import plotly.graph_objects as go
 import streamlit as st
 
 import core
-from app import charts, state
+from app import charts
+from app.gridspec import spec_json
+from core.inference.choices import zero_note
 from core.model.spec import parse_spec
 from core.model.specfile import parse_spec_document, spec_document
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.report import build_report
+from core.output.text import model_sentence
 
 # Session keys of the export choices (sidebar).
 SIZE_KEY = "export_size"
@@ -54,8 +57,8 @@ def saved_specs(saved_models: list[dict[str, Any]], data_id: str) -> dict[str, d
 
 def model_name(spec: dict[str, Any], saved: dict[str, dict[str, Any]]) -> str | None:
     """The saved name of ``spec`` when it is one of the saved models, else None."""
-    key = state.spec_json(spec)
-    return next((name for name, other in saved.items() if state.spec_json(other) == key), None)
+    key = spec_json(spec)
+    return next((name for name, other in saved.items() if spec_json(other) == key), None)
 
 
 def spec_file(spec: dict[str, Any], saved: dict[str, dict[str, Any]]) -> str:
@@ -85,7 +88,7 @@ def restore_notes(spec: dict[str, Any], frame: pd.DataFrame) -> list[str]:
     """What the screen cannot show of an uploaded spec (and so leaves out of the next fit)."""
     notes = []
     if spec.get("estimator") == "ppml":
-        note = state.zero_note(frame, spec["outcome"]["column"])
+        note = zero_note(frame, spec["outcome"]["column"])
         if note is None or not note["ppml_possible"]:
             notes.append(
                 "The spec fits by Poisson pseudo-maximum likelihood; the app offers it only for an outcome with zeros "
@@ -129,7 +132,7 @@ def set_chart_caption(data_id: str, data_name: str, spec: dict[str, Any], result
     """The source line for this run's charts: data file, rows used and the model's name (its
     saved name, else the model in words)."""
     ss = st.session_state
-    name = model_name(spec, saved_specs(ss.get("saved_models") or [], data_id)) or state.model_sentence(result)
+    name = model_name(spec, saved_specs(ss.get("saved_models") or [], data_id)) or model_sentence(result)
     ss[CHART_CAPTION_KEY] = charts.caption_text(data_name, result.get("n_obs"), name)
 
 
@@ -249,7 +252,7 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
         if not good:
             return
         saved = saved_specs(ss.get("saved_models") or [], good["data_id"])
-        key = (good["data_id"], state.spec_json(good["spec"]), json.dumps(saved, sort_keys=True))
+        key = (good["data_id"], spec_json(good["spec"]), json.dumps(saved, sort_keys=True))
         if st.button("Prepare the report", key="prepare_report", width="stretch", help="Runs the whole analysis once."):
             with st.spinner("Writing the report…"):
                 try:

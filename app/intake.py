@@ -26,11 +26,14 @@ from typing import Any
 import pandas as pd
 import streamlit as st
 
-from app import charts, exports, state
+from app import charts, exports
+from app.gridspec import LOCKED_KINDS, _text, outcome_column, profile_entries
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
+from core.model.transforms import menu_codes, menu_word
 from core.output.escape import plain
 from core.output.numbers import round_sig, signed
+from core.output.text import boxcox_sentence, join_words, sentence_case
 
 CAP_VARIABLE = "FORMWISE_MAX_UPLOAD_MB"
 DEFAULT_CAP_MB = 200.0
@@ -152,22 +155,18 @@ def _size_words(n_bytes: int) -> str:
 # --- pure helpers: suggestions, locks, words -----------------------------------------------------------
 def locked_columns(profile: dict[str, Any] | None) -> dict[str, str]:
     """Identifier and date columns (name -> kind): not variables for the model by default."""
-    return {c: e["kind"] for c, e in state.profile_entries(profile).items() if e.get("kind") in state.LOCKED_KINDS}
+    return {c: e["kind"] for c, e in profile_entries(profile).items() if e.get("kind") in LOCKED_KINDS}
 
 
 def lock_roles(grid: pd.DataFrame, locked: Mapping[str, str]) -> tuple[pd.DataFrame, list[str]]:
     """The grid with every locked column back to 'not used', and the columns that moved."""
-    moved = [
-        i
-        for i in grid.index
-        if state._text(grid.at[i, "column"]) in locked and state._text(grid.at[i, "role"]) not in ("", "not used")
-    ]
+    moved = [i for i in grid.index if _text(grid.at[i, "column"]) in locked and _text(grid.at[i, "role"]) not in ("", "not used")]
     if not moved:
         return grid, []
     fixed = grid.copy()
     for i in moved:
         fixed.at[i, "role"] = "not used"
-    return fixed, [state._text(grid.at[i, "column"]) for i in moved]
+    return fixed, [_text(grid.at[i, "column"]) for i in moved]
 
 
 def apply_suggestions(grid: pd.DataFrame, profile: dict[str, Any] | None) -> tuple[pd.DataFrame, list[tuple[str, str, str]]]:
@@ -176,17 +175,17 @@ def apply_suggestions(grid: pd.DataFrame, profile: dict[str, Any] | None) -> tup
     Rows without a suggestion (identifiers, dates, text) keep theirs, and so does an outcome
     whose suggestion only a regressor can take (a category). Returns the new grid and the
     changes made as (column, old transform, new transform)."""
-    entries = state.profile_entries(profile)
+    entries = profile_entries(profile)
     out = grid.copy()
     changes: list[tuple[str, str, str]] = []
     for i in out.index:
-        column = state._text(out.at[i, "column"])
+        column = _text(out.at[i, "column"])
         suggested = (entries.get(column) or {}).get("suggested_transform")
         if not suggested:
             continue
-        role = state._text(out.at[i, "role"])
-        allowed = state.OUTCOME_TRANSFORMS if role == "outcome" else state.REGRESSOR_TRANSFORMS
-        current = state._text(out.at[i, "transform"]) or "level"
+        role = _text(out.at[i, "role"])
+        allowed = menu_codes("outcome") if role == "outcome" else menu_codes("regressor")
+        current = _text(out.at[i, "transform"]) or "level"
         if suggested in allowed and suggested != current:
             out.at[i, "transform"] = suggested
             changes.append((column, current, suggested))
@@ -201,7 +200,7 @@ def arrows(text: str) -> str:
 def transform_words(code: str | None) -> str:
     if not code:
         return "not used"
-    return state.TRANSFORM_WORDS.get(code, code)
+    return menu_word(code)
 
 
 def kind_words(entry: dict[str, Any]) -> str:
@@ -228,7 +227,7 @@ def note_text(note: str, columns: list[str]) -> str:
     """A note as a sentence; one that starts with a column name keeps the name as written."""
     if any(note.startswith(f"{column}: ") for column in columns):
         return note
-    return state.sentence_case(note)
+    return sentence_case(note)
 
 
 def _signed(value: float | None, digits: int = 2) -> str:
@@ -257,7 +256,7 @@ def evidence_lines(entry: dict[str, Any], outcome: bool) -> list[str]:
     boxcox = entry.get("boxcox")
     if outcome and boxcox and boxcox.get("lambda") is not None:
         lines.append(
-            state.boxcox_sentence(boxcox, entry["column"])
+            boxcox_sentence(boxcox, entry["column"])
             + " (The column on its own; the Residual checks view works λ out given the regressors.)"
         )
     return lines
@@ -293,12 +292,12 @@ def profile_frame(profile: dict[str, Any], grid: pd.DataFrame | None = None) -> 
     in_grid: dict[str, str] = {}
     entries = list(profile.get("columns") or [])
     if grid is not None:
-        order = {state._text(c): i for i, c in enumerate(grid["column"])}
+        order = {_text(c): i for i, c in enumerate(grid["column"])}
         entries.sort(key=lambda e: order.get(str(e["column"]), len(order)))
         for row in grid.to_dict("records"):
-            role = state._text(row.get("role")) or "not used"
-            in_grid[state._text(row.get("column"))] = (
-                "not used" if role == "not used" else f"{role}: {transform_words(state._text(row.get('transform')))}"
+            role = _text(row.get("role")) or "not used"
+            in_grid[_text(row.get("column"))] = (
+                "not used" if role == "not used" else f"{role}: {transform_words(_text(row.get('transform')))}"
             )
     rows = []
     for entry in entries:
@@ -391,8 +390,8 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
         fixed, moved = lock_roles(grid, locked)
         if moved:
             ss.lock_message = (
-                f"{state.join_words(moved)} {'holds' if len(moved) == 1 else 'hold'} "
-                f"{state.join_words(sorted({_LOCKED_PLURAL[locked[c]] for c in moved}))}, so "
+                f"{join_words(moved)} {'holds' if len(moved) == 1 else 'hold'} "
+                f"{join_words(sorted({_LOCKED_PLURAL[locked[c]] for c in moved}))}, so "
                 f"{'it stays' if len(moved) == 1 else 'they stay'} out of the model. Tick "
                 "“Let me use identifier and date columns anyway” to use "
                 f"{'it' if len(moved) == 1 else 'them'}."
@@ -402,7 +401,7 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
     message = ss.pop("lock_message", None)
     if message:
         st.info(plain(message), icon=":material/lock:")
-    names = plain(state.join_words(list(locked)))
+    names = plain(join_words(list(locked)))
     st.checkbox(
         "Let me use identifier and date columns anyway",
         key=UNLOCK_KEY,
@@ -422,8 +421,8 @@ def profiles_view(ctx: Any = None) -> None:
         st.info("No column profiles for this data.")
         return
     grid = ss.get("previous_grid")
-    entries = state.profile_entries(profile)
-    outcome = state.outcome_column(grid) if grid is not None else None
+    entries = profile_entries(profile)
+    outcome = outcome_column(grid) if grid is not None else None
     st.caption(
         f"**{plain(data.get('name', ''))}**: {profile.get('n_rows', 0):,} rows × {len(entries)} columns. "
         "The suggestions are rules of thumb from each "
@@ -477,7 +476,7 @@ def profiles_view(ctx: Any = None) -> None:
         suggested = transform_words(entry.get("suggested_transform"))
         where = " · the outcome in your grid" if pick == outcome else ""
         st.markdown(f"**Suggested: {suggested}** · {kind_words(entry)}{where}")
-        reasons = [state.sentence_case(arrows(r)) for r in entry.get("reasons") or []]
+        reasons = [sentence_case(arrows(r)) for r in entry.get("reasons") or []]
         if reasons:
             st.markdown("\n".join(f"- {plain(r)}" for r in reasons))
         lines = evidence_lines(entry, outcome=pick == outcome)

@@ -1,7 +1,7 @@
 """Formwise in the browser: widgets -> spec -> core.analyze -> tables and figures.
 
 Run from the repository root with ``streamlit run app/main.py``. The rules (grid <-> spec,
-defaults, wording) live in ``app.state`` and ``app.tables``; figures in ``app.charts``.
+defaults, wording) live in ``app.gridspec`` (the grid) and ``core.output.text`` (sentences) and ``app.tables``; figures in ``app.charts``.
 """
 
 from __future__ import annotations
@@ -17,12 +17,28 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-import pandas as pd  # noqa: E402
-import streamlit as st  # noqa: E402
+import pandas as pd
+import streamlit as st
 
-import core  # noqa: E402
-from app import cautions, exports, intake, state, views  # noqa: E402
-from core.output.escape import plain  # noqa: E402
+import core
+from app import cautions, exports, intake, views
+from app.gridspec import (
+    ROLES,
+    GridError,
+    category_levels,
+    default_spec,
+    grid_to_spec,
+    outcome_column,
+    resolve_outcome,
+    spec_json,
+    spec_to_grid,
+    with_outcome_level,
+)
+from core.inference.choices import suggest_cluster, zero_note
+from core.model.covariance import COVARIANCE_KINDS
+from core.model.transforms import menu_codes, menu_word
+from core.output.escape import plain
+from core.output.text import dropped_lines, fit_sentence, model_sentence, rows_sentence, sentence_case, zero_sentence
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
@@ -42,7 +58,7 @@ def use_data(
     ``notes`` say what reading changed, ``profile`` holds the advisor's column profiles."""
     ss = st.session_state
     ss.data = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile}
-    ss.grid_base = state.spec_to_grid(spec, frame, profile)
+    ss.grid_base = spec_to_grid(spec, frame, profile)
     # A new table starts with its identifier and date columns locked out again.
     ss.pop(intake.UNLOCK_KEY, None)
     ss.previous_grid = ss.grid_base
@@ -51,7 +67,7 @@ def use_data(
     ss.grid_key = f"variables_{ss.grid_version}"
     ss.at = dict(spec.get("at") or {})
     ss.covariance = spec.get("covariance") or "HC1"
-    ss.cluster_column = spec.get("cluster") or state.suggest_cluster(frame)
+    ss.cluster_column = spec.get("cluster") or suggest_cluster(frame)
     ss.ppml = spec.get("estimator") == "ppml"
 
 
@@ -76,11 +92,11 @@ def take_upload(upload: Any) -> None:
     raw = upload.getvalue()
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet)
-        spec = state.default_spec(frame, profile)
-    except (core.FormwiseError, state.GridError) as exc:
+        spec = default_spec(frame, profile)
+    except (core.FormwiseError, GridError) as exc:
         # Most reader messages name the file already; say it once.
         said = str(exc)
-        ss.upload_error = state.sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
+        ss.upload_error = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
         ss.upload_error = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
@@ -120,15 +136,15 @@ def sidebar() -> None:
         st.markdown("### Standard errors")
         st.selectbox(
             "How to measure uncertainty",
-            state.COVARIANCES,
+            list(COVARIANCE_KINDS),
             key="covariance",
-            format_func=lambda c: state.COVARIANCE_WORDS[c],
+            format_func=lambda c: COVARIANCE_KINDS[c].words,
         )
         if ss.covariance == "cluster":
             columns = [str(c) for c in frame.columns]
             # The picker's state is dropped while it is hidden, so fall back to a good guess.
             if ss.get("cluster_column") not in columns:
-                ss.cluster_column = state.suggest_cluster(frame) or columns[0]
+                ss.cluster_column = suggest_cluster(frame) or columns[0]
             st.selectbox("Groups are defined by", columns, key="cluster_column")
         st.caption(
             "Intervals are 95 % confidence intervals and p-values test a zero coefficient, both using the "
@@ -147,8 +163,8 @@ def variables_grid() -> pd.DataFrame:
         "(from one value to another). Leave it blank for a sensible default."
     )
     intake.suggestion_button(restart_grid)
-    extra = sorted(set(ss.grid_base["transform"].dropna()) - set(state.REGRESSOR_TRANSFORMS))
-    options = state.REGRESSOR_TRANSFORMS + extra
+    extra = sorted(set(ss.grid_base["transform"].dropna()) - set(menu_codes("regressor")))
+    options = menu_codes("regressor") + extra
     # Tall enough to show every row of a typical file without an inner scrollbar.
     height = min(38 + 35 * len(ss.grid_base), 620)
     grid = st.data_editor(
@@ -163,14 +179,14 @@ def variables_grid() -> pd.DataFrame:
             "column": st.column_config.TextColumn("Column", width=170, pinned=True),
             "about": st.column_config.TextColumn("What it holds", width=200),
             "role": st.column_config.SelectboxColumn(
-                "Role", options=state.ROLES, required=True, width=120, help="Exactly one outcome; any number of regressors."
+                "Role", options=ROLES, required=True, width=120, help="Exactly one outcome; any number of regressors."
             ),
             "transform": st.column_config.SelectboxColumn(
                 "Transform",
                 options=options,
                 required=True,
                 width=190,
-                format_func=lambda t: state.TRANSFORM_WORDS.get(t, t),
+                format_func=lambda t: menu_word(t),
                 help="The outcome takes level, log, IHS, log(x + 1) or square root.",
             ),
             "change": st.column_config.TextColumn("Change", width=130, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
@@ -179,7 +195,7 @@ def variables_grid() -> pd.DataFrame:
             ),
         },
     )
-    resolved = state.resolve_outcome(grid, ss.previous_grid)
+    resolved = resolve_outcome(grid, ss.previous_grid)
     if resolved is not grid:
         # A second outcome was picked: restart the editor on the resolved grid.
         ss.grid_base = resolved
@@ -189,11 +205,11 @@ def variables_grid() -> pd.DataFrame:
         st.rerun()
     ss.previous_grid = grid
     intake.keep_locked_out(grid, restart_grid)
-    levels = state.category_levels(ss.data["frame"], grid)
+    levels = category_levels(ss.data["frame"], grid)
     if levels:
         st.caption(
             "Category levels (most frequent first; blank reference = the most frequent): "
-            + " · ".join(f"**{plain(col)}**: {', '.join(map(state.plain, vals))}" for col, vals in levels.items())
+            + " · ".join(f"**{plain(col)}**: {', '.join(map(plain, vals))}" for col, vals in levels.items())
         )
     return grid
 
@@ -211,17 +227,17 @@ def restart_grid(grid: pd.DataFrame) -> None:
 def ppml_switched() -> None:
     # PPML takes the outcome in levels: show that in the grid rather than overriding it silently.
     if st.session_state.get("ppml"):
-        restart_grid(state.with_outcome_level(st.session_state.previous_grid))
+        restart_grid(with_outcome_level(st.session_state.previous_grid))
 
 
 def zeros_offer(grid: pd.DataFrame) -> str:
     """Next to an outcome with zeros: how many rows a log would drop, and the PPML switch.
     Returns the estimator the spec should use."""
-    note = state.zero_note(st.session_state.data["frame"], state.outcome_column(grid))
+    note = zero_note(st.session_state.data["frame"], outcome_column(grid))
     if note is None:
         return "ols"
     with st.container(border=True):
-        text = state.zero_sentence(note)
+        text = plain(zero_sentence(note))
         if note["ppml_possible"]:
             text += (
                 " Poisson pseudo-maximum likelihood keeps those rows: it models the mean of "
@@ -239,21 +255,21 @@ def zeros_offer(grid: pd.DataFrame) -> str:
 def show_results(good: dict[str, Any]) -> None:
     result, spec, data_name = good["result"], good["spec"], good["data_name"]
     with st.container(border=True):
-        st.markdown(f"##### {plain(state.sentence_case(state.model_sentence(result)))}")
+        st.markdown(f"##### {plain(sentence_case(model_sentence(result)))}")
         estimator = spec.get("estimator") or "ols"
         st.markdown(
             plain(
-                f"{state.rows_sentence(result)} · data: {data_name} · "
+                f"{rows_sentence(result)} · data: {data_name} · "
                 + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
-                + f"standard errors: {state.COVARIANCE_SHORT.get(result['covariance'], result['covariance'])}"
+                + f"standard errors: {COVARIANCE_KINDS[result['covariance']].short}"
                 + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
-                + state.fit_sentence(result, estimator)
+                + fit_sentence(result, estimator)
             )
         )
-        for line in state.dropped_lines(result):
+        for line in dropped_lines(result):
             st.caption(plain(f"Left out: {line}"))
     for warning in result.get("warnings") or []:
-        st.warning(plain(state.sentence_case(warning)))
+        st.warning(plain(sentence_case(warning)))
     st.caption(
         "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
         "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
@@ -279,8 +295,8 @@ def main() -> None:
     notes: list[str] = []
     estimator = zeros_offer(grid)
     try:
-        spec, notes = state.grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"), estimator)
-        result = views.run_model(ss.data["id"], state.spec_json(spec), tuple(sorted(views.BASE_PARTS)), frame)
+        spec, notes = grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"), estimator)
+        result = views.run_model(ss.data["id"], spec_json(spec), tuple(sorted(views.BASE_PARTS)), frame)
         ss.last_good = {
             "result": result,
             "spec": spec,
@@ -288,8 +304,8 @@ def main() -> None:
             "data_id": ss.data["id"],
             "frame": frame,
         }
-    except (core.FormwiseError, state.GridError) as exc:
-        error = state.sentence_case(str(exc))
+    except (core.FormwiseError, GridError) as exc:
+        error = sentence_case(str(exc))
     except Exception as exc:  # a core bug must not become a traceback on screen
         error = f"Formwise could not fit this model because of an internal problem ({type(exc).__name__}: {exc})."
 

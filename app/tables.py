@@ -13,7 +13,8 @@ import numpy as np
 import pandas as pd
 from pandas.io.formats.style import Styler
 
-from app.state import plain, variable_label
+from core.model.transforms import variable_label
+from core.output.escape import plain
 from core.output.numbers import interval, p_value, sig
 
 DASH = "—"

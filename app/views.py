@@ -3,7 +3,7 @@ Streamlit runs every tab's code), and each view asks ``core.analyze`` only for t
 draws, cached by (data id, spec JSON, parts). So the slow sections (residual checks, units check)
 never run on a refit while their view is closed.
 
-Rules and wording live in ``app.state``, tables in ``app.tables`` and figures in ``app.charts``;
+Rules and wording live in ``app.gridspec`` (the grid) and ``core.output.text`` (sentences), tables in ``app.tables`` and figures in ``app.charts``;
 this module only places them on the screen.
 """
 
@@ -18,10 +18,33 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import charts, exports, intake, state, tables
+from app import charts, exports, intake, tables
+from app.gridspec import spec_json
+from core.inference.choices import (
+    overlay_options,
+    predict_inputs,
+    predict_spec,
+    retransforms_differ,
+    sample_points,
+    switch_transform,
+)
+from core.inference.compare import COMPARE_PARTS, best_by_aic, compare_row, unique_name
+from core.model.transforms import phrase, variable_label
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import compact, sig
+from core.output.text import (
+    boxcox_sentence,
+    check_sentences,
+    curve_sentence,
+    factor_words,
+    join_words,
+    outside_words,
+    sentence_case,
+    showing_words,
+    skew_words,
+    units_warning,
+)
 
 VIEWS = [
     "Coefficients",
@@ -54,24 +77,14 @@ def run_model(data_id: str, spec_json: str, parts: tuple[str, ...], _frame: pd.D
     return core.analyze(_frame, json.loads(spec_json), parts=set(parts), columns=column_cache(data_id))
 
 
-@st.cache_data(max_entries=16, show_spinner=False)
-def residual_data(data_id: str, spec_json: str, _frame: pd.DataFrame) -> dict[str, Any] | None:
-    return state.residual_sample(_frame, json.loads(spec_json))
-
-
-@st.cache_data(max_entries=16, show_spinner=False)
-def distribution_data(data_id: str, spec_json: str, _frame: pd.DataFrame) -> list[dict[str, Any]]:
-    return state.variable_distributions(_frame, json.loads(spec_json))
-
-
 @st.cache_data(max_entries=32, show_spinner=False)
 def point_sample(data_id: str, x_column: str, y_column: str, _frame: pd.DataFrame) -> dict[str, Any]:
-    return state.sample_points(_frame, x_column, y_column)
+    return sample_points(_frame, x_column, y_column)
 
 
 @st.cache_data(max_entries=16, show_spinner=False)
 def prediction_inputs(data_id: str, spec_json: str, reference_json: str, _frame: pd.DataFrame) -> list[dict[str, Any]]:
-    return state.predict_inputs(_frame, json.loads(spec_json), json.loads(reference_json))
+    return predict_inputs(_frame, json.loads(spec_json), json.loads(reference_json))
 
 
 @dataclass
@@ -86,7 +99,7 @@ class Context:
 
     def analyze(self, parts: frozenset[str] | set[str], spec: dict[str, Any] | None = None) -> dict[str, Any]:
         chosen = self.spec if spec is None else spec
-        return run_model(self.data_id, state.spec_json(chosen), tuple(sorted(parts)), self.frame)
+        return run_model(self.data_id, spec_json(chosen), tuple(sorted(parts)), self.frame)
 
     @property
     def ppml(self) -> bool:
@@ -103,7 +116,7 @@ class Context:
     @property
     def outcome_label(self) -> str:
         outcome = self.result["outcome"]
-        return state.variable_label(outcome["column"], outcome["transform"], "outcome")
+        return variable_label(outcome["column"], outcome["transform"], "outcome")
 
 
 # Width of a chart in one of two side-by-side columns at a 1440 px window: its text is
@@ -118,7 +131,7 @@ def chart(figure: Any, key: str, screen_width: int | None = None) -> None:
 def failed(exc: Exception) -> None:
     """A view's own computation failed: say so in the view, keep the rest of the page."""
     if isinstance(exc, core.FormwiseError):
-        st.error(plain(state.sentence_case(str(exc))))
+        st.error(plain(sentence_case(str(exc))))
     else:
         st.error(plain(f"Formwise could not compute this view because of an internal problem ({type(exc).__name__}: {exc})."))
 
@@ -181,7 +194,7 @@ def units_view(ctx: Context) -> None:
         return
     if ctx.result.get("n_obs", 0) > UNITS_CHECK_AUTO_ROWS:
         # Six refits per variable take seconds at this size: run them when asked, not on every refit.
-        st.markdown(f"##### Does the effect of {plain(state.join_words(unit_bound))} depend on the units?")
+        st.markdown(f"##### Does the effect of {plain(join_words(unit_bound))} depend on the units?")
         if not st.toggle(
             f"Check it (refits the model {6 * len(unit_bound)} times on {ctx.result['n_obs']:,} rows)", key="units_check_on"
         ):
@@ -193,15 +206,15 @@ def units_view(ctx: Context) -> None:
         st.markdown(f"##### Does the effect of {plain(column)} depend on its units?")
         st.caption(
             plain(
-                f"With {state.variable_label(column, ctx.transforms.get(column))}, the fitted effect can change when "
+                f"With {variable_label(column, ctx.transforms.get(column))}, the fitted effect can change when "
                 f"{column} is recorded in other units (say thousands instead of units), although the data mean the same. "
                 "Here the model is refitted with the variable rescaled and the same real change asked each time."
             )
         )
-        warning = state.units_warning(check, ctx.transforms.get(column))
+        warning = units_warning(check, ctx.transforms.get(column))
         if warning:
             st.warning(plain(warning))
-        words = [state.factor_words(r["factor"]) for r in check["rows"]]
+        words = [factor_words(r["factor"]) for r in check["rows"]]
         st.table(
             tables.styled(tables.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
             hide_index=True,
@@ -216,7 +229,7 @@ def regressor_pick(ctx: Context, names: list[str], key: str) -> str:
     if st.session_state.get(key) not in names:
         st.session_state[key] = names[0]
     transforms = ctx.transforms
-    return st.selectbox("Regressor", names, key=key, format_func=lambda c: state.variable_label(c, transforms.get(c)))
+    return st.selectbox("Regressor", names, key=key, format_func=lambda c: variable_label(c, transforms.get(c)))
 
 
 def approximation_view(ctx: Context) -> None:
@@ -246,8 +259,8 @@ def approximation_view(ctx: Context) -> None:
     figure = charts.gap_figure(
         curve,
         tolerance,
-        regressor_label=state.variable_label(pick, ctx.transforms.get(pick)),
-        outcome_label=state.variable_label(outcome["column"], outcome["transform"], "outcome"),
+        regressor_label=variable_label(pick, ctx.transforms.get(pick)),
+        outcome_label=variable_label(outcome["column"], outcome["transform"], "outcome"),
         outcome_column=outcome["column"],
     )
     chart(figure, key="gap_chart")
@@ -271,7 +284,7 @@ def curves_view(ctx: Context) -> None:
     current = transforms.get(pick, "level")
     overlay, overlay_label = None, None
     with right:
-        options = state.overlay_options(ctx.frame, pick, current) if curve["kind"] == "continuous" else []
+        options = overlay_options(ctx.frame, pick, current) if curve["kind"] == "continuous" else []
         if options:
             choices = ["none", *options]
             if ss.get("curve_overlay") not in choices:
@@ -280,22 +293,22 @@ def curves_view(ctx: Context) -> None:
                 f"Compare with another transform of {plain(pick)}",
                 choices,
                 key="curve_overlay",
-                format_func=lambda t: "no comparison" if t == "none" else state.transform_phrase(pick, t),
+                format_func=lambda t: "no comparison" if t == "none" else phrase(pick, t),
                 help="Refits the model with only this regressor's transform changed and draws its expected-value curve.",
             )
             if other != "none":
                 try:
                     with st.spinner("Refitting with the other transform…"):
-                        found = ctx.analyze({"curves"}, state.switch_transform(ctx.spec, pick, other))["curves"]
+                        found = ctx.analyze({"curves"}, switch_transform(ctx.spec, pick, other))["curves"]
                     overlay = next(c for c in found if c["column"] == pick)
-                    overlay_label = f"With {state.transform_phrase(pick, other)} instead: expected value"
+                    overlay_label = f"With {phrase(pick, other)} instead: expected value"
                 except core.FormwiseError as exc:
                     st.warning(plain(f"The model with {pick} as {other} could not be fitted: {exc}"))
-    show_naive = state.retransforms_differ(curve) and not ctx.ppml
+    show_naive = retransforms_differ(curve) and not ctx.ppml
     points = point_sample(ctx.data_id, pick, ctx.outcome, ctx.frame)
     figure = charts.curve_figure(
         curve,
-        regressor_label=state.variable_label(pick, current),
+        regressor_label=variable_label(pick, current),
         outcome_column=ctx.outcome,
         outcome_label=ctx.outcome_label,
         points=points,
@@ -305,8 +318,8 @@ def curves_view(ctx: Context) -> None:
         ppml=ctx.ppml,
     )
     chart(figure, key="curve_chart")
-    st.markdown(plain(state.curve_sentence(curve, ctx.outcome, show_naive)))
-    notes = [f"Grey dots: the data, {state.showing_words(points['shown'], points['total'])}."]
+    st.markdown(plain(curve_sentence(curve, ctx.outcome, show_naive)))
+    notes = [f"Grey dots: the data, {showing_words(points['shown'], points['total'])}."]
     if curve["kind"] == "continuous":
         notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
     if show_naive:
@@ -332,9 +345,9 @@ def checks_view(ctx: Context) -> None:
         return
     with st.spinner("Running the residual checks…"):
         result = ctx.analyze(CHECK_PARTS)
-        residuals = residual_data(ctx.data_id, state.spec_json(spec), ctx.frame)
+        residuals = ctx.analyze({"residuals"}).get("residuals")
     st.markdown("##### What the tests say")
-    for concern, sentence in state.check_sentences(result.get("diagnostics") or {}, result.get("covariance", "HC1")):
+    for concern, sentence in check_sentences(result.get("diagnostics") or {}, result.get("covariance", "HC1")):
         st.markdown(f"{':orange[**⚠**]' if concern else ':green[**✓**]'} {plain(sentence)}")
     if result.get("diagnostics"):
         exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
@@ -343,7 +356,7 @@ def checks_view(ctx: Context) -> None:
         st.caption(
             plain(
                 f"Residuals are on the scale of {ctx.outcome_label}. "
-                f"Dots: {state.showing_words(residuals['shown'], residuals['n'])}; lines and bars use every row."
+                f"Dots: {showing_words(residuals['shown'], residuals['n'])}; lines and bars use every row."
             )
         )
         fitted_label = ctx.outcome_label
@@ -362,7 +375,7 @@ def checks_view(ctx: Context) -> None:
     boxcox = result.get("boxcox")
     if boxcox:
         chart(charts.boxcox_figure(boxcox, ctx.outcome), key="boxcox_chart")
-        st.markdown(plain(state.boxcox_sentence(boxcox, ctx.outcome)))
+        st.markdown(plain(boxcox_sentence(boxcox, ctx.outcome)))
     else:
         st.info(
             plain(
@@ -404,7 +417,7 @@ def checks_view(ctx: Context) -> None:
 
 
 def distributions_section(ctx: Context) -> None:
-    items = distribution_data(ctx.data_id, state.spec_json(ctx.spec), ctx.frame)
+    items = ctx.analyze({"distributions"}).get("distributions") or []
     if not items:
         return
     st.markdown("##### Each variable, as recorded and as transformed")
@@ -418,7 +431,7 @@ def distributions_section(ctx: Context) -> None:
             with col:
                 chart(charts.distribution_figure(item), key=f"dist_{item['column']}")
                 extra = f" · {item['n_left_out']:,} rows the transform cannot take left out" if item["n_left_out"] else ""
-                words = state.skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
+                words = skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
                 st.caption(plain(f"{item['label']}: {words}{extra}"))
 
 
@@ -448,8 +461,8 @@ def compare_view(ctx: Context) -> None:
     saved = [m for m in saved_all if m["data_id"] == ctx.data_id]
     taken = [m["name"] for m in saved]
     outcome = ctx.result["outcome"]
-    suggestion = state.unique_name(
-        f"{state.variable_label(outcome['column'], outcome['transform'], 'outcome')}" + (" (PPML)" if ctx.ppml else ""), taken
+    suggestion = unique_name(
+        f"{variable_label(outcome['column'], outcome['transform'], 'outcome')}" + (" (PPML)" if ctx.ppml else ""), taken
     )
     name_col, save_col, _, pick_col, remove_col = st.columns([2.6, 1, 0.3, 2, 1], vertical_alignment="bottom")
     with name_col:
@@ -465,8 +478,8 @@ def compare_view(ctx: Context) -> None:
         st.caption(plain(ss.pop("save_message")))
 
     entries = [(m["name"], m["spec"]) for m in saved]
-    current_json = state.spec_json(ctx.spec)
-    if not any(state.spec_json(spec) == current_json for _, spec in entries):
+    current_json = spec_json(ctx.spec)
+    if not any(spec_json(spec) == current_json for _, spec in entries):
         entries.append(("current model (not saved)", ctx.spec))
     if len(saved_all) > len(saved):
         st.caption(f"{len(saved_all) - len(saved)} saved model(s) belong to another data set and are not shown.")
@@ -475,15 +488,15 @@ def compare_view(ctx: Context) -> None:
     with st.spinner("Fitting the saved models…"):
         for name, spec in entries:
             try:
-                result = ctx.analyze(set(state.COMPARE_PARTS), spec)
+                result = ctx.analyze(set(COMPARE_PARTS), spec)
             except core.FormwiseError as exc:
                 st.warning(plain(f"“{name}” could not be fitted on this data: {exc}"))
                 continue
-            rows.append(state.compare_row(name, spec, result, ctx.data_id))
+            rows.append(compare_row(name, spec, result, ctx.data_id))
             fitted[name] = result
     if not rows:
         return
-    best = state.best_by_aic(rows)
+    best = best_by_aic(rows)
     st.markdown("##### Fit, on measures that compare across outcome transforms")
     table = tables.compare_table(rows, best)
     best_rows = [i for i, r in enumerate(rows) if r["name"] in best]
@@ -524,7 +537,7 @@ def _number_format(value: float) -> str:
 def predict_view(ctx: Context) -> None:
     spec = ctx.spec
     reference = json.dumps(ctx.result.get("reference_point") or {}, sort_keys=True)
-    inputs = prediction_inputs(ctx.data_id, state.spec_json(spec), reference, ctx.frame)
+    inputs = prediction_inputs(ctx.data_id, spec_json(spec), reference, ctx.frame)
     if not inputs:
         st.info("Add a regressor to predict the outcome for chosen values.")
         return
@@ -563,12 +576,12 @@ def predict_view(ctx: Context) -> None:
                     )
     st.button("Back to the reference point", key="predict_reset", on_click=_reset_inputs, args=([i["column"] for i in inputs],))
     with st.spinner("Predicting…"):
-        result = ctx.analyze({"predictions"}, state.predict_spec(spec, values))
+        result = ctx.analyze({"predictions"}, predict_spec(spec, values))
     prediction = (result.get("predictions") or [None])[0]
     if prediction is None:
         st.info("No prediction could be made for these values.")
         return
-    outside = state.outside_words(prediction, inputs)
+    outside = outside_words(prediction, inputs)
     headline = sig(prediction.get("smearing"), 4)
     st.markdown(f"#### Expected {plain(ctx.outcome)}: {plain(headline)}" + (" ⚠" if outside else ""))
     st.table(

@@ -14,6 +14,7 @@ from core.errors import DataError, FormwiseError
 from core.inference.curves import effect_curve
 from core.inference.diagnostics import diagnostics
 from core.inference.effects import compute_effects, gap_curve
+from core.inference.residuals import residual_sample, variable_distributions
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
 from core.inference.units import needs_units_check, units_check
 from core.model.design import ColumnCache
@@ -24,7 +25,20 @@ from core.model.transforms import Log
 from core.output.readings import reading
 
 ALL_PARTS = frozenset(
-    {"terms", "fit", "effects", "gap_curves", "curves", "units_check", "diagnostics", "boxcox", "retransform", "predictions"}
+    {
+        "terms",
+        "fit",
+        "effects",
+        "gap_curves",
+        "curves",
+        "units_check",
+        "diagnostics",
+        "boxcox",
+        "retransform",
+        "predictions",
+        "residuals",
+        "distributions",
+    }
 )
 # Fewer rows than this, or than 10 per coefficient, and results are flagged (common practice, no source).
 SMALL_SAMPLE = 30
@@ -111,6 +125,10 @@ def analyze(
             )
     if "diagnostics" in wanted:
         result["diagnostics"] = None if ppml else diagnostics(design, fit)
+    if "residuals" in wanted:
+        result["residuals"] = None if ppml else residual_sample(design, fit)
+    if "distributions" in wanted:
+        result["distributions"] = variable_distributions(data, spec)
     if "boxcox" in wanted:
         result["boxcox"] = None if ppml else boxcox_profile(design.y_raw, design.X, design.weights)
     if "predictions" in wanted:

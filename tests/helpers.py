@@ -32,7 +32,7 @@ _ESCAPED = re.compile(r"\\([!-/:-@\[-`{-~])")
 
 def shown(text: str) -> str:
     """Markdown source as a reader sees it: backslash escapes and the invisible word joiners
-    that ``app.state.plain`` adds are taken out (what the screen shows, not the source)."""
+    that ``app.plain`` adds are taken out (what the screen shows, not the source)."""
     return _ESCAPED.sub(r"\1", text).replace("\u2060", "")
 
 

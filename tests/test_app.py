@@ -16,8 +16,12 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, state, tables
+from app import charts, tables
+from app.gridspec import GridError, default_spec, describe_column, grid_to_spec, resolve_outcome, spec_to_grid
+from core.inference.choices import suggest_cluster
+from core.model.transforms import variable_label
 from core.output.numbers import interval, p_value, sig
+from core.output.text import fit_sentence, model_sentence, rows_sentence
 from tests.app_support import edit_grid, show, start
 from tests.helpers import shown, shown_table
 
@@ -177,17 +181,17 @@ def test_an_upload_gets_a_default_model_and_the_demo_can_come_back() -> None:
     assert "log of drink_price" in set(coefficients(at)["Term"])
 
 
-# --- app/state.py: grid <-> spec ------------------------------------------------------------------------
+# --- app/py: grid <-> spec ------------------------------------------------------------------------
 @pytest.fixture
 def demo_frame() -> pd.DataFrame:
     return pd.read_csv(ROOT / "demo_data" / "kiosks.csv")
 
 
 def test_demo_spec_round_trips_through_the_grid(demo_frame: pd.DataFrame) -> None:
-    grid = state.spec_to_grid(DEMO_SPEC, demo_frame)
+    grid = spec_to_grid(DEMO_SPEC, demo_frame)
     assert len(grid) == demo_frame.shape[1]
     assert list(grid["column"][:8]) == ["weekly_revenue"] + [r["column"] for r in DEMO_SPEC["regressors"]]
-    spec, notes = state.grid_to_spec(grid, DEMO_SPEC["covariance"], None, DEMO_SPEC["at"])
+    spec, notes = grid_to_spec(grid, DEMO_SPEC["covariance"], None, DEMO_SPEC["at"])
     assert notes == []
     assert spec["outcome"] == DEMO_SPEC["outcome"]
     assert spec["regressors"] == DEMO_SPEC["regressors"]
@@ -195,7 +199,7 @@ def test_demo_spec_round_trips_through_the_grid(demo_frame: pd.DataFrame) -> Non
 
 
 def test_unused_rows_carry_a_suggested_transform(demo_frame: pd.DataFrame) -> None:
-    grid = state.spec_to_grid(DEMO_SPEC, demo_frame).set_index("column")
+    grid = spec_to_grid(DEMO_SPEC, demo_frame).set_index("column")
     assert grid.at["kiosk_id", "role"] == "not used"
     assert grid.at["kiosk_id", "transform"] == "category"
     assert grid.at["catering_orders", "transform"] == "ihs"  # zeros and right skew
@@ -209,12 +213,12 @@ def grid_of(rows: list[tuple[str, str, str, str, str]]) -> pd.DataFrame:
 
 
 def test_grid_needs_exactly_one_outcome() -> None:
-    with pytest.raises(state.GridError, match="no outcome"):
-        state.grid_to_spec(grid_of([("y", "not used", "log", "", ""), ("x", "regressor", "level", "", "")]))
-    with pytest.raises(state.GridError, match="more than one outcome"):
-        state.grid_to_spec(grid_of([("y", "outcome", "log", "", ""), ("x", "outcome", "level", "", "")]))
-    with pytest.raises(state.GridError, match="cannot be 'category'"):
-        state.grid_to_spec(grid_of([("y", "outcome", "category", "", "")]))
+    with pytest.raises(GridError, match="no outcome"):
+        grid_to_spec(grid_of([("y", "not used", "log", "", ""), ("x", "regressor", "level", "", "")]))
+    with pytest.raises(GridError, match="more than one outcome"):
+        grid_to_spec(grid_of([("y", "outcome", "log", "", ""), ("x", "outcome", "level", "", "")]))
+    with pytest.raises(GridError, match="cannot be 'category'"):
+        grid_to_spec(grid_of([("y", "outcome", "category", "", "")]))
 
 
 def test_grid_cells_become_spec_entries() -> None:
@@ -228,7 +232,7 @@ def test_grid_cells_become_spec_entries() -> None:
             ("size", "regressor", "quadratic", None, None),
         ]
     )
-    spec, notes = state.grid_to_spec(grid, "cluster", "region", at={"price": 4.0, "id": 3})
+    spec, notes = grid_to_spec(grid, "cluster", "region", at={"price": 4.0, "id": 3})
     assert spec["outcome"] == {"column": "y", "transform": "log"}
     assert spec["regressors"] == [
         {"column": "price", "transform": "log", "change": "+10%"},
@@ -238,17 +242,17 @@ def test_grid_cells_become_spec_entries() -> None:
     ]
     assert spec["cluster"] == "region" and spec["at"] == {"price": 4.0}
     assert len(notes) == 1 and "promo" in notes[0]
-    spec, _ = state.grid_to_spec(grid, "HC1", "region")
+    spec, _ = grid_to_spec(grid, "HC1", "region")
     assert spec["cluster"] is None
 
 
 def test_a_new_outcome_replaces_the_old_one() -> None:
     previous = grid_of([("y", "outcome", "log", "", ""), ("x", "regressor", "quadratic", "", "")])
     edited = grid_of([("y", "outcome", "log", "", ""), ("x", "outcome", "quadratic", "", "")])
-    resolved = state.resolve_outcome(edited, previous)
+    resolved = resolve_outcome(edited, previous)
     assert list(resolved["role"]) == ["not used", "outcome"]
     assert resolved.at[1, "transform"] == "level"  # quadratic is for regressors only
-    assert state.resolve_outcome(previous, previous) is previous
+    assert resolve_outcome(previous, previous) is previous
 
 
 def test_default_spec_for_a_new_file() -> None:
@@ -268,7 +272,7 @@ def test_default_spec_for_a_new_file() -> None:
             "constant": 1.0,  # no variation: left out
         }
     )
-    spec = state.default_spec(frame)
+    spec = default_spec(frame)
     assert spec["outcome"] == {"column": "revenue", "transform": "log"}
     assert {r["column"]: r["transform"] for r in spec["regressors"]} == {
         "visits": "log",
@@ -279,22 +283,22 @@ def test_default_spec_for_a_new_file() -> None:
     }
     result = core.analyze(frame, spec)
     assert result["n_obs"] == n
-    with pytest.raises(state.GridError):
-        state.default_spec(pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]}))
+    with pytest.raises(GridError):
+        default_spec(pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]}))
 
 
 def test_cluster_suggestion_and_column_words(demo_frame: pd.DataFrame) -> None:
-    assert state.suggest_cluster(demo_frame) == "kiosk_id"
-    assert state.describe_column(demo_frame["promo"]) == "0/1"
-    assert state.describe_column(demo_frame["region"]) == "text, 3 levels"
-    assert state.describe_column(pd.Series([1.0, None, -2.0, 0.0])) == "-2 to 1, 1 zero, 1 negative, 1 missing"
+    assert suggest_cluster(demo_frame) == "kiosk_id"
+    assert describe_column(demo_frame["promo"]) == "0/1"
+    assert describe_column(demo_frame["region"]) == "text, 3 levels"
+    assert describe_column(pd.Series([1.0, None, -2.0, 0.0])) == "-2 to 1, 1 zero, 1 negative, 1 missing"
 
 
 def test_plain_words_for_the_model() -> None:
-    assert state.variable_label("price", "log") == "log of price"
-    assert state.variable_label("visits", "shifted_log:1") == "log(visits + 1)"
-    assert state.variable_label("region", "category") == "region (categories)"
-    assert state.variable_label("age", "level") == "age"
+    assert variable_label("price", "log") == "log of price"
+    assert variable_label("visits", "shifted_log:1") == "log(visits + 1)"
+    assert variable_label("region", "category") == "region (categories)"
+    assert variable_label("age", "level") == "age"
     result = {
         "outcome": {"column": "y", "transform": "log"},
         "terms": [
@@ -307,9 +311,9 @@ def test_plain_words_for_the_model() -> None:
         "n_dropped": 3,
         "fit": {"r2": 0.5, "r2_original_scale": 0.4},
     }
-    assert state.model_sentence(result) == "log of y explained by log of price and region (categories)"
-    assert state.rows_sentence(result) == "1,500 rows used, 3 dropped"
-    assert state.fit_sentence(result) == " · R² 0.500 for log of y, 0.400 for y itself"
+    assert model_sentence(result) == "log of y explained by log of price and region (categories)"
+    assert rows_sentence(result) == "1,500 rows used, 3 dropped"
+    assert fit_sentence(result) == " · R² 0.500 for log of y, 0.400 for y itself"
 
 
 # --- app/tables.py and app/charts.py ---------------------------------------------------------------------

@@ -12,9 +12,11 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import intake, state
+from app import intake
+from app.gridspec import GridError, default_spec, spec_to_grid
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
+from core.model.transforms import menu_word
 from tests.app_support import edit_grid
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -58,7 +60,7 @@ def sidebar_captions(at: AppTest) -> str:
 
 
 def unescaped(text: str) -> str:
-    """Markdown text as read on screen (state.plain backslash-escapes punctuation)."""
+    """Markdown text as read on screen (plain backslash-escapes punctuation)."""
     return text.replace("\\", "")
 
 
@@ -175,9 +177,9 @@ def test_the_demo_profile_shows_the_suggestions() -> None:
     suggested = table["Suggested"].to_dict()
     for column in ("weekly_revenue", "drink_price", "foot_traffic"):
         assert suggested[column] == "log", column
-    assert suggested["ad_spend"] == state.TRANSFORM_WORDS["ihs"]
+    assert suggested["ad_spend"] == menu_word("ihs")
     for column in ("years_open", "app_order_share", "promo"):
-        assert suggested[column] == state.TRANSFORM_WORDS["level"], column
+        assert suggested[column] == menu_word("level"), column
     assert suggested["kiosk_id"] == "not used"
     assert table.at["kiosk_id", "Kind"] == "identifier"
     assert table.at["ad_spend", "Zeros"] == 647 and table.at["ad_spend", "Log drops rows"] == 647
@@ -261,7 +263,7 @@ def demo_profile() -> tuple[pd.DataFrame, dict]:
 
 def test_apply_suggestions_keeps_roles_and_skips_what_an_outcome_cannot_take(demo_profile) -> None:
     frame, profile = demo_profile
-    base = state.spec_to_grid(state.default_spec(frame, profile), frame, profile)
+    base = spec_to_grid(default_spec(frame, profile), frame, profile)
     edited = base.copy()
     edited.loc[edited["column"] == "drink_price", "transform"] = "sqrt"
     edited.loc[edited["column"] == "region", "role"] = "outcome"  # an outcome cannot be a category
@@ -277,7 +279,7 @@ def test_apply_suggestions_keeps_roles_and_skips_what_an_outcome_cannot_take(dem
 def test_lock_roles_and_locked_columns(demo_profile) -> None:
     frame, profile = demo_profile
     assert intake.locked_columns(profile) == {"kiosk_id": "identifier"}
-    g = state.spec_to_grid(state.default_spec(frame, profile), frame, profile)
+    g = spec_to_grid(default_spec(frame, profile), frame, profile)
     g.loc[g["column"] == "kiosk_id", "role"] = "regressor"
     fixed, moved = intake.lock_roles(g, {"kiosk_id": "identifier"})
     assert moved == ["kiosk_id"] and set(fixed.loc[fixed["column"] == "kiosk_id", "role"]) == {"not used"}
@@ -303,7 +305,7 @@ def test_default_spec_follows_the_advisor() -> None:
         }
     )
     profile = profile_table(frame)
-    spec = state.default_spec(frame, profile)
+    spec = default_spec(frame, profile)
     assert spec["outcome"] == {"column": "revenue", "transform": "log"}
     assert {r["column"]: r["transform"] for r in spec["regressors"]} == {
         "visits": "log",
@@ -313,17 +315,17 @@ def test_default_spec_follows_the_advisor() -> None:
         "region": "category",
     }
     assert core.analyze(frame, spec)["n_obs"] == n
-    g = state.spec_to_grid(spec, frame, profile).set_index("column")
+    g = spec_to_grid(spec, frame, profile).set_index("column")
     assert g.at["customer", "about"].startswith("identifier") and g.at["customer", "role"] == "not used"
     assert g.at["week", "transform"] == "level"  # unused rows carry the advisor's suggestion too
-    with pytest.raises(state.GridError):
+    with pytest.raises(GridError):
         names = pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]})
-        state.default_spec(names, profile_table(names))
+        default_spec(names, profile_table(names))
 
 
 def test_profile_table_rows_and_words(demo_profile) -> None:
     frame, profile = demo_profile
-    g = state.spec_to_grid(state.default_spec(frame, profile), frame, profile)
+    g = spec_to_grid(default_spec(frame, profile), frame, profile)
     table = intake.profile_frame(profile, g)
     assert list(table["Column"]) == list(g["column"])  # the grid's order
     row = table.set_index("Column").loc["region"]

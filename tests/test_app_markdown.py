@@ -1,4 +1,4 @@
-"""User text on screen stays literal text: ``app.state.plain`` and every place the app shows a
+"""User text on screen stays literal text: ``app.plain`` and every place the app shows a
 name, a level, a file name or a message that quotes them.
 
 Streamlit renders Markdown in st.markdown, st.caption, the alerts, st.table cells and headers

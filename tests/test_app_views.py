@@ -18,8 +18,15 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, state, tables, views
+from app import charts, tables, views
+from app.gridspec import grid_to_spec, spec_to_grid
+from core.inference.choices import zero_note
+from core.inference.compare import best_by_aic
+from core.inference.residuals import MAX_POINTS, residual_sample, variable_distributions
+from core.model.fitted import fit_model
+from core.model.spec import parse_spec
 from core.output.numbers import p_text, sig
+from core.output.text import boxcox_sentence, check_sentences, factor_words, skew_words, units_warning
 from tests.app_support import edit_grid, start
 from tests.helpers import shown, shown_table
 
@@ -109,7 +116,7 @@ def test_effect_curves_show_both_retransforms_the_band_and_the_data() -> None:
     # The demo's price range is widened on both sides of the data: two shaded strips, named once.
     assert len([shape for shape in figure["layout"]["shapes"] if shape.get("type") == "rect"]) == 2
     assert charts.BEYOND_NAME in names
-    assert figure_points(figure) <= state.MAX_POINTS
+    assert figure_points(figure) <= MAX_POINTS
     words = texts(at)
     assert "showing all 1,500 rows" in words
     assert "expected weekly_revenue falls from" in words
@@ -150,7 +157,7 @@ def test_curve_figure_budget_and_labels() -> None:
     # A variable that is never negative is not drawn below zero.
     assert min(x for t in fig.data if t.x is not None for x in t.x if x is not None) >= 0
     assert "Data rows (a sample)" in {t.name for t in fig.data}
-    assert charts.point_count(fig) <= state.MAX_POINTS
+    assert charts.point_count(fig) <= MAX_POINTS
     assert fig.layout.yaxis.title.text == "sales (original units)"
     # Column names are shown as text, never read as Plotly's HTML-like markup.
     fig = charts.curve_figure(
@@ -183,11 +190,11 @@ def test_units_check_waits_to_be_asked_on_large_data(monkeypatch: pytest.MonkeyP
 
 
 def test_unit_words() -> None:
-    assert state.factor_words(0.001) == ("÷1000", "in thousands")
-    assert state.factor_words(1000.0) == ("×1000", "in thousandths")
+    assert factor_words(0.001) == ("÷1000", "in thousands")
+    assert factor_words(1000.0) == ("×1000", "in thousandths")
     check = {"column": "spend", "moves": True, "max_relative_move": 0.5}
-    assert "50 %" in state.units_warning(check, "ihs")
-    assert state.units_warning({**check, "moves": False}, "ihs") is None
+    assert "50 %" in units_warning(check, "ihs")
+    assert units_warning({**check, "moves": False}, "ihs") is None
 
 
 # --- residual checks ----------------------------------------------------------------------------------------
@@ -219,7 +226,7 @@ def test_residual_checks_view_reads_the_tests_in_plain_words() -> None:
     boxcox = next(f for f in figures(at) if "Box-Cox" in f["layout"]["title"]["text"])
     labels = [a["text"] for a in boxcox["layout"]["annotations"]]
     assert "λ = 0: log" in labels and "λ = 1: level" in labels
-    assert all(figure_points(f) <= state.MAX_POINTS for f in figures(at))
+    assert all(figure_points(f) <= MAX_POINTS for f in figures(at))
 
 
 def test_check_sentences() -> None:
@@ -229,7 +236,7 @@ def test_check_sentences() -> None:
         "jarque_bera": {"p_value": 0.0001, "skewness": 1.2, "kurtosis": 6.0},
         "reset": {"p_value": 0.5},
     }
-    sentences = state.check_sentences(diagnostics, "HC1")
+    sentences = check_sentences(diagnostics, "HC1")
     assert sentences[0] == (
         True,
         "The spread of residuals changes with the regressors (Breusch–Pagan, Koenker form: p = 0.003). "
@@ -238,16 +245,14 @@ def test_check_sentences() -> None:
     assert sentences[1][0] is False and "(White: p = 0.92)" in sentences[1][1]
     assert sentences[2][0] is True and sentences[2][1].startswith("The residuals don't look normal (Jarque–Bera: p < 0.001")
     assert sentences[3] == (False, "No sign of missing curvature in the functional form (RESET: p = 0.50).")
-    assert "choose robust" in state.check_sentences(diagnostics, "classical")[0][1]
+    assert "choose robust" in check_sentences(diagnostics, "classical")[0][1]
 
 
 def test_boxcox_sentences() -> None:
-    assert (
-        "a log of y (λ = 0) is consistent" in state.boxcox_sentence({"lambda": 0.02, "ci_low": -0.1, "ci_high": 0.1}, "y").lower()
-    )
-    assert "in levels (λ = 1) is consistent" in state.boxcox_sentence({"lambda": 0.9, "ci_low": 0.8, "ci_high": 1.1}, "y")
-    assert "square root" in state.boxcox_sentence({"lambda": 0.45, "ci_low": 0.35, "ci_high": 0.55}, "y")
-    assert "stronger transform than a log" in state.boxcox_sentence({"lambda": -0.5, "ci_low": -0.7, "ci_high": -0.3}, "y")
+    assert "a log of y (λ = 0) is consistent" in boxcox_sentence({"lambda": 0.02, "ci_low": -0.1, "ci_high": 0.1}, "y").lower()
+    assert "in levels (λ = 1) is consistent" in boxcox_sentence({"lambda": 0.9, "ci_low": 0.8, "ci_high": 1.1}, "y")
+    assert "square root" in boxcox_sentence({"lambda": 0.45, "ci_low": 0.35, "ci_high": 0.55}, "y")
+    assert "stronger transform than a log" in boxcox_sentence({"lambda": -0.5, "ci_low": -0.7, "ci_high": -0.3}, "y")
 
 
 def test_residuals_match_statsmodels(demo_frame: pd.DataFrame) -> None:
@@ -259,7 +264,7 @@ def test_residuals_match_statsmodels(demo_frame: pd.DataFrame) -> None:
         "outcome": {"column": "weekly_revenue", "transform": "log"},
         "regressors": [{"column": "drink_price", "transform": "log"}, {"column": "years_open", "transform": "level"}],
     }
-    data = state.residual_sample(demo_frame, spec, limit=10**6)
+    data = residual_sample(*_fitted(demo_frame, spec), limit=10**6)
     X = sm.add_constant(np.column_stack([np.log(demo_frame["drink_price"]), demo_frame["years_open"]]))
     fit = sm.OLS(np.log(demo_frame["weekly_revenue"]), X).fit()
     np.testing.assert_allclose(data["resid"], fit.resid, rtol=1e-9, atol=1e-12)
@@ -271,7 +276,7 @@ def test_residuals_match_statsmodels(demo_frame: pd.DataFrame) -> None:
 
 
 def test_residual_charts_stay_within_the_point_budget(demo_frame: pd.DataFrame) -> None:
-    data = state.residual_sample(demo_frame, DEMO_SPEC, limit=600)
+    data = residual_sample(*_fitted(demo_frame, DEMO_SPEC), limit=600)
     assert data["n"] == 1500 and data["shown"] <= 600
     for fig in (
         charts.residuals_figure(data, "log of weekly_revenue"),
@@ -280,23 +285,19 @@ def test_residual_charts_stay_within_the_point_budget(demo_frame: pd.DataFrame) 
         charts.scale_location_figure(data, "log of weekly_revenue"),
     ):
         assert charts.point_count(fig) <= 600
-    assert (
-        state.residual_sample(
-            demo_frame, {**DEMO_SPEC, "estimator": "ppml", "outcome": {"column": "catering_orders", "transform": "level"}}
-        )
-        is None
-    )
+    ppml = {**DEMO_SPEC, "estimator": "ppml", "outcome": {"column": "catering_orders", "transform": "level"}}
+    assert core.analyze(demo_frame, ppml, parts={"residuals"})["residuals"] is None
 
 
 def test_distributions_raw_and_transformed(demo_frame: pd.DataFrame) -> None:
-    items = {i["column"]: i for i in state.variable_distributions(demo_frame, DEMO_SPEC)}
+    items = {i["column"]: i for i in variable_distributions(demo_frame, DEMO_SPEC)}
     assert set(items) == {"weekly_revenue", "drink_price", "foot_traffic", "ad_spend", "years_open", "app_order_share"}
     revenue = items["weekly_revenue"]
     assert revenue["skew_raw"] == pytest.approx(demo_frame["weekly_revenue"].skew())
     assert revenue["skew_transformed"] == pytest.approx(np.log(demo_frame["weekly_revenue"]).skew())
     assert items["years_open"]["transformed"] is None
     assert items["ad_spend"]["zeros"] == 647
-    assert "spike at 0" in state.skew_words(5.5, -0.1, 647)
+    assert "spike at 0" in skew_words(5.5, -0.1, 647)
     fig = charts.distribution_figure(revenue)
     assert len(fig.data) == 2
 
@@ -345,7 +346,7 @@ def test_ppml_is_not_ranked_against_least_squares() -> None:
         {"name": "c", "data_id": "d", "n_obs": 8, "aic": 1.0, "ppml": False},  # other rows: not comparable
         {"name": "p", "data_id": "d", "n_obs": 10, "aic": None, "ppml": True},
     ]
-    assert state.best_by_aic(rows) == {"b"}
+    assert best_by_aic(rows) == {"b"}
     full = [
         {
             **r,
@@ -419,11 +420,11 @@ def test_ppml_toggle_switches_the_estimator_for_catering_orders() -> None:
 
 
 def test_zero_note_and_ppml_spec(demo_frame: pd.DataFrame) -> None:
-    note = state.zero_note(demo_frame, "catering_orders")
+    note = zero_note(demo_frame, "catering_orders")
     assert note["zeros"] == 955 and note["ppml_possible"]
-    assert state.zero_note(demo_frame, "weekly_revenue") is None
-    grid = state.spec_to_grid({**DEMO_SPEC, "outcome": {"column": "catering_orders", "transform": "log"}}, demo_frame)
-    spec, notes = state.grid_to_spec(grid, estimator="ppml")
+    assert zero_note(demo_frame, "weekly_revenue") is None
+    grid = spec_to_grid({**DEMO_SPEC, "outcome": {"column": "catering_orders", "transform": "log"}}, demo_frame)
+    spec, notes = grid_to_spec(grid, estimator="ppml")
     assert spec["estimator"] == "ppml" and spec["outcome"]["transform"] == "level"
     assert notes and "set aside" in notes[0]
     assert core.analyze(demo_frame, spec, parts={"fit"})["n_obs"] == 1500
@@ -451,3 +452,8 @@ def test_gap_chart_subtitle_names_the_effect_on_the_outcome_itself() -> None:
 def test_view_parts_keep_slow_sections_out_of_the_refit() -> None:
     assert not views.BASE_PARTS & {"units_check", "diagnostics", "boxcox", "curves", "predictions"}
     assert views.VIEWS[:3] == ["Coefficients", "Effects of changes", "Approximation check"]
+
+
+def _fitted(frame: pd.DataFrame, spec: dict) -> tuple:
+    design, fit, _ = fit_model(frame, parse_spec(spec, frame))
+    return design, fit

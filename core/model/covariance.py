@@ -137,7 +137,7 @@ class Clustered(CovarianceKind):
 
 
 # The registry, in menu order: spec validation, the app's menu and the tables read it.
-KINDS: dict[str, CovarianceKind] = {
+COVARIANCE_KINDS: dict[str, CovarianceKind] = {
     kind.name: kind
     for kind in (
         Classical("classical", "Classical (same noise in every row)", "classical"),
@@ -168,9 +168,9 @@ def sandwich(
 ) -> tuple[np.ndarray, int]:
     """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
     ``scale`` is s² for the classical type."""
-    found = KINDS.get(kind)
+    found = COVARIANCE_KINDS.get(kind)
     if found is None:
-        raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(KINDS)}.")
+        raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
     return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale))
 
 

@@ -14,7 +14,7 @@ from typing import Any
 import pandas as pd
 
 from core.errors import SpecError
-from core.model.covariance import KINDS as COVARIANCE_KINDS
+from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import Category, Transform, parse_transform
 
 TOP_KEYS = {"outcome", "regressors", "estimator", "covariance", "cluster", "weights", "at", "name", "predict"}

@@ -455,11 +455,17 @@ def lookup(code: str, role: str = "regressor") -> Transform | None:
         return None
 
 
-def label(column: str, code: str | None, role: str = "regressor") -> str:
+def variable_label(column: str, code: str | None, role: str = "regressor") -> str:
     """Short plain name of a transformed variable ('log of price', 'IHS of spend'); the code
     itself for an unknown one, so a label never fails."""
     found = lookup((code or "level").strip(), role) or lookup((code or "level").strip(), "outcome")
     return found.label(column) if found is not None else f"{code} of {column}"
+
+
+def phrase(column: str, code: str) -> str:
+    """'price in levels', 'price as a log', 'visits as log(visits + 1)'."""
+    found = lookup(code)
+    return found.phrase(column) if found is not None else f"{column} as {code}"
 
 
 _CODE = re.compile(r"^([a-z_][a-z0-9_]*)\s*(?::\s*(.+))?$")

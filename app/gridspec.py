@@ -1,0 +1,400 @@
+"""The variables grid as data: one row per column of the table, and the spec it describes.
+
+No streamlit import here, so every rule the grid follows can be unit-tested. The grid is a
+DataFrame with the columns listed in ``GRID_COLUMNS``.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from core.inference.choices import numeric_or_none
+from core.model.transforms import menu_codes, menu_word
+from core.output.numbers import compact
+
+GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
+
+
+ROLES = ["outcome", "regressor", "not used"]
+
+
+# A default model on a wide file stays readable and quick; the user can add more in the grid.
+MAX_DEFAULT_REGRESSORS = 12
+
+
+# Text columns with more levels than this are treated as identifiers, not categories.
+MAX_DEFAULT_LEVELS = 20
+
+
+# Skewness above which a positive amount is logged by default (a common rule of thumb).
+SKEWED = 1.0
+
+
+_INDEX_NAME = re.compile(r"(^|_)(id|index|week|year|month|day|quarter|period|date|time)s?($|_)", re.IGNORECASE)
+
+
+class GridError(ValueError):
+    """The grid does not describe a model yet (e.g. no outcome); worded for the user."""
+
+
+# --- reading a column ------------------------------------------------------------------------
+def _looks_like_index(name: str, values: pd.Series) -> bool:
+    """Row counters, ids and time indices make poor outcomes and regressors by default."""
+    finite = values.dropna()
+    if finite.empty:
+        return True
+    integer = bool(np.all(np.equal(np.mod(finite.to_numpy(), 1), 0)))
+    if not integer:
+        return False
+    if _INDEX_NAME.search(name):
+        return True
+    distinct = finite.nunique()
+    return distinct > 2 and distinct == int(finite.max() - finite.min()) + 1
+
+
+def _skewness(values: pd.Series) -> float:
+    skew = values.dropna().skew()
+    return float(skew) if skew is not None and math.isfinite(skew) else 0.0
+
+
+def describe_column(series: pd.Series) -> str:
+    """What a column holds, in a few words, so the user can pick a sensible transform."""
+    missing = int(series.isna().sum())
+    tail = f", {missing} missing" if missing else ""
+    values = numeric_or_none(series)
+    if values is None:
+        levels = series.dropna().astype(str).nunique()
+        return f"text, {levels} level{'s' if levels != 1 else ''}{tail}"
+    finite = values.dropna()
+    if finite.empty:
+        return f"empty{tail}"
+    if set(finite.unique()) <= {0.0, 1.0}:
+        return f"0/1{tail}"
+    parts = [f"{compact(float(finite.min()))} to {compact(float(finite.max()))}"]
+    zeros = int((finite == 0).sum())
+    negatives = int((finite < 0).sum())
+    if zeros:
+        parts.append(f"{zeros:,} zero{'s' if zeros != 1 else ''}")
+    if negatives:
+        parts.append(f"{negatives:,} negative")
+    return ", ".join(parts) + tail
+
+
+def suggest_transform(series: pd.Series, role: str = "regressor") -> str:
+    """A first transform for a column (rules of thumb, the user can change it in the grid).
+
+    Text -> category; 0/1 -> level; strictly positive and right-skewed -> log; non-negative
+    with zeros and right-skewed -> IHS (log would drop the zero rows); otherwise level.
+    """
+    values = numeric_or_none(series)
+    if values is None:
+        return "level" if role == "outcome" else "category"
+    finite = values.dropna()
+    if finite.empty or set(finite.unique()) <= {0.0, 1.0}:
+        return "level"
+    skewed = _skewness(finite) > SKEWED
+    if skewed and (finite > 0).all():
+        return "log"
+    if skewed and (finite >= 0).all():
+        return "ihs"
+    return "level"
+
+
+def _is_outcome_candidate(name: str, series: pd.Series) -> bool:
+    values = numeric_or_none(series)
+    if values is None:
+        return False
+    finite = values.dropna()
+    return bool(len(finite) > 2 and (finite > 0).all() and finite.nunique() > 2 and not _looks_like_index(name, finite))
+
+
+def default_spec(frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> dict[str, Any]:
+    """A starting model for a newly loaded file.
+
+    Outcome: the first strictly positive numeric column that is not a counter or time index.
+    Regressors: the other numeric columns that vary, and text columns with a few levels as
+    categories, up to ``MAX_DEFAULT_REGRESSORS``. Raises ``GridError`` when no column fits
+    as an outcome. With the file's ``profile`` (``core.intake.profile.profile_table``) the advisor
+    decides: kinds pick the columns and its suggested transforms fill the grid.
+    """
+    if profile is not None:
+        return _advised_spec(frame, profile)
+    names = [str(c) for c in frame.columns]
+    outcome = next((c for c in names if _is_outcome_candidate(c, frame[c])), None)
+    if outcome is None:
+        raise GridError("the table has no numeric column with positive values to use as the outcome; check the file.")
+    regressors: list[dict[str, Any]] = []
+    for name in names:
+        if name == outcome or len(regressors) >= MAX_DEFAULT_REGRESSORS:
+            continue
+        series = frame[name]
+        values = numeric_or_none(series)
+        if values is None:
+            levels = series.dropna().astype(str).nunique()
+            if 2 <= levels <= min(MAX_DEFAULT_LEVELS, max(2, len(series) // 10)):
+                regressors.append({"column": name, "transform": "category"})
+            continue
+        finite = values.dropna()
+        if finite.nunique() < 2 or _looks_like_index(name, finite):
+            continue
+        regressors.append({"column": name, "transform": suggest_transform(series)})
+    return {
+        "outcome": {"column": outcome, "transform": suggest_transform(frame[outcome], "outcome")},
+        "regressors": regressors,
+        "estimator": "ols",
+        "covariance": "HC1",
+        "cluster": None,
+        "weights": None,
+        "at": {},
+    }
+
+
+# Kinds the advisor reads as labels of rows, not variables: kept out of the model unless the
+# user asks for them (an identifier still serves to cluster standard errors).
+LOCKED_KINDS = {"identifier": "identifier", "date": "dates"}
+
+
+# Kinds that make a sensible default outcome: amounts and measurements, not labels or 0/1.
+_OUTCOME_KINDS = ("money", "count", "continuous", "duration_years", "share", "percent")
+
+
+_NOT_BY_DEFAULT = {"time_index", "calendar_year", "constant", "empty"}
+
+
+def profile_entries(profile: dict[str, Any] | None) -> dict[str, dict[str, Any]]:
+    """The profile's column entries by column name (empty without a profile)."""
+    return {str(e["column"]): e for e in (profile or {}).get("columns") or []}
+
+
+def _advised_spec(frame: pd.DataFrame, profile: dict[str, Any]) -> dict[str, Any]:
+    """``default_spec`` following the advisor: identifiers, dates, text, constants and time
+    indices stay out; every other column enters with its suggested transform."""
+    entries = profile_entries(profile)
+    names = [str(c) for c in frame.columns]
+
+    def usable(name: str) -> bool:
+        entry = entries.get(name)
+        return bool(entry and entry.get("suggested_transform") and not set(entry.get("flags") or []) & _NOT_BY_DEFAULT)
+
+    def outcome_fits(name: str) -> bool:
+        entry = entries.get(name) or {}
+        return (
+            usable(name)
+            and entry.get("kind") in _OUTCOME_KINDS
+            and (entry.get("min") or 0) > 0
+            and (entry.get("n_distinct") or 0) > 2
+        )
+
+    outcome = next((c for c in names if outcome_fits(c)), None)
+    if outcome is None:
+        # The advisor found no amount to explain; fall back on the plain rules.
+        return default_spec(frame)
+    suggested = entries[outcome]["suggested_transform"]
+    regressors: list[dict[str, Any]] = []
+    for name in names:
+        if name == outcome or len(regressors) >= MAX_DEFAULT_REGRESSORS or not usable(name):
+            continue
+        transform = entries[name]["suggested_transform"]
+        if transform == "category" and entries[name].get("n_distinct", 0) > min(MAX_DEFAULT_LEVELS, max(2, len(frame) // 10)):
+            continue  # many levels: a dummy each would swamp a first model; the user can add it
+        regressors.append({"column": name, "transform": transform})
+    return {
+        "outcome": {"column": outcome, "transform": suggested if suggested in menu_codes("outcome") else "level"},
+        "regressors": regressors,
+        "estimator": "ols",
+        "covariance": "HC1",
+        "cluster": None,
+        "weights": None,
+        "at": {},
+    }
+
+
+# --- spec <-> grid ------------------------------------------------------------------------------
+def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> pd.DataFrame:
+    """One grid row per data column, in the file's order, filled from ``spec``. With the file's
+    ``profile``, unused rows carry the advisor's suggested transform and identifier and date
+    columns say what they are."""
+    entries = profile_entries(profile)
+    outcome = spec.get("outcome") or {}
+    by_column = {r["column"]: r for r in spec.get("regressors") or []}
+    # The model's own variables first (outcome, then regressors in the spec's order), so the
+    # grid reads like the spec; the unused columns follow in the file's order.
+    names = [str(c) for c in frame.columns]
+    first = [c for c in [outcome.get("column"), *by_column] if c in names]
+    rows = []
+    for name in first + [c for c in names if c not in first]:
+        series = frame[name]
+        row = {"column": name, "about": describe_column(series), "role": "not used", "change": "", "reference": ""}
+        advice = entries.get(name) or {}
+        if advice.get("kind") in LOCKED_KINDS:
+            row["about"] = f"{LOCKED_KINDS[advice['kind']]} · {row['about']}"
+        if name == outcome.get("column"):
+            row.update(role="outcome", transform=outcome.get("transform", "level"))
+        elif name in by_column:
+            entry = by_column[name]
+            row.update(
+                role="regressor",
+                transform=entry.get("transform", "level"),
+                change=_text(entry.get("change")),
+                reference=_text(entry.get("reference")),
+            )
+        elif advice.get("suggested_transform") in menu_codes("regressor"):
+            row["transform"] = advice["suggested_transform"]
+        else:
+            row["transform"] = suggest_transform(series)
+        rows.append(row)
+    return pd.DataFrame(rows, columns=GRID_COLUMNS).astype(object)
+
+
+def _text(value: Any) -> str:
+    """A grid cell as stripped text; blank for None, NaN and pandas' missing markers."""
+    if value is None:
+        return ""
+    try:
+        if pd.isna(value):
+            return ""
+    except (TypeError, ValueError):
+        pass
+    return str(value).strip()
+
+
+def _switch_ends(change: str) -> tuple[str, str] | None:
+    if "->" not in change:
+        return None
+    start, end = (part.strip() for part in change.split("->", 1))
+    return start, end
+
+
+def _is_number(text: str) -> bool:
+    try:
+        return math.isfinite(float(text))
+    except ValueError:
+        return False
+
+
+def grid_to_spec(
+    grid: pd.DataFrame,
+    covariance: str = "HC1",
+    cluster: str | None = None,
+    at: dict[str, Any] | None = None,
+    estimator: str = "ols",
+) -> tuple[dict[str, Any], list[str]]:
+    """The spec the grid describes, plus notes on cells that were set aside.
+
+    Raises ``GridError`` unless exactly one row is the outcome, or when the outcome has a
+    regressor-only transform. Everything else (columns, transforms, change text) is checked
+    by ``core`` so the rules live in one place. With ``estimator='ppml'`` the outcome enters
+    in levels whatever the grid says (PPML models the log of its mean itself).
+    """
+    outcomes = [r for r in grid.to_dict("records") if _text(r.get("role")) == "outcome"]
+    if not outcomes:
+        raise GridError("no outcome chosen: set the role of one column to 'outcome'.")
+    if len(outcomes) > 1:
+        names = ", ".join(_text(r["column"]) for r in outcomes)
+        raise GridError(f"more than one outcome ({names}): keep exactly one row with the role 'outcome'.")
+    outcome = outcomes[0]
+    outcome_transform = _text(outcome.get("transform")) or "level"
+    if outcome_transform in ("quadratic", "category"):
+        raise GridError(
+            f"the outcome '{_text(outcome['column'])}' cannot be '{outcome_transform}'; "
+            f"use one of: {', '.join(menu_codes('outcome'))}."
+        )
+    notes: list[str] = []
+    if estimator == "ppml" and outcome_transform != "level":
+        notes.append(
+            f"Poisson pseudo-maximum likelihood models the mean of '{_text(outcome['column'])}' directly, so the "
+            f"outcome enters in levels; the grid's '{menu_word(outcome_transform)}' is set aside."
+        )
+        outcome_transform = "level"
+    regressors: list[dict[str, Any]] = []
+    for row in grid.to_dict("records"):
+        if _text(row.get("role")) != "regressor":
+            continue
+        column = _text(row["column"])
+        transform = _text(row.get("transform")) or "level"
+        entry: dict[str, Any] = {"column": column, "transform": transform}
+        change = _text(row.get("change"))
+        if transform == "category":
+            reference = _text(row.get("reference"))
+            if reference:
+                entry["reference"] = reference
+            ends = _switch_ends(change)
+            # core reads number-like ends ('0->1') as numbers, which then do not match the
+            # text levels of a category; every level is compared with the reference instead.
+            if ends and not any(_is_number(e) for e in ends):
+                entry["change"] = change
+            elif change:
+                notes.append(
+                    f"'{column}' is a category, so its effects compare every level with the reference level; "
+                    f"the change '{change}' was set aside (write two level names, e.g. 'A->B', to pick one pair)."
+                )
+        elif change:
+            entry["change"] = change
+        regressors.append(entry)
+    used = {r["column"] for r in regressors}
+    spec: dict[str, Any] = {
+        "outcome": {"column": _text(outcome["column"]), "transform": outcome_transform},
+        "regressors": regressors,
+        "estimator": estimator,
+        "covariance": covariance,
+        "cluster": cluster if covariance == "cluster" else None,
+        "weights": None,
+        "at": {k: v for k, v in (at or {}).items() if k in used},
+    }
+    return spec, notes
+
+
+def resolve_outcome(grid: pd.DataFrame, previous: pd.DataFrame) -> pd.DataFrame:
+    """When an edit makes a second row the outcome, the new choice wins and the old outcome
+    becomes 'not used', so the user can switch outcome with one click."""
+    is_outcome = grid["role"].map(_text) == "outcome"
+    if is_outcome.sum() <= 1:
+        return grid
+    before = dict(zip(previous["column"].map(_text), previous["role"].map(_text), strict=False))
+    new = [i for i in grid.index[is_outcome] if before.get(_text(grid.at[i, "column"])) != "outcome"]
+    keep = new[-1] if new else grid.index[is_outcome][-1]
+    resolved = grid.copy()
+    for i in grid.index[is_outcome]:
+        if i != keep:
+            resolved.at[i, "role"] = "not used"
+    if resolved.at[keep, "transform"] not in menu_codes("outcome"):
+        resolved.at[keep, "transform"] = "level"
+    return resolved
+
+
+def category_levels(frame: pd.DataFrame, grid: pd.DataFrame, limit: int = 12) -> dict[str, list[str]]:
+    """Levels of the columns used as categories, so the user can type a reference level."""
+    out: dict[str, list[str]] = {}
+    for row in grid.to_dict("records"):
+        if _text(row.get("transform")) == "category" and _text(row.get("role")) == "regressor":
+            column = _text(row["column"])
+            if column in frame.columns:
+                counts = frame[column].dropna().astype(str).value_counts()
+                out[column] = counts.index[:limit].tolist() + (["…"] if len(counts) > limit else [])
+    return out
+
+
+def spec_json(spec: dict[str, Any]) -> str:
+    """The cache key of a spec: its JSON with sorted keys, without the display name."""
+    return json.dumps({k: v for k, v in spec.items() if k != "name"}, sort_keys=True)
+
+
+# --- the PPML offer for outcomes with zeros ----------------------------------------------------------
+def outcome_column(grid: pd.DataFrame) -> str | None:
+    found = [_text(r["column"]) for r in grid.to_dict("records") if _text(r.get("role")) == "outcome"]
+    return found[0] if len(found) == 1 else None
+
+
+def with_outcome_level(grid: pd.DataFrame) -> pd.DataFrame:
+    """The grid with the outcome's transform set to 'level' (what PPML needs)."""
+    out = grid.copy()
+    for i in out.index:
+        if _text(out.at[i, "role"]) == "outcome":
+            out.at[i, "transform"] = "level"
+    return out

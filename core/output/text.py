@@ -1,0 +1,290 @@
+"""The sentences Formwise says about a result: one module of words for the app and the report.
+
+Plain data in, plain text out (no Markdown, no HTML): each caller escapes for its own target
+(``core.output.escape``).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from core.model.transforms import variable_label
+from core.output.numbers import compact, p_text, signed
+
+
+def join_words(items: list[str]) -> str:
+    if len(items) <= 1:
+        return "".join(items)
+    return ", ".join(items[:-1]) + " and " + items[-1]
+
+
+def model_sentence(result: dict[str, Any]) -> str:
+    """'log of weekly_revenue explained by log of drink_price, ... and region (categories)'."""
+    outcome = result["outcome"]
+    y = variable_label(outcome["column"], outcome["transform"], "outcome")
+    seen: dict[str, str] = {}
+    for term in result.get("terms") or []:
+        if term["column"] and term["column"] not in seen:
+            seen[term["column"]] = variable_label(term["column"], term["transform"])
+    if not seen:
+        return f"{y} with no regressors (a mean only)"
+    return f"{y} explained by {join_words(list(seen.values()))}"
+
+
+def rows_sentence(result: dict[str, Any]) -> str:
+    used = result.get("n_obs", 0)
+    dropped = result.get("n_dropped", 0)
+    return f"{used:,} rows used, {dropped:,} dropped"
+
+
+def fit_sentence(result: dict[str, Any], estimator: str = "ols") -> str:
+    """' · R² 0.714 on the log scale, 0.703 for weekly_revenue itself' (empty without a fit).
+
+    R² of a transformed outcome measures the transformed scale; the original-scale R²
+    (squared correlation of y with the retransformed prediction) is the one that compares
+    across outcome transforms, so both are named. PPML has no least-squares R²; its R² is the
+    squared correlation of y with the fitted mean, and is named so.
+    """
+    fit = result.get("fit") or {}
+    r2 = fit.get("r2")
+    if r2 is None:
+        return ""
+    outcome = result["outcome"]
+    if estimator == "ppml":
+        return f" · R² {r2:.3f} (squared correlation of {outcome['column']} with its fitted mean)"
+    if outcome["transform"] == "level":
+        return f" · R² {r2:.3f}"
+    text = f" · R² {r2:.3f} for {variable_label(outcome['column'], outcome['transform'], 'outcome')}"
+    original = fit.get("r2_original_scale")
+    if original is not None:
+        text += f", {original:.3f} for {outcome['column']} itself"
+    return text
+
+
+def dropped_lines(result: dict[str, Any]) -> list[str]:
+    """One line per reason rows were left out, naming the column."""
+    return [f"{d['count']:,} row(s): {d['reason']} in '{d['column']}'" for d in result.get("dropped") or []]
+
+
+def sentence_case(text: str) -> str:
+    return text[:1].upper() + text[1:] if text else text
+
+
+# Significance level for the plain-word test sentences (common practice, no source).
+ALPHA = 0.05
+
+
+def zero_sentence(note: dict[str, Any]) -> str:
+    """'catering_orders is zero in 955 rows: a log of catering_orders would drop 955 rows (64 %).'"""
+    column = note["column"]
+    what = f"zero in {note['zeros']:,} row{'s' if note['zeros'] != 1 else ''}"
+    if note["negatives"]:
+        what += f" and negative in {note['negatives']:,}"
+    return (
+        f"{column} is {what}: a log of {column} would drop {note['dropped_by_log']:,} rows "
+        f"({note['share'] * 100:.0f} % of the data)."
+    )
+
+
+def showing_words(shown: int, total: int, what: str = "rows") -> str:
+    """'showing all 1,500 rows' or 'showing 20,000 of 1,000,000 rows (a random sample)'."""
+    if shown >= total:
+        return f"showing all {total:,} {what}"
+    return f"showing {shown:,} of {total:,} {what} (a random sample)"
+
+
+# --- units check (IHS and shifted-log regressors) -----------------------------------------------------
+UNIT_WORDS = {
+    0.001: ("÷1000", "in thousands"),
+    0.01: ("÷100", "in hundreds"),
+    0.1: ("÷10", "in tens"),
+    1.0: ("as recorded", "as in the data"),
+    10.0: ("×10", "in tenths"),
+    100.0: ("×100", "in hundredths"),
+    1000.0: ("×1000", "in thousandths"),
+}
+
+
+def factor_words(factor: float) -> tuple[str, str]:
+    """('÷1000', 'in thousands') for 0.001; a generic '×f' for factors not listed."""
+    for known, words in UNIT_WORDS.items():
+        if math.isclose(factor, known, rel_tol=1e-9):
+            return words
+    return f"×{factor:g}", f"multiplied by {factor:g}"
+
+
+def units_warning(check: dict[str, Any], transform: str | None) -> str | None:
+    """The plain warning when the effect moves with the units (None when it barely moves)."""
+    if not check.get("moves"):
+        return None
+    column = check["column"]
+    largest = check.get("max_relative_move") or 0.0
+    kind = variable_label(column, transform)
+    return (
+        f"The effect of {column} changes by up to {largest * 100:.0f} % when {column} is measured in other units. "
+        f"With {kind} the result depends on the units of measurement, so report the units you used, or use a log "
+        f"of {column} if it has no zeros (a log's effects do not depend on units)."
+    )
+
+
+def skew_words(before: float | None, after: float | None, zeros: int = 0) -> str:
+    """'skewness 3.10 → 0.05' with a word on what changed; a transform that keeps zeros leaves
+    them as a spike at zero, which a skewness near 0 does not show."""
+    if before is None:
+        return "skewness not available"
+    if after is None:
+        return f"skewness {signed(before)}"
+    text = f"skewness {signed(before)} → {signed(after)}"
+    if abs(after) < 0.5 <= abs(before):
+        text += " (the transform tamed the long tail)"
+    elif abs(after) > abs(before) + 0.25:
+        text += " (more skewed than before)"
+    if zeros:
+        text += f"; its {zeros:,} zeros stay a separate spike at 0"
+    return text
+
+
+def check_sentences(diagnostics: dict[str, Any], covariance: str = "HC1") -> list[tuple[bool, str]]:
+    """One plain sentence per residual test, with whether it raises a concern (p < ALPHA)."""
+    out: list[tuple[bool, str]] = []
+    robust = covariance != "classical"
+    bp = diagnostics.get("breusch_pagan") or {}
+    p = bp.get("p_value")
+    if p is not None and p < ALPHA:
+        text = f"The spread of residuals changes with the regressors (Breusch–Pagan, Koenker form: {p_text(p)})."
+        text += (
+            " The robust standard errors chosen in the sidebar allow for this."
+            if robust
+            else " Classical standard errors assume it does not: choose robust (HC) errors in the sidebar."
+        )
+        out.append((True, text))
+    elif p is not None:
+        out.append(
+            (
+                False,
+                f"No sign that the spread of residuals changes with the regressors (Breusch–Pagan, Koenker form: {p_text(p)}).",
+            )
+        )
+    white = diagnostics.get("white") or {}
+    p = white.get("p_value")
+    if p is not None and p < ALPHA:
+        out.append(
+            (True, f"The spread of residuals changes with the regressors, their squares or products (White: {p_text(p)}).")
+        )
+    elif p is not None:
+        out.append(
+            (False, f"No sign that the spread changes with the regressors, their squares or products (White: {p_text(p)}).")
+        )
+    jb = diagnostics.get("jarque_bera") or {}
+    p = jb.get("p_value")
+    shape = ""
+    if jb.get("skewness") is not None and jb.get("kurtosis") is not None:
+        shape = f"; skewness {jb['skewness']:.2f}, kurtosis {jb['kurtosis']:.2f} where a normal curve has 0 and 3"
+    if p is not None and p < ALPHA:
+        out.append(
+            (
+                True,
+                f"The residuals don't look normal (Jarque–Bera: {p_text(p)}{shape}). Coefficients and robust intervals do "
+                "not need normal residuals in large samples, but the prediction interval and the normal-theory "
+                "retransform lean on it; the smearing retransform does not.",
+            )
+        )
+    elif p is not None:
+        out.append((False, f"The residuals look normal (Jarque–Bera: {p_text(p)}{shape})."))
+    reset = diagnostics.get("reset") or {}
+    p = reset.get("p_value")
+    if p is not None and p < ALPHA:
+        out.append(
+            (
+                True,
+                f"The functional form may be missing curvature (RESET: {p_text(p)}): try another transform, a quadratic "
+                "term, or a regressor that is left out.",
+            )
+        )
+    elif p is not None:
+        out.append((False, f"No sign of missing curvature in the functional form (RESET: {p_text(p)})."))
+    return out
+
+
+def boxcox_sentence(boxcox: dict[str, Any], column: str) -> str:
+    """What the Box-Cox profile suggests for the outcome, in words."""
+    lam, low, high = boxcox.get("lambda"), boxcox.get("ci_low"), boxcox.get("ci_high")
+    if lam is None:
+        return f"The Box-Cox profile for {column} could not be computed."
+    if low is None or high is None:
+        return f"The best power for {column} is λ = {signed(lam)}; its 95 % interval is open on one side."
+    head = f"The best power for {column} is λ = {signed(lam)} (95 % interval {signed(low)} to {signed(high)}). "
+
+    def inside(value: float) -> bool:
+        return low <= value <= high
+
+    if inside(0) and inside(1):
+        return (
+            head + "Both a log (λ = 0) and levels (λ = 1) are consistent with the data; the profile cannot choose between them."
+        )
+    if inside(0):
+        return head + f"A log of {column} (λ = 0) is consistent with the data; levels (λ = 1) are not."
+    if inside(1):
+        return head + f"{column} in levels (λ = 1) is consistent with the data; a log (λ = 0) is not."
+    if inside(0.5):
+        return head + f"Neither a log nor levels: a square root of {column} (λ = 0.5) is consistent with the data."
+    if high < 0:
+        return head + f"The data ask for a stronger transform than a log (λ below 0), so even log of {column} leaves some skew."
+    if low > 1:
+        return head + f"The data ask for a power above 1: {column} is skewed to the left, and a log would make it worse."
+    side = "log" if abs(lam) < abs(lam - 1) else "levels"
+    return head + f"Neither a log nor levels fits best; the best power lies between them, closer to {side}."
+
+
+def outside_words(prediction: dict[str, Any], inputs: list[dict[str, Any]]) -> list[str]:
+    """'drink_price = 8 is outside the observed 3 to 6.29' for each flagged value."""
+    ranges = {i["column"]: (i.get("low"), i.get("high")) for i in inputs if i["kind"] == "number"}
+    out = []
+    for column in prediction.get("outside_observed_range") or []:
+        value = (prediction.get("values") or {}).get(column)
+        low, high = ranges.get(column, (None, None))
+        where = f" (observed {compact(low)} to {compact(high)})" if low is not None and high is not None else ""
+        shown = compact(float(value)) if isinstance(value, (int, float)) else str(value)
+        out.append(f"{column} = {shown} is outside the values in the data{where}")
+    return out
+
+
+def curve_sentence(curve: dict[str, Any], outcome: str, show_naive: bool) -> str:
+    """What an effect curve says, in one or two sentences."""
+
+    def floats(key: str) -> np.ndarray:
+        return np.array([np.nan if v is None else float(v) for v in curve.get(key) or []], dtype=float)
+
+    smear, naive = floats("smearing"), floats("naive")
+    column = curve["column"]
+    if curve["kind"] == "levels":
+        parts = [
+            f"{v if not isinstance(v, float) else f'{column} = {v:g}'}: {compact(s)}"
+            for v, s in zip(curve["x"], smear, strict=True)
+        ]
+        text = f"Expected {outcome} with the other regressors at their reference values: " + "; ".join(parts) + "."
+    else:
+        x = floats("x")
+        low, high = float(curve["observed_min"]), float(curve["observed_max"])
+        start, end = float(np.interp(low, x, smear)), float(np.interp(high, x, smear))
+        change = (end / start - 1) * 100 if start else float("nan")
+        move = "rises" if end > start else "falls"
+        text = (
+            f"Across the observed {column} ({compact(low)} to {compact(high)}), expected {outcome} {move} from "
+            f"{compact(start)} to {compact(end)}"
+            + (f" ({change:+.0f} %)".replace("-", "\u2212") if math.isfinite(change) else "")
+            + ", the other regressors held at their reference values."
+        )
+    if show_naive:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            gap = float(np.nanmean(naive / smear - 1)) * 100
+        if math.isfinite(gap):
+            side = "below" if gap < 0 else "above"
+            text += (
+                f" The naive back-transform lies on average {abs(gap):.1f} % {side} the expected value: it tracks "
+                f"something closer to the median of {outcome}, not its mean."
+            )
+    return text
