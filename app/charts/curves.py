@@ -1,0 +1,263 @@
+"""Effect curves: the predicted outcome on its original scale across a regressor."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import plotly.graph_objects as go
+
+from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, style
+from core.output.escape import html
+
+# --- effect curves ---------------------------------------------------------------------------------------
+SMEARING_NAME = "Smearing (Duan) — expected value"
+
+
+NAIVE_NAME = "Naive back-transform — closer to the median"
+
+
+def _model_words(outcome_label: str, ppml: bool) -> str:
+    return f"PPML model of the mean of {outcome_label}" if ppml else f"Model of {outcome_label}"
+
+
+def _y_range(curves: list[np.ndarray], points: np.ndarray) -> tuple[float, float]:
+    """Room for every curve and band, and for the data points up to their 1st and 99th
+    percentiles, so a few extreme rows do not flatten the curve."""
+    values = [c[np.isfinite(c)] for c in curves]
+    finite = np.concatenate([v for v in values if v.size] or [np.array([0.0])])
+    low, high = float(finite.min()), float(finite.max())
+    pts = points[np.isfinite(points)] if points.size else points
+    if pts.size:
+        low = min(low, float(np.percentile(pts, 1)))
+        high = max(high, float(np.percentile(pts, 99)))
+    pad = 0.05 * ((high - low) or abs(high) or 1.0)
+    return low - pad, high + pad
+
+
+def curve_figure(
+    curve: dict[str, Any],
+    *,
+    regressor_label: str,
+    outcome_column: str,
+    outcome_label: str,
+    points: dict[str, Any] | None = None,
+    show_naive: bool = True,
+    overlay: dict[str, Any] | None = None,
+    overlay_label: str | None = None,
+    ppml: bool = False,
+) -> go.Figure:
+    """The predicted outcome on its original scale across one regressor's range (others at the
+    reference point): the CI band, the smearing and the naive retransform, a light sample of the
+    data, the stretches beyond the observed data shaded, and optionally the smearing curve of
+    another transform of the same regressor."""
+    regressor_label, outcome_column, outcome_label = html(regressor_label), html(outcome_column), html(outcome_label)
+    if curve["kind"] == "levels":
+        return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml)
+    column = html(curve["column"])
+    x = floats(curve["x"])
+    smear, naive = floats(curve["smearing"]), floats(curve["naive"])
+    low, high = floats(curve["ci_low"]), floats(curve["ci_high"])
+    observed_min, observed_max = float(curve["observed_min"]), float(curve["observed_max"])
+    # A variable that is never negative is not drawn below zero, even where its transform allows it.
+    keep = x >= 0 if observed_min >= 0 else np.ones_like(x, dtype=bool)
+    x, smear, naive, low, high = (a[keep] for a in (x, smear, naive, low, high))
+
+    fig = go.Figure()
+    pts_y = np.array([], dtype=float)
+    if points and points.get("x"):
+        pts_y = floats(points["y"])
+        fig.add_trace(
+            go.Scatter(
+                x=points["x"],
+                y=points["y"],
+                mode="markers",
+                showlegend=False,
+                marker={"color": GREY, "size": 5, "opacity": 0.28},
+                hovertemplate=f"{column} %{{x:.4g}}<br>{outcome_column} %{{y:.4g}}<extra>data</extra>",
+            )
+        )
+        legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    fig.add_trace(go.Scatter(x=x, y=high, mode="lines", line={"width": 0}, showlegend=False, hoverinfo="skip"))
+    fig.add_trace(
+        go.Scatter(
+            x=x,
+            y=low,
+            mode="lines",
+            line={"width": 0},
+            fill="tonexty",
+            fillcolor="rgba(86, 180, 233, 0.30)",
+            name="95 % confidence band",
+            hoverinfo="skip",
+        )
+    )
+    if ppml:
+        main_name = "Predicted mean (PPML models it directly)"
+    elif show_naive:
+        main_name = SMEARING_NAME
+    else:
+        main_name = f"Predicted {outcome_column} (expected value)"
+    fig.add_trace(
+        go.Scatter(
+            x=x,
+            y=smear,
+            mode="lines",
+            name=main_name,
+            line={"color": BLUE, "width": 3.5},
+            hovertemplate=f"{column} %{{x:.4g}}<br>expected {outcome_column} %{{y:,.4g}}<extra></extra>",
+        )
+    )
+    curves = [smear, low, high]
+    if show_naive:
+        fig.add_trace(
+            go.Scatter(
+                x=x,
+                y=naive,
+                mode="lines",
+                name=NAIVE_NAME,
+                line={"color": ORANGE, "width": 3, "dash": "dash"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>naive %{{y:,.4g}}<extra></extra>",
+            )
+        )
+        curves.append(naive)
+    if overlay is not None:
+        ox = floats(overlay["x"])
+        oy = floats(overlay["smearing"])
+        okeep = ox >= 0 if observed_min >= 0 else np.ones_like(ox, dtype=bool)
+        fig.add_trace(
+            go.Scatter(
+                x=ox[okeep],
+                y=oy[okeep],
+                mode="lines",
+                name=html(overlay_label or "Other transform"),
+                line={"color": VERMILLION, "width": 3, "dash": "dashdot"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>%{{y:,.4g}}<extra>other transform</extra>",
+            )
+        )
+        curves.append(oy[okeep])
+
+    x_low, x_high = float(np.nanmin(x)), float(np.nanmax(x))
+    shaded = False
+    for left, right in ((x_low, observed_min), (observed_max, x_high)):
+        if right - left <= 1e-12 * max(1.0, abs(right)):
+            continue
+        fig.add_vrect(x0=left, x1=right, fillcolor=SHADE, opacity=0.16, line_width=0, layer="below")
+        shaded = True
+    if shaded:
+        # Named in the legend rather than written in the strips: a strip can be too narrow
+        # for a label on a half-slide export.
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=BEYOND_NAME,
+                marker={"symbol": "square", "size": 16, "color": "rgba(154, 165, 177, 0.35)"},
+                hoverinfo="skip",
+            )
+        )
+
+    y_low, y_high = _y_range(curves, pts_y)
+    style(
+        fig,
+        title=f"Predicted {outcome_column} as {column} varies",
+        subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
+        x_title=f"{column} (as recorded)",
+        y_title=f"{outcome_column} (original units)",
+        height=660,
+    )
+    fig.update_layout(
+        xaxis={"range": [x_low - 0.01 * (x_high - x_low), x_high + 0.01 * (x_high - x_low)]},
+        yaxis={"range": [y_low, y_high]},
+    )
+    return fig
+
+
+def _levels_figure(
+    curve: dict[str, Any],
+    regressor_label: str,
+    outcome_column: str,
+    outcome_label: str,
+    points: dict[str, Any] | None,
+    show_naive: bool,
+    ppml: bool,
+) -> go.Figure:
+    """Categories and 0/1 variables: one point per level with its 95 % interval as error bars,
+    the data as a light jittered strip behind."""
+    column = html(curve["column"])
+    levels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in curve["x"]]
+    ticks = [html(f"{lv} (reference)" if i == 0 and len(levels) > 2 else lv) for i, lv in enumerate(levels)]
+    positions = np.arange(len(levels), dtype=float)
+    smear, naive = floats(curve["smearing"]), floats(curve["naive"])
+    low, high = floats(curve["ci_low"]), floats(curve["ci_high"])
+    fig = go.Figure()
+    pts_y = np.array([], dtype=float)
+    if points and points.get("x"):
+        labels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in points["x"]]
+        where = {lv: i for i, lv in enumerate(levels)}
+        pairs = [(where[lv], y) for lv, y in zip(labels, points["y"], strict=True) if lv in where]
+        if pairs:
+            jitter = np.random.default_rng(0).uniform(-0.28, 0.28, len(pairs))
+            px = np.array([p for p, _ in pairs], dtype=float) + jitter
+            pts_y = np.array([y for _, y in pairs], dtype=float)
+            fig.add_trace(
+                go.Scatter(
+                    x=px,
+                    y=pts_y,
+                    mode="markers",
+                    showlegend=False,
+                    marker={"color": GREY, "size": 5, "opacity": 0.25},
+                    hovertemplate=f"{outcome_column} %{{y:.4g}}<extra>data</extra>",
+                )
+            )
+            legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    main_name = (
+        "Predicted mean (PPML)" if ppml else (SMEARING_NAME if show_naive else f"Predicted {outcome_column} (expected value)")
+    )
+    offset = 0.1 if show_naive else 0.0
+    fig.add_trace(
+        go.Scatter(
+            x=positions - offset,
+            y=smear,
+            mode="markers",
+            name=main_name + " with 95 % interval",
+            marker={"color": BLUE, "size": 15, "line": {"color": "white", "width": 1.5}},
+            error_y={
+                "type": "data",
+                "symmetric": False,
+                "array": high - smear,
+                "arrayminus": smear - low,
+                "color": BLUE,
+                "thickness": 3,
+                "width": 10,
+            },
+            hovertemplate="%{y:,.4g}<extra>expected value</extra>",
+        )
+    )
+    curves = [smear, low, high]
+    if show_naive:
+        fig.add_trace(
+            go.Scatter(
+                x=positions + offset,
+                y=naive,
+                mode="markers",
+                name=NAIVE_NAME,
+                marker={"color": ORANGE, "size": 14, "symbol": "diamond", "line": {"color": "white", "width": 1.5}},
+                hovertemplate="%{y:,.4g}<extra>naive</extra>",
+            )
+        )
+        curves.append(naive)
+    y_low, y_high = _y_range(curves, pts_y)
+    style(
+        fig,
+        title=f"Predicted {outcome_column} by {column}",
+        subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
+        x_title=column,
+        y_title=f"{outcome_column} (original units)",
+        height=640,
+    )
+    fig.update_layout(
+        xaxis={"tickmode": "array", "tickvals": positions.tolist(), "ticktext": ticks, "range": [-0.6, len(levels) - 0.4]},
+        yaxis={"range": [y_low, y_high]},
+    )
+    return fig
