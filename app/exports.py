@@ -17,7 +17,7 @@ import plotly.graph_objects as go
 import streamlit as st
 
 import core
-from app import charts
+from app import charts, intake
 from app.gridspec import spec_json
 from core.inference.choices import zero_note
 from core.model.spec import parse_spec
@@ -197,8 +197,6 @@ def _spec_uploaded(use_data: Callable[..., None]) -> None:
         return
     use_data(data["id"], data["name"], data["frame"], spec, data.get("notes"), data.get("profile"))
     used = {spec["outcome"]["column"], *(r["column"] for r in spec.get("regressors") or [])}
-    from app import intake  # here, not at the top: intake draws its charts through this module
-
     if used & set(intake.locked_columns(data.get("profile"))):
         # The intake panel keeps identifier and date columns out of the grid unless unlocked.
         ss[intake.UNLOCK_KEY] = True

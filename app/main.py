@@ -21,7 +21,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import cautions, exports, intake, views
+from app import cautions, context, exports, intake, views
 from app.gridspec import (
     ROLES,
     GridError,
@@ -274,7 +274,7 @@ def show_results(good: dict[str, Any]) -> None:
         "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
         "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
     )
-    views.show(views.Context(result=result, spec=spec, frame=good["frame"], data_id=good["data_id"], data_name=data_name))
+    views.show(context.Context(result=result, spec=spec, frame=good["frame"], data_id=good["data_id"], data_name=data_name))
     cautions.section(result)
 
 
@@ -296,7 +296,7 @@ def main() -> None:
     estimator = zeros_offer(grid)
     try:
         spec, notes = grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"), estimator)
-        result = views.run_model(ss.data["id"], spec_json(spec), tuple(sorted(views.BASE_PARTS)), frame)
+        result = context.run_model(ss.data["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
         ss.last_good = {
             "result": result,
             "spec": spec,

@@ -12,7 +12,7 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import intake
+from app import intake, profiles_view
 from app.gridspec import GridError, default_spec, spec_to_grid
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
@@ -65,7 +65,7 @@ def unescaped(text: str) -> str:
 
 
 def profile_view(at: AppTest) -> pd.DataFrame:
-    at.segmented_control(key="view").set_value(intake.VIEW_NAME).run()
+    at.segmented_control(key="view").set_value(profiles_view.VIEW_NAME).run()
     assert not at.exception, at.exception
     found = [d.value for d in at.dataframe if "Suggested" in d.value.columns]
     assert found, "no column profiles table"
@@ -326,7 +326,7 @@ def test_default_spec_follows_the_advisor() -> None:
 def test_profile_table_rows_and_words(demo_profile) -> None:
     frame, profile = demo_profile
     g = spec_to_grid(default_spec(frame, profile), frame, profile)
-    table = intake.profile_frame(profile, g)
+    table = profiles_view.profile_frame(profile, g)
     assert list(table["Column"]) == list(g["column"])  # the grid's order
     row = table.set_index("Column").loc["region"]
     assert row["Kind"] == "categories" and row["Shape"] == [750, 450, 300] and pd.isna(row["Min"])

@@ -18,7 +18,7 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, tables, views
+from app import charts, context, tables, views
 from app.gridspec import grid_to_spec, spec_to_grid
 from core.inference.choices import zero_note
 from core.inference.compare import best_by_aic
@@ -450,7 +450,7 @@ def test_gap_chart_subtitle_names_the_effect_on_the_outcome_itself() -> None:
 
 
 def test_view_parts_keep_slow_sections_out_of_the_refit() -> None:
-    assert not views.BASE_PARTS & {"units_check", "diagnostics", "boxcox", "curves", "predictions"}
+    assert not context.BASE_PARTS & {"units_check", "diagnostics", "boxcox", "curves", "predictions"}
     assert views.VIEWS[:3] == ["Coefficients", "Effects of changes", "Approximation check"]
 
 

@@ -1,0 +1,103 @@
+"""The model on screen and the work behind every view: fits cached by (data id, spec JSON, parts),
+so a view computes only the sections it draws and a closed view costs nothing on a refit."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from typing import Any
+
+import pandas as pd
+import streamlit as st
+
+import core
+from app import exports
+from app.gridspec import spec_json
+from core.inference.choices import (
+    predict_inputs,
+    sample_points,
+)
+from core.model.transforms import variable_label
+from core.output.escape import plain
+from core.output.text import (
+    sentence_case,
+)
+
+# What every refit computes: the header, the coefficients, the effects and the gap curves.
+BASE_PARTS = frozenset({"terms", "fit", "effects", "gap_curves"})
+
+
+CHECK_PARTS = frozenset({"terms", "diagnostics", "boxcox"})
+
+
+# --- cached work ----------------------------------------------------------------------------------
+@st.cache_resource(max_entries=4, show_spinner=False)
+def column_cache(data_id: str) -> core.ColumnCache:
+    """Converted and transformed columns of one loaded table, shared by its refits: a toggle
+    recomputes only the column it changed. The loaded frame is never edited in place."""
+    return core.ColumnCache()
+
+
+@st.cache_data(max_entries=64, show_spinner=False)
+def run_model(data_id: str, spec_json: str, parts: tuple[str, ...], _frame: pd.DataFrame) -> dict[str, Any]:
+    """Fit once per (data, spec, parts): the frame itself is not hashed, its identity is."""
+    return core.analyze(_frame, json.loads(spec_json), parts=set(parts), columns=column_cache(data_id))
+
+
+@st.cache_data(max_entries=32, show_spinner=False)
+def point_sample(data_id: str, x_column: str, y_column: str, _frame: pd.DataFrame) -> dict[str, Any]:
+    return sample_points(_frame, x_column, y_column)
+
+
+@st.cache_data(max_entries=16, show_spinner=False)
+def prediction_inputs(data_id: str, spec_json: str, reference_json: str, _frame: pd.DataFrame) -> list[dict[str, Any]]:
+    return predict_inputs(_frame, json.loads(spec_json), json.loads(reference_json))
+
+
+@dataclass
+class Context:
+    """The model on screen: its base result, spec and the data it was fitted to."""
+
+    result: dict[str, Any]
+    spec: dict[str, Any]
+    frame: pd.DataFrame
+    data_id: str
+    data_name: str
+
+    def analyze(self, parts: frozenset[str] | set[str], spec: dict[str, Any] | None = None) -> dict[str, Any]:
+        chosen = self.spec if spec is None else spec
+        return run_model(self.data_id, spec_json(chosen), tuple(sorted(parts)), self.frame)
+
+    @property
+    def ppml(self) -> bool:
+        return (self.spec.get("estimator") or "ols") == "ppml"
+
+    @property
+    def transforms(self) -> dict[str, str]:
+        return {r["column"]: r.get("transform", "level") for r in self.spec.get("regressors", [])}
+
+    @property
+    def outcome(self) -> str:
+        return self.result["outcome"]["column"]
+
+    @property
+    def outcome_label(self) -> str:
+        outcome = self.result["outcome"]
+        return variable_label(outcome["column"], outcome["transform"], "outcome")
+
+
+# Width of a chart in one of two side-by-side columns at a 1440 px window: its text is
+# wrapped to fit that column.
+HALF_COLUMN = 500
+
+
+def chart(figure: Any, key: str, screen_width: int | None = None) -> None:
+    exports.chart(figure, key, screen_width)
+
+
+def failed(exc: Exception) -> None:
+    """A view's own computation failed: say so in the view, keep the rest of the page."""
+    if isinstance(exc, core.FormwiseError):
+        st.error(plain(sentence_case(str(exc))))
+    else:
+        st.error(plain(f"Formwise could not compute this view because of an internal problem ({type(exc).__name__}: {exc})."))
