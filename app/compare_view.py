@@ -9,7 +9,7 @@ from typing import Any
 import streamlit as st
 
 import core
-from app import exports, tables
+from app import exports, keys, tables
 from app.context import Context, prediction_inputs
 from app.gridspec import spec_json
 from core.inference.choices import (
@@ -28,26 +28,26 @@ from core.output.text import (
 # --- compare models ----------------------------------------------------------------------------------------
 def _save_model(spec: dict[str, Any], data_id: str, suggestion: str) -> None:
     ss = st.session_state
-    saved = ss.setdefault("saved_models", [])
-    name = (ss.get("save_name") or "").strip() or suggestion
+    saved = ss.setdefault(keys.SAVED_MODELS, [])
+    name = (ss.get(keys.SAVE_NAME) or "").strip() or suggestion
     replaced = [m for m in saved if m["name"] == name and m["data_id"] == data_id]
     for old in replaced:
         saved.remove(old)
     saved.append({"name": name, "spec": {**spec, "name": name}, "data_id": data_id})
-    ss.save_message = f"Replaced the saved model “{name}”." if replaced else f"Saved as “{name}”."
-    ss.save_name = ""
+    ss[keys.SAVE_MESSAGE] = f"Replaced the saved model “{name}”." if replaced else f"Saved as “{name}”."
+    ss[keys.SAVE_NAME] = ""
 
 
 def _remove_model(data_id: str) -> None:
     ss = st.session_state
-    name = ss.get("remove_pick")
-    ss.saved_models = [m for m in ss.get("saved_models", []) if not (m["name"] == name and m["data_id"] == data_id)]
-    ss.save_message = f"Removed “{name}”."
+    name = ss.get(keys.REMOVE_PICK)
+    ss[keys.SAVED_MODELS] = [m for m in ss.get(keys.SAVED_MODELS, []) if not (m["name"] == name and m["data_id"] == data_id)]
+    ss[keys.SAVE_MESSAGE] = f"Removed “{name}”."
 
 
 def compare_view(ctx: Context) -> None:
     ss = st.session_state
-    saved_all = ss.get("saved_models", [])
+    saved_all = ss.get(keys.SAVED_MODELS, [])
     saved = [m for m in saved_all if m["data_id"] == ctx.data_id]
     taken = [m["name"] for m in saved]
     outcome = ctx.result["outcome"]
@@ -56,16 +56,16 @@ def compare_view(ctx: Context) -> None:
     )
     name_col, save_col, _, pick_col, remove_col = st.columns([2.6, 1, 0.3, 2, 1], vertical_alignment="bottom")
     with name_col:
-        st.text_input("Save this model as…", key="save_name", placeholder=suggestion, max_chars=60)
+        st.text_input("Save this model as…", key=keys.SAVE_NAME, placeholder=suggestion, max_chars=60)
     with save_col:
         st.button("Save model", key="save_model", on_click=_save_model, args=(ctx.spec, ctx.data_id, suggestion), width="stretch")
     if saved:
         with pick_col:
-            st.selectbox("Saved models", taken, key="remove_pick")
+            st.selectbox("Saved models", taken, key=keys.REMOVE_PICK)
         with remove_col:
             st.button("Remove", key="remove_model", on_click=_remove_model, args=(ctx.data_id,), width="stretch")
-    if ss.get("save_message"):
-        st.caption(plain(ss.pop("save_message")))
+    if ss.get(keys.SAVE_MESSAGE):
+        st.caption(plain(ss.pop(keys.SAVE_MESSAGE)))
 
     entries = [(m["name"], m["spec"]) for m in saved]
     current_json = spec_json(ctx.spec)

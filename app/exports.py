@@ -17,7 +17,7 @@ import plotly.graph_objects as go
 import streamlit as st
 
 import core
-from app import charts, intake
+from app import charts, intake, keys
 from app.gridspec import spec_json
 from core.inference.choices import zero_note
 from core.model.spec import parse_spec
@@ -27,12 +27,6 @@ from core.output.escape import plain
 from core.output.report import build_report
 from core.output.text import model_sentence
 
-# Session keys of the export choices (sidebar).
-SIZE_KEY = "export_size"
-FORMAT_KEY = "export_format"
-CAPTION_KEY = "export_caption"
-# The caption for the charts of this run: set by the views, read by ``chart``.
-CHART_CAPTION_KEY = "_chart_caption"
 # fmt: (button words, file extension, MIME type)
 TABLE_FORMATS = {
     "csv": ("CSV", "csv", "text/csv"),
@@ -117,9 +111,9 @@ def chart(figure: go.Figure, key: str, screen_width: int | None = None) -> None:
     source line under it when asked for. ``screen_width``: about how wide the column showing
     it is (pixels at a 1440 px window), so its text is wrapped to fit there too."""
     ss = st.session_state
-    size = ss.get(SIZE_KEY) or "full"
-    fmt = ss.get(FORMAT_KEY) or "png"
-    caption = ss.get(CHART_CAPTION_KEY) if ss.get(CAPTION_KEY) else None
+    size = ss.get(keys.EXPORT_SIZE) or "full"
+    fmt = ss.get(keys.EXPORT_FORMAT) or "png"
+    caption = ss.get(keys.CHART_CAPTION) if ss.get(keys.EXPORT_CAPTION) else None
     st.plotly_chart(
         charts.for_slide(figure, size, caption, screen_width),
         theme=None,
@@ -132,28 +126,28 @@ def set_chart_caption(data_id: str, data_name: str, spec: dict[str, Any], result
     """The source line for this run's charts: data file, rows used and the model's name (its
     saved name, else the model in words)."""
     ss = st.session_state
-    name = model_name(spec, saved_specs(ss.get("saved_models") or [], data_id)) or model_sentence(result)
-    ss[CHART_CAPTION_KEY] = charts.caption_text(data_name, result.get("n_obs"), name)
+    name = model_name(spec, saved_specs(ss.get(keys.SAVED_MODELS) or [], data_id)) or model_sentence(result)
+    ss[keys.CHART_CAPTION] = charts.caption_text(data_name, result.get("n_obs"), name)
 
 
 def chart_settings() -> None:
-    if st.session_state.get(SIZE_KEY) not in charts.SLIDE_SIZES:
-        st.session_state[SIZE_KEY] = "full"
+    if st.session_state.get(keys.EXPORT_SIZE) not in charts.SLIDE_SIZES:
+        st.session_state[keys.EXPORT_SIZE] = "full"
     st.selectbox(
         "Chart size for slides",
         list(charts.SLIDE_SIZES),
-        key=SIZE_KEY,
+        key=keys.EXPORT_SIZE,
         format_func=charts.size_label,
         help="The camera button in each chart's toolbar downloads the chart at this size, with type sized for a slide.",
     )
     st.radio(
         "Chart file",
         list(charts.EXPORT_FORMATS),
-        key=FORMAT_KEY,
+        key=keys.EXPORT_FORMAT,
         format_func=lambda f: charts.EXPORT_FORMATS[f],
         horizontal=True,
     )
-    st.checkbox("Caption under each chart (data, rows, model)", key=CAPTION_KEY)
+    st.checkbox("Caption under each chart (data, rows, model)", key=keys.EXPORT_CAPTION)
     _, width, height = charts.SLIDE_SIZES["full"]
     st.caption(
         f"Charts are laid out on a slide of {width} × {height} px (13.33 × 7.5 in), so an SVG drops onto "
@@ -186,28 +180,28 @@ def _spec_uploaded(use_data: Callable[..., None]) -> None:
     """Restore the screen from an uploaded spec file, or keep it and say what is wrong."""
     ss = st.session_state
     upload = ss.get(f"spec_upload_{ss.get('spec_upload_version', 0)}")
-    ss.spec_upload_error, ss.spec_upload_notes = None, []
+    ss[keys.SPEC_UPLOAD_ERROR], ss[keys.SPEC_UPLOAD_NOTES] = None, []
     if upload is None:
         return
-    data = ss.data
+    data = ss[keys.DATA]
     try:
         spec, saved = read_spec_upload(upload.getvalue(), data["frame"])
     except core.FormwiseError as exc:
-        ss.spec_upload_error = f"Could not use '{upload.name}': {exc} The screen is unchanged."
+        ss[keys.SPEC_UPLOAD_ERROR] = f"Could not use '{upload.name}': {exc} The screen is unchanged."
         return
     use_data(data["id"], data["name"], data["frame"], spec, data.get("notes"), data.get("profile"))
     used = {spec["outcome"]["column"], *(r["column"] for r in spec.get("regressors") or [])}
     if used & set(intake.locked_columns(data.get("profile"))):
         # The intake panel keeps identifier and date columns out of the grid unless unlocked.
-        ss[intake.UNLOCK_KEY] = True
-    others = [m for m in ss.get("saved_models") or [] if m["data_id"] != data["id"]]
-    ss.saved_models = others + [{"name": n, "spec": {**s, "name": n}, "data_id": data["id"]} for n, s in saved.items()]
-    ss.spec_upload_notes = [
+        ss[keys.UNLOCK_LOCKED] = True
+    others = [m for m in ss.get(keys.SAVED_MODELS) or [] if m["data_id"] != data["id"]]
+    ss[keys.SAVED_MODELS] = others + [{"name": n, "spec": {**s, "name": n}, "data_id": data["id"]} for n, s in saved.items()]
+    ss[keys.SPEC_UPLOAD_NOTES] = [
         f"Restored from {upload.name}" + (f" with {len(saved)} saved model(s)." if saved else "."),
         *restore_notes(spec, data["frame"]),
     ]
     # A fresh uploader, so the same file can be loaded again after further edits.
-    ss.spec_upload_version = ss.get("spec_upload_version", 0) + 1
+    ss[keys.SPEC_UPLOAD_VERSION] = ss.get(keys.SPEC_UPLOAD_VERSION, 0) + 1
 
 
 def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -> None:
@@ -219,7 +213,7 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
 
         st.markdown("##### The model as a file")
         if good:
-            saved = saved_specs(ss.get("saved_models") or [], good["data_id"])
+            saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
             stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
             st.download_button(
                 "Download the spec (JSON)",
@@ -241,26 +235,26 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
             args=(use_data,),
             help="A spec file saved here or written by hand for this data: the grid, errors and saved models follow it.",
         )
-        if ss.get("spec_upload_error"):
-            st.error(plain(ss.spec_upload_error))
-        for note in ss.get("spec_upload_notes") or []:
+        if ss.get(keys.SPEC_UPLOAD_ERROR):
+            st.error(plain(ss[keys.SPEC_UPLOAD_ERROR]))
+        for note in ss.get(keys.SPEC_UPLOAD_NOTES) or []:
             st.caption(plain(note))
 
         st.markdown("##### Report")
         if not good:
             return
-        saved = saved_specs(ss.get("saved_models") or [], good["data_id"])
+        saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
         key = (good["data_id"], spec_json(good["spec"]), json.dumps(saved, sort_keys=True))
         if st.button("Prepare the report", key="prepare_report", width="stretch", help="Runs the whole analysis once."):
             with st.spinner("Writing the report…"):
                 try:
                     html = report_file(good["frame"], good["spec"], good["data_name"], saved)
                 except Exception as exc:  # a core bug must not become a traceback on screen
-                    ss.report = None
+                    ss[keys.REPORT] = None
                     st.error(plain(f"The report could not be written: {exc}"))
                 else:
-                    ss.report = {"key": key, "html": html}
-        report = ss.get("report")
+                    ss[keys.REPORT] = {"key": key, "html": html}
+        report = ss.get(keys.REPORT)
         if report and report["key"] == key:
             stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
             st.download_button(

@@ -26,6 +26,7 @@ from typing import Any
 import pandas as pd
 import streamlit as st
 
+from app import keys
 from app.gridspec import LOCKED_KINDS, _text, profile_entries
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
@@ -35,7 +36,6 @@ from core.output.text import join_words, sentence_case
 
 CAP_VARIABLE = "FORMWISE_MAX_UPLOAD_MB"
 DEFAULT_CAP_MB = 200.0
-UNLOCK_KEY = "unlock_locked"
 _MB = 1024 * 1024
 
 _LOCKED_PLURAL = {"identifier": "identifiers", "date": "dates"}
@@ -69,9 +69,9 @@ def sheet_picker(upload: Any) -> str | None:
     if not upload.name.lower().endswith(".xlsx"):
         return None
     ss = st.session_state
-    known = ss.get("sheet_list")
+    known = ss.get(keys.SHEET_LIST)
     if not known or known[0] != upload.file_id:
-        known = ss.sheet_list = (upload.file_id, sheet_names(upload.getvalue()))
+        known = ss[keys.SHEET_LIST] = (upload.file_id, sheet_names(upload.getvalue()))
     sheets = known[1]
     if len(sheets) < 2:
         return None
@@ -216,17 +216,19 @@ def cap_note() -> None:
 def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
     """'Apply every suggestion' above the grid, and what it changed on the last click."""
     ss = st.session_state
-    if not (ss.get("data") or {}).get("profile"):
+    if not (ss.get(keys.DATA) or {}).get("profile"):
         return
 
     def apply() -> None:
-        grid, changes = apply_suggestions(ss.previous_grid, ss.data["profile"])
+        grid, changes = apply_suggestions(ss[keys.PREVIOUS_GRID], ss[keys.DATA]["profile"])
         if changes:
             restart(grid)
             listed = "; ".join(f"{c}: {transform_words(old)} → {transform_words(new)}" for c, old, new in changes)
-            ss.advice_message = f"Set {len(changes)} transform{'s' if len(changes) != 1 else ''} to the suggestion: {listed}."
+            ss[keys.ADVICE_MESSAGE] = (
+                f"Set {len(changes)} transform{'s' if len(changes) != 1 else ''} to the suggestion: {listed}."
+            )
         else:
-            ss.advice_message = "Every transform in the grid already follows the suggestions."
+            ss[keys.ADVICE_MESSAGE] = "Every transform in the grid already follows the suggestions."
 
     left, right = st.columns([1, 3], vertical_alignment="center")
     with left:
@@ -239,7 +241,7 @@ def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
             "roles stay as they are, and any transform can be changed again in the grid.",
         )
     with right:
-        message = ss.pop("advice_message", None)
+        message = ss.pop(keys.ADVICE_MESSAGE, None)
         if message:
             st.caption(plain(message))
         else:
@@ -249,13 +251,13 @@ def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
 def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) -> None:
     """Identifier and date columns stay 'not used' unless the user ticks the box under the grid."""
     ss = st.session_state
-    locked = locked_columns((ss.get("data") or {}).get("profile"))
+    locked = locked_columns((ss.get(keys.DATA) or {}).get("profile"))
     if not locked:
         return
-    if not ss.get(UNLOCK_KEY):
+    if not ss.get(keys.UNLOCK_LOCKED):
         fixed, moved = lock_roles(grid, locked)
         if moved:
-            ss.lock_message = (
+            ss[keys.LOCK_MESSAGE] = (
                 f"{join_words(moved)} {'holds' if len(moved) == 1 else 'hold'} "
                 f"{join_words(sorted({_LOCKED_PLURAL[locked[c]] for c in moved}))}, so "
                 f"{'it stays' if len(moved) == 1 else 'they stay'} out of the model. Tick "
@@ -264,13 +266,13 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
             )
             restart(fixed)
             st.rerun()
-    message = ss.pop("lock_message", None)
+    message = ss.pop(keys.LOCK_MESSAGE, None)
     if message:
         st.info(plain(message), icon=":material/lock:")
     names = plain(join_words(list(locked)))
     st.checkbox(
         "Let me use identifier and date columns anyway",
-        key=UNLOCK_KEY,
+        key=keys.UNLOCK_LOCKED,
         help=f"{names}: labels of rows rather than variables, so the grid keeps them 'not used'. An identifier can "
         "still group rows for clustered standard errors (sidebar).",
     )

@@ -21,7 +21,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import cautions, context, exports, intake, views
+from app import cautions, context, exports, intake, keys, views
 from app.gridspec import (
     ROLES,
     GridError,
@@ -57,18 +57,18 @@ def use_data(
     """Make ``frame`` the working data, with the grid and error choices taken from ``spec``;
     ``notes`` say what reading changed, ``profile`` holds the advisor's column profiles."""
     ss = st.session_state
-    ss.data = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile}
-    ss.grid_base = spec_to_grid(spec, frame, profile)
+    ss[keys.DATA] = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile}
+    ss[keys.GRID_BASE] = spec_to_grid(spec, frame, profile)
     # A new table starts with its identifier and date columns locked out again.
-    ss.pop(intake.UNLOCK_KEY, None)
-    ss.previous_grid = ss.grid_base
+    ss.pop(keys.UNLOCK_LOCKED, None)
+    ss[keys.PREVIOUS_GRID] = ss[keys.GRID_BASE]
     # A fresh editor key discards the old grid's pending edits.
-    ss.grid_version = ss.get("grid_version", 0) + 1
-    ss.grid_key = f"variables_{ss.grid_version}"
-    ss.at = dict(spec.get("at") or {})
-    ss.covariance = spec.get("covariance") or "HC1"
-    ss.cluster_column = spec.get("cluster") or suggest_cluster(frame)
-    ss.ppml = spec.get("estimator") == "ppml"
+    ss[keys.GRID_VERSION] = ss.get(keys.GRID_VERSION, 0) + 1
+    ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
+    ss[keys.AT] = dict(spec.get("at") or {})
+    ss[keys.COVARIANCE] = spec.get("covariance") or "HC1"
+    ss[keys.CLUSTER_COLUMN] = spec.get("cluster") or suggest_cluster(frame)
+    ss[keys.PPML] = spec.get("estimator") == "ppml"
 
 
 def load_demo() -> None:
@@ -82,12 +82,12 @@ def take_upload(upload: Any) -> None:
     ss = st.session_state
     too_big = intake.size_problem(upload.name, upload.size)
     sheet = None if too_big else intake.sheet_picker(upload)
-    if (upload.file_id, sheet) == ss.get("upload_seen"):
+    if (upload.file_id, sheet) == ss.get(keys.UPLOAD_SEEN):
         return
-    ss.upload_seen = (upload.file_id, sheet)
-    ss.upload_error = None
+    ss[keys.UPLOAD_SEEN] = (upload.file_id, sheet)
+    ss[keys.UPLOAD_ERROR] = None
     if too_big:
-        ss.upload_error = too_big
+        ss[keys.UPLOAD_ERROR] = too_big
         return
     raw = upload.getvalue()
     try:
@@ -96,10 +96,10 @@ def take_upload(upload: Any) -> None:
     except (core.FormwiseError, GridError) as exc:
         # Most reader messages name the file already; say it once.
         said = str(exc)
-        ss.upload_error = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
+        ss[keys.UPLOAD_ERROR] = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
-        ss.upload_error = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
+        ss[keys.UPLOAD_ERROR] = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
         return
     data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
     use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile)
@@ -109,11 +109,11 @@ def take_upload(upload: Any) -> None:
 # --- sidebar --------------------------------------------------------------------------------------
 def sidebar() -> None:
     ss = st.session_state
-    frame: pd.DataFrame = ss.data["frame"]
+    frame: pd.DataFrame = ss[keys.DATA]["frame"]
     with st.sidebar:
         st.markdown("### Data")
-        st.markdown(f"**{plain(ss.data['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
-        intake.intake_notes(ss.data)
+        st.markdown(f"**{plain(ss[keys.DATA]['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
+        intake.intake_notes(ss[keys.DATA])
         upload = st.file_uploader(
             "Load your own table",
             type=["csv", "tsv", "txt", "xlsx"],
@@ -123,29 +123,29 @@ def sidebar() -> None:
         intake.cap_note()
         if upload is not None:
             take_upload(upload)
-        if ss.get("upload_error"):
-            st.error(plain(ss.upload_error))
-            st.caption(f"Still working with: {plain(ss.data['name'])}.")
-        if ss.data["id"] != DEMO_ID and st.button("Back to the demo data", width="stretch"):
+        if ss.get(keys.UPLOAD_ERROR):
+            st.error(plain(ss[keys.UPLOAD_ERROR]))
+            st.caption(f"Still working with: {plain(ss[keys.DATA]['name'])}.")
+        if ss[keys.DATA]["id"] != DEMO_ID and st.button("Back to the demo data", width="stretch"):
             load_demo()
-            ss.uploader_version = ss.get("uploader_version", 0) + 1
-            ss.upload_seen = None
-            ss.upload_error = None
+            ss[keys.UPLOADER_VERSION] = ss.get(keys.UPLOADER_VERSION, 0) + 1
+            ss[keys.UPLOAD_SEEN] = None
+            ss[keys.UPLOAD_ERROR] = None
             st.rerun()
 
         st.markdown("### Standard errors")
         st.selectbox(
             "How to measure uncertainty",
             list(COVARIANCE_KINDS),
-            key="covariance",
+            key=keys.COVARIANCE,
             format_func=lambda c: COVARIANCE_KINDS[c].words,
         )
-        if ss.covariance == "cluster":
+        if ss[keys.COVARIANCE] == "cluster":
             columns = [str(c) for c in frame.columns]
             # The picker's state is dropped while it is hidden, so fall back to a good guess.
-            if ss.get("cluster_column") not in columns:
-                ss.cluster_column = suggest_cluster(frame) or columns[0]
-            st.selectbox("Groups are defined by", columns, key="cluster_column")
+            if ss.get(keys.CLUSTER_COLUMN) not in columns:
+                ss[keys.CLUSTER_COLUMN] = suggest_cluster(frame) or columns[0]
+            st.selectbox("Groups are defined by", columns, key=keys.CLUSTER_COLUMN)
         st.caption(
             "Intervals are 95 % confidence intervals and p-values test a zero coefficient, both using the "
             "standard errors chosen here. Robust (HC) errors allow the noise to differ between rows; "
@@ -163,14 +163,14 @@ def variables_grid() -> pd.DataFrame:
         "(from one value to another). Leave it blank for a sensible default."
     )
     intake.suggestion_button(restart_grid)
-    extra = sorted(set(ss.grid_base["transform"].dropna()) - set(menu_codes("regressor")))
+    extra = sorted(set(ss[keys.GRID_BASE]["transform"].dropna()) - set(menu_codes("regressor")))
     options = menu_codes("regressor") + extra
     # Tall enough to show every row of a typical file without an inner scrollbar.
-    height = min(38 + 35 * len(ss.grid_base), 620)
+    height = min(38 + 35 * len(ss[keys.GRID_BASE]), 620)
     grid = st.data_editor(
-        ss.grid_base,
+        ss[keys.GRID_BASE],
         height=height,
-        key=ss.grid_key,
+        key=ss[keys.GRID_KEY],
         hide_index=True,
         num_rows="fixed",
         disabled=["column", "about"],
@@ -195,17 +195,17 @@ def variables_grid() -> pd.DataFrame:
             ),
         },
     )
-    resolved = resolve_outcome(grid, ss.previous_grid)
+    resolved = resolve_outcome(grid, ss[keys.PREVIOUS_GRID])
     if resolved is not grid:
         # A second outcome was picked: restart the editor on the resolved grid.
-        ss.grid_base = resolved
-        ss.grid_version += 1
-        ss.grid_key = f"variables_{ss.grid_version}"
-        ss.previous_grid = resolved
+        ss[keys.GRID_BASE] = resolved
+        ss[keys.GRID_VERSION] += 1
+        ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
+        ss[keys.PREVIOUS_GRID] = resolved
         st.rerun()
-    ss.previous_grid = grid
+    ss[keys.PREVIOUS_GRID] = grid
     intake.keep_locked_out(grid, restart_grid)
-    levels = category_levels(ss.data["frame"], grid)
+    levels = category_levels(ss[keys.DATA]["frame"], grid)
     if levels:
         st.caption(
             "Category levels (most frequent first; blank reference = the most frequent): "
@@ -218,22 +218,22 @@ def variables_grid() -> pd.DataFrame:
 def restart_grid(grid: pd.DataFrame) -> None:
     """Show ``grid`` in a fresh editor (pending edits are already part of it)."""
     ss = st.session_state
-    ss.grid_base = grid
-    ss.grid_version += 1
-    ss.grid_key = f"variables_{ss.grid_version}"
-    ss.previous_grid = grid
+    ss[keys.GRID_BASE] = grid
+    ss[keys.GRID_VERSION] += 1
+    ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
+    ss[keys.PREVIOUS_GRID] = grid
 
 
 def ppml_switched() -> None:
     # PPML takes the outcome in levels: show that in the grid rather than overriding it silently.
-    if st.session_state.get("ppml"):
-        restart_grid(with_outcome_level(st.session_state.previous_grid))
+    if st.session_state.get(keys.PPML):
+        restart_grid(with_outcome_level(st.session_state[keys.PREVIOUS_GRID]))
 
 
 def zeros_offer(grid: pd.DataFrame) -> str:
     """Next to an outcome with zeros: how many rows a log would drop, and the PPML switch.
     Returns the estimator the spec should use."""
-    note = zero_note(st.session_state.data["frame"], outcome_column(grid))
+    note = zero_note(st.session_state[keys.DATA]["frame"], outcome_column(grid))
     if note is None:
         return "ols"
     with st.container(border=True):
@@ -244,11 +244,11 @@ def zeros_offer(grid: pd.DataFrame) -> str:
                 f"{plain(note['column'])} directly (no log of the outcome), and its effects read as % changes."
             )
             st.markdown(text)
-            st.toggle("Model the mean directly (Poisson pseudo-maximum likelihood)", key="ppml", on_change=ppml_switched)
+            st.toggle("Model the mean directly (Poisson pseudo-maximum likelihood)", key=keys.PPML, on_change=ppml_switched)
         else:
             st.markdown(text)
             st.caption("Poisson pseudo-maximum likelihood needs an outcome of zero or more; this one has negative values.")
-    return "ppml" if note["ppml_possible"] and st.session_state.get("ppml") else "ols"
+    return "ppml" if note["ppml_possible"] and st.session_state.get(keys.PPML) else "ols"
 
 
 # --- results --------------------------------------------------------------------------------------
@@ -282,7 +282,7 @@ def show_results(good: dict[str, Any]) -> None:
 def main() -> None:
     st.set_page_config(page_title="Formwise", layout="wide", initial_sidebar_state="expanded")
     ss = st.session_state
-    if "data" not in ss:
+    if keys.DATA not in ss:
         load_demo()
     sidebar()
 
@@ -290,18 +290,18 @@ def main() -> None:
     st.caption("Try a transform per variable and see at once how the estimates, effects and their approximations change.")
     grid = variables_grid()
 
-    frame: pd.DataFrame = ss.data["frame"]
+    frame: pd.DataFrame = ss[keys.DATA]["frame"]
     error: str | None = None
     notes: list[str] = []
     estimator = zeros_offer(grid)
     try:
-        spec, notes = grid_to_spec(grid, ss.covariance, ss.get("cluster_column"), ss.get("at"), estimator)
-        result = context.run_model(ss.data["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
-        ss.last_good = {
+        spec, notes = grid_to_spec(grid, ss[keys.COVARIANCE], ss.get(keys.CLUSTER_COLUMN), ss.get(keys.AT), estimator)
+        result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
+        ss[keys.LAST_GOOD] = {
             "result": result,
             "spec": spec,
-            "data_name": ss.data["name"],
-            "data_id": ss.data["id"],
+            "data_name": ss[keys.DATA]["name"],
+            "data_id": ss[keys.DATA]["id"],
             "frame": frame,
         }
     except (core.FormwiseError, GridError) as exc:
@@ -311,11 +311,11 @@ def main() -> None:
 
     for note in notes:
         st.info(plain(note))
-    good = ss.get("last_good")
+    good = ss.get(keys.LAST_GOOD)
     if error:
         st.error(plain(error))
         if good:
-            other_data = "" if good["data_id"] == ss.data["id"] else f" on {plain(good['data_name'])}"
+            other_data = "" if good["data_id"] == ss[keys.DATA]["id"] else f" on {plain(good['data_name'])}"
             st.info(
                 f"The results below belong to the previous valid model{other_data}, not to the grid as it is now. "
                 "Fix the problem above and they update."

@@ -9,7 +9,7 @@ from typing import Any
 import pandas as pd
 import streamlit as st
 
-from app import charts, exports
+from app import charts, exports, keys
 from app.gridspec import _text, outcome_column, profile_entries
 from app.intake import transform_words
 from core.output.escape import plain
@@ -159,12 +159,12 @@ def profiles_view(ctx: Any = None) -> None:
     """Every column of the current data: kind, counts, range, shape and the advisor's suggestion,
     then the reasons and evidence for one column at a time."""
     ss = st.session_state
-    data = ss.get("data") or {}
+    data = ss.get(keys.DATA) or {}
     profile = data.get("profile")
     if not profile:
         st.info("No column profiles for this data.")
         return
-    grid = ss.get("previous_grid")
+    grid = ss.get(keys.PREVIOUS_GRID)
     entries = profile_entries(profile)
     outcome = outcome_column(grid) if grid is not None else None
     st.caption(
@@ -212,9 +212,9 @@ def profiles_view(ctx: Any = None) -> None:
 
     st.markdown("##### Why this suggestion")
     names = list(entries)
-    if ss.get("profile_pick") not in names:
-        ss.profile_pick = outcome if outcome in names else names[0]
-    pick = st.selectbox("Column", names, key="profile_pick")
+    if ss.get(keys.PROFILE_PICK) not in names:
+        ss[keys.PROFILE_PICK] = outcome if outcome in names else names[0]
+    pick = st.selectbox("Column", names, key=keys.PROFILE_PICK)
     entry = entries[pick]
     with st.container(border=True):
         suggested = transform_words(entry.get("suggested_transform"))

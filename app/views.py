@@ -12,7 +12,7 @@ from __future__ import annotations
 import streamlit as st
 
 import core
-from app import charts, exports, profiles_view, tables
+from app import charts, exports, keys, profiles_view, tables
 from app.checks_view import checks_view
 from app.compare_view import compare_view, predict_view
 from app.context import Context, chart, failed, point_sample
@@ -51,9 +51,9 @@ def show(ctx: Context) -> None:
     """The view selector and the chosen view."""
     ss = st.session_state
     exports.set_chart_caption(ctx.data_id, ctx.data_name, ctx.spec, ctx.result)
-    if ss.get("view") not in VIEWS:
-        ss.view = VIEWS[0]
-    view = st.segmented_control("Show", VIEWS, key="view", required=True, label_visibility="collapsed")
+    if ss.get(keys.VIEW) not in VIEWS:
+        ss[keys.VIEW] = VIEWS[0]
+    view = st.segmented_control("Show", VIEWS, key=keys.VIEW, required=True, label_visibility="collapsed")
     try:
         {
             "Coefficients": coefficients_view,
@@ -107,7 +107,7 @@ def units_view(ctx: Context) -> None:
         # Six refits per variable take seconds at this size: run them when asked, not on every refit.
         st.markdown(f"##### Does the effect of {plain(join_words(unit_bound))} depend on the units?")
         if not st.toggle(
-            f"Check it (refits the model {6 * len(unit_bound)} times on {ctx.result['n_obs']:,} rows)", key="units_check_on"
+            f"Check it (refits the model {6 * len(unit_bound)} times on {ctx.result['n_obs']:,} rows)", key=keys.UNITS_CHECK_ON
         ):
             return
     with st.spinner("Refitting with the variable in other units…"):
@@ -162,7 +162,7 @@ def approximation_view(ctx: Context) -> None:
             min_value=1,
             max_value=50,
             value=10,
-            key="gap_tolerance",
+            key=keys.GAP_TOLERANCE,
             help="Marks the change sizes where |approximation − exact| / |exact| exceeds this share.",
         )
     curve = curves[names.index(pick)]
@@ -198,12 +198,12 @@ def curves_view(ctx: Context) -> None:
         options = overlay_options(ctx.frame, pick, current) if curve["kind"] == "continuous" else []
         if options:
             choices = ["none", *options]
-            if ss.get("curve_overlay") not in choices:
-                ss.curve_overlay = "none"
+            if ss.get(keys.CURVE_OVERLAY) not in choices:
+                ss[keys.CURVE_OVERLAY] = "none"
             other = st.selectbox(
                 f"Compare with another transform of {plain(pick)}",
                 choices,
-                key="curve_overlay",
+                key=keys.CURVE_OVERLAY,
                 format_func=lambda t: "no comparison" if t == "none" else phrase(pick, t),
                 help="Refits the model with only this regressor's transform changed and draws its expected-value curve.",
             )

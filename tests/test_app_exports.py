@@ -20,7 +20,7 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, exports
+from app import charts, exports, keys
 from core.output import tables as core_tables
 from core.output.escape import csv_cell
 from core.output.numbers import sig
@@ -108,8 +108,8 @@ def test_every_chart_exports_at_the_chosen_slide_size() -> None:
             "scale": 3,
         }, name
         assert name.startswith("formwise-") and config["displaylogo"] is False
-    at.selectbox(key=exports.SIZE_KEY).set_value("half").run()
-    at.radio(key=exports.FORMAT_KEY).set_value("svg").run()
+    at.selectbox(key=keys.EXPORT_SIZE).set_value("half").run()
+    at.radio(key=keys.EXPORT_FORMAT).set_value("svg").run()
     show(at, "Approximation check")
     (_, config), *_ = chart_elements(at)
     assert config["toImageButtonOptions"] | {} == {
@@ -141,7 +141,7 @@ def test_slide_type_is_readable_and_text_fits_the_canvas(size: str) -> None:
     labels and axis titles are at least 15 pt, and no title line is wider than the canvas.
     Floor of 12 pt on slides: common practice, no source."""
     at = start()
-    at.selectbox(key=exports.SIZE_KEY).set_value(size).run()
+    at.selectbox(key=keys.EXPORT_SIZE).set_value(size).run()
     canvas_width = charts.SLIDE_SIZES[size][1]
     checked = 0
     for view in at.segmented_control(key="view").options:
@@ -178,7 +178,7 @@ def test_a_title_of_several_lines_is_padded_back_into_view() -> None:
     title = "Predicted weekly revenue of every kiosk in the network as the average drink price varies"
 
     def figure() -> go.Figure:
-        return charts._style(go.Figure(go.Scatter(x=[1, 2], y=[1, 2], name="curve")), title, "subtitle", "x", "y")
+        return charts.style(go.Figure(go.Scatter(x=[1, 2], y=[1, 2], name="curve")), title, "subtitle", "x", "y")
 
     full, half = charts.for_slide(figure(), "full"), charts.for_slide(figure(), "half")
     full_lines, half_lines = (f.layout.title.text.count("<br>") + 1 for f in (full, half))
@@ -199,7 +199,7 @@ def test_caption_under_the_charts_names_data_rows_and_model() -> None:
     show(at, "Approximation check")
     (figure, _), *_ = chart_elements(at)
     assert not any("Data:" in (a.get("text") or "") for a in figure["layout"].get("annotations", []))
-    at.checkbox(key=exports.CAPTION_KEY).check().run()
+    at.checkbox(key=keys.EXPORT_CAPTION).check().run()
     (figure, _), *_ = chart_elements(at)
     captions = [a["text"] for a in figure["layout"]["annotations"] if (a.get("text") or "").startswith("Data:")]
     assert len(captions) == 1

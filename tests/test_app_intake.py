@@ -12,7 +12,7 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import intake, profiles_view
+from app import intake, keys, profiles_view
 from app.gridspec import GridError, default_spec, spec_to_grid
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
@@ -227,7 +227,7 @@ def test_identifier_columns_are_kept_out_unless_asked_for() -> None:
     assert any("kiosk_id holds identifiers" in unescaped(i.value) for i in at.info)
     pd.testing.assert_frame_equal(coefficients(at), good)
     # Ticked: the identifier can enter, here as categories (one dummy per kiosk).
-    at.checkbox(key=intake.UNLOCK_KEY).check().run()
+    at.checkbox(key=keys.UNLOCK_LOCKED).check().run()
     edit_grid(at, {"kiosk_id": {"role": "regressor", "transform": "category"}})
     assert at.session_state["previous_grid"].set_index("column").at["kiosk_id", "role"] == "regressor"
     # The model now takes it: one dummy per kiosk, which the kiosk-level columns make collinear.
@@ -251,7 +251,7 @@ def test_an_uploaded_identifier_and_date_stay_out_of_the_default_model() -> None
     assert g.at["order_id", "role"] == "not used" and g.at["day", "role"] == "not used"
     assert g.at["day", "about"].startswith("dates")
     assert g.at["spend", "role"] == "outcome" and g.at["price", "role"] == "regressor"
-    assert [c.label for c in at.checkbox if c.key == intake.UNLOCK_KEY] == ["Let me use identifier and date columns anyway"]
+    assert [c.label for c in at.checkbox if c.key == keys.UNLOCK_LOCKED] == ["Let me use identifier and date columns anyway"]
 
 
 # --- pure helpers --------------------------------------------------------------------------------------------
