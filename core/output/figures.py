@@ -31,7 +31,7 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator
 from matplotlib.transforms import Bbox
 
-from core.output import theme
+from core.output import numbers, theme
 from core.output.theme import (
     BEYOND_NAME,
     BLUE,
@@ -106,24 +106,13 @@ def _floats(values: Sequence[Any] | None) -> np.ndarray:
 
 
 def _minus(text: str) -> str:
-    return text.replace("-", "\u2212")
+    return text.replace("-", numbers.MINUS)
 
 
-def signed(value: float, percent: bool = False) -> str:
-    """'+10 %', '−0.5': a change with its sign, three significant digits."""
+def change_text(value: float, percent: bool = False) -> str:
+    """'+10 %', '−0.5': a change with its sign, three significant digits (as the app's gap chart)."""
     text = f"{value:+.3g}" if abs(value) >= 0.01 or value == 0 else f"{value:+.2e}"
     return _minus(text) + (" %" if percent else "")
-
-
-def two_decimals(value: float | None) -> str:
-    return "n/a" if value is None else _minus(f"{value:.2f}")
-
-
-def amount(value: float) -> str:
-    """'0.97', '2,130': three significant digits, thousands separated."""
-    if abs(value) >= 1000:
-        return _minus(f"{value:,.0f}")
-    return _minus(f"{value:.3g}")
 
 
 def tick_labels(ticks: Sequence[float], suffix: str = "") -> list[str]:
@@ -380,7 +369,7 @@ def gap_figure(curve: dict[str, Any], outcome_column: str, outcome_label: str, s
         # Near the right edge the label goes on the line's left so it stays in the plot.
         near_right = chosen > float(np.nanmax(sizes)) - 0.3 * span
         ax.annotate(
-            f"your change: {signed(chosen, percent_change)}",
+            f"your change: {change_text(chosen, percent_change)}",
             xy=(chosen, 0),
             xycoords=("data", "axes fraction"),
             xytext=(_pt(-8 if near_right else 8), _pt(8)),
@@ -570,7 +559,7 @@ def boxcox_figure(boxcox: dict[str, Any], outcome_column: str, size: str = "full
         labels = ["Log-likelihood of each power, less the best"]
         if low is not None and high is not None:
             handles.append(_square(SKY, 0.6))
-            labels.append(f"Powers the data accept (95 %): {two_decimals(low)} to {two_decimals(high)}")
+            labels.append(f"Powers the data accept (95 %): {numbers.signed(low)} to {numbers.signed(high)}")
         top = _header(
             canvas,
             f"Which power of {outcome_column} fits best (Box-Cox)",
@@ -615,7 +604,7 @@ def _boxcox_marks(lam: np.ndarray, drop: np.ndarray, best: float) -> list[tuple[
     hollow = {"markerfacecolor": "white", "markeredgewidth": _pt(2.5), "color": INK, "markersize": _pt(13)}
     marks = [
         (
-            f"best {two_decimals(best)}",
+            f"best {numbers.signed(best)}",
             best,
             0.0,
             {"marker": "o", "color": VERMILLION, "markersize": _pt(14), "markeredgecolor": "white"},

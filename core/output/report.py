@@ -21,8 +21,9 @@ from matplotlib.figure import Figure
 
 from core.analysis import analyze
 from core.model.transforms import parse_transform
-from core.output import figures, theme
-from core.output.tables import coefficient_table, comparison_table, diagnostics_table, effects_table, format_cell
+from core.output import figures, numbers, theme
+from core.output.numbers import format_cell
+from core.output.tables import coefficient_table, comparison_table, diagnostics_table, effects_table
 
 CAUTION_REVIEW = (
     "For decisions with consequences, have the analysis reviewed by a qualified statistician and follow "
@@ -75,7 +76,7 @@ def boxcox_caption(boxcox: dict[str, Any]) -> str:
     """The accepted interval in words and how far log and level fall below the best power."""
     words = [f"The bar marks the powers the data accept at 95 % (log-likelihood within {figures.LR_DROP_95:.2f} of the best)."]
     drops = [
-        f"{name} (λ = {value:g}) is {figures.amount(drop)} below the best"
+        f"{name} (λ = {value:g}) is {numbers.compact(drop)} below the best"
         for name, value in (("log", 0.0), ("level", 1.0))
         if (drop := figures.profile_drop(boxcox, value)) is not None
     ]
