@@ -292,7 +292,13 @@ def _fit_axes(canvas: Canvas, ax: Axes, box: tuple[float, float, float, float], 
         else:
             _category_ticks(canvas, ax, x.names)
         _numeric_ticks(canvas, ax, "y", y.suffix)
-        ax.set_xlabel(canvas.wrap(x.title, TYPE["base"], pos[2] - pos[0]), fontsize=_pt(TYPE["base"]), linespacing=1.25)
+        # Further from category names than from numbers, so it does not read as a second line of the middle name.
+        ax.set_xlabel(
+            canvas.wrap(x.title, TYPE["base"], pos[2] - pos[0]),
+            fontsize=_pt(TYPE["base"]),
+            linespacing=1.25,
+            labelpad=_pt(22 if x.names else 10),
+        )
         ax.set_ylabel(canvas.wrap(y.title, TYPE["base"], pos[3] - pos[1]), fontsize=_pt(TYPE["base"]), linespacing=1.25)
         tight = ax.get_tightbbox(canvas.renderer)
         new = [x0 + pos[0] - tight.x0, y0 + pos[1] - tight.y0, x1 - (tight.x1 - pos[2]), y1 - (tight.y1 - pos[3])]
