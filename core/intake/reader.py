@@ -13,6 +13,12 @@ text go through the cell-by-cell converter, and there each distinct value is par
 pandas parses the file's bytes in the encoding found; the encoding is checked a piece at a time
 and only a head of the text is decoded for sniffing, so no decoded copy of the whole file is
 ever held (memory stays near the file's size plus the table).
+
+Nothing a file holds may hang or exhaust the reader. A workbook is checked before it is parsed:
+the unpacked sizes in its zip directory, the range each sheet declares, and fast counts of its
+rows, cells and shared strings, against a worksheet's limits and the ``XLSX_MAX_*`` budgets; the
+parse then guards rows, width and cells exactly. Cells longer than ``MAX_CELL_CHARS`` are refused
+in every format. Encrypted workbooks are named as such.
 """
 
 from __future__ import annotations
@@ -24,7 +30,10 @@ import itertools
 import math
 import re
 import warnings
+import zipfile
+import zlib
 from collections import Counter
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from datetime import date, datetime, time
 from pathlib import Path
@@ -41,6 +50,9 @@ EXCEL_SUFFIXES = {".xlsx"}
 MISSING_MARKERS = ["", "NA", "N/A", "n/a", "na", "NaN", "nan", "#N/A", "null", "NULL", "None", "-", ".", "?", "missing"]
 # Product limit: beyond this a table is almost surely not a regression data set.
 MAX_COLUMNS = 500
+# Longest cell read: a spreadsheet cell holds at most 32,767 characters (Excel specifications and
+# limits); a cell three times that is a pasted document, not a value, and slows every later step.
+MAX_CELL_CHARS = 100_000
 # Where frame.attrs keeps per-column facts for core.intake.profile (currency removed, percent units, ...).
 ATTRS_KEY = "formwise_intake"
 
@@ -79,7 +91,6 @@ _CURRENCIES = sorted(
 )
 _CURRENCY_ALT = "|".join(re.escape(c) for c in _CURRENCIES)
 _CURRENCY_PREFIX = re.compile(rf"^({_CURRENCY_ALT})\s*")
-_CURRENCY_SUFFIX = re.compile(rf"\s*({_CURRENCY_ALT})$")
 _SIGNS = {"-": -1.0, "−": -1.0, "+": 1.0}
 # A number's body under each decimal mark: digits, optional thousands groups (one separator
 # kind, used consistently), optional fraction and exponent. ASCII digits only on purpose.
@@ -165,6 +176,8 @@ def _load(source: str | Path | bytes, name: str | None) -> tuple[bytes, str]:
             raise DataError(f"file not found: '{path}'. Check the path and try again.")
         if path.is_dir():
             raise DataError(f"'{path}' is a folder, not a file; give the path of a .csv, .tsv, .txt or .xlsx file.")
+        if not path.is_file():  # a pipe or device could block or never end
+            raise DataError(f"'{path}' is not a regular file; give the path of a .csv, .tsv, .txt or .xlsx file.")
         try:
             raw = path.read_bytes()  # read-only: the user's file is never opened for writing
         except OSError as exc:
@@ -207,11 +220,12 @@ class _Encoded:
             yield decoder.decode(view[start : start + _DECODE_BYTES])
         yield decoder.decode(b"", final=True)
 
-    def stream(self) -> io.TextIOWrapper:
-        """The text as a file, read as ``io.StringIO(text)`` would read it (lines end at \\n)."""
+    def stream(self, newline: str = "\n") -> io.TextIOWrapper:
+        """The text as a file, read as ``io.StringIO(text)`` would read it (lines end at \\n;
+        ``newline=""`` also ends them at a lone \\r)."""
         buffer = io.BytesIO(self.raw)
         buffer.seek(self.offset)
-        return io.TextIOWrapper(buffer, encoding=self.codec, newline="\n")
+        return io.TextIOWrapper(buffer, encoding=self.codec, newline=newline)
 
     def is_blank(self) -> bool:
         """True when the text is empty or only whitespace (``not text.strip()``)."""
@@ -227,13 +241,17 @@ def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.
     _reject_non_tables(encoded, head, whole, name)
     if (not head.strip()) and (whole or encoded.is_blank()):
         raise DataError(f"'{name}' is empty; it needs a header row and data rows.")
-    delimiter, skip, header_fields, sample, hint = _sniff(head, name)
+    # Lines ending in CR alone (classic Mac OS): pandas splits them, the sniffer must too.
+    cr_only = "\r" in head and "\n" not in head
+    delimiter, skip, header_fields, sample, hint = _sniff(head.replace("\r", "\n") if cr_only else head, name)
     if len(header_fields) > MAX_COLUMNS:
         raise _too_wide(name, len(header_fields))
     decimal, ambiguous = _decimal_mark(itertools.chain.from_iterable(sample))
     described = f"{_DELIMITER_NAMES.get(delimiter, repr(delimiter))}-separated text, {encoded.description}"
     if decimal == ",":
         described += ", decimal comma"
+    if cr_only:
+        described += ", lines ending in CR only (old Mac style)"
     notes.append(f"read '{name}' as {described}.")
     if hint:
         notes.append(hint)
@@ -261,11 +279,13 @@ def _text_cells(raw: bytes, name: str, notes: list[str]) -> tuple[list[str], pd.
                 low_memory=False,
                 index_col=False,
                 engine="c",
+                # pandas' own CR handling miscounts blank lines among skipped title lines.
+                lineterminator="\r" if cr_only else None,
             )
     except pd.errors.EmptyDataError:
         raise DataError(f"'{name}' has no header row or data; it needs a header row and data rows.") from None
     except (pd.errors.ParserError, pd.errors.ParserWarning, ValueError, OverflowError, csv.Error) as exc:
-        raise _ragged(encoded.stream(), name, delimiter, skip, exc) from None
+        raise _ragged(encoded.stream("" if cr_only else "\n"), name, delimiter, skip, exc) from None
     pandas_names = [str(c) for c in body.columns]
     if len(header_fields) != len(pandas_names):
         # The sniffed sample disagrees with pandas (e.g. a header spanning lines); trust pandas.
@@ -296,6 +316,8 @@ def _decode(raw: bytes, name: str) -> _Encoded:
         if not _decodes(raw, "utf-16", 0):
             raise DataError(f"'{name}' starts like UTF-16 text but does not decode; save it as UTF-8 CSV.")
         return _Encoded(raw, "utf-16", 0, "UTF-16 encoding")
+    if _is_encrypted(raw):
+        raise _encrypted(name)
     for magic, what in _MAGIC:
         if raw.startswith(magic):
             raise DataError(f"'{name}' is not a text table: it looks like {what}.")
@@ -457,38 +479,359 @@ def _ragged(lines: Any, name: str, delimiter: str, skip: int, exc: Exception) ->
 
 
 # --- Excel workbooks ----------------------------------------------------------------------------
+# A worksheet holds at most 1,048,576 rows by 16,384 columns (Excel specifications and limits;
+# ECMA-376 itself leaves rows unbounded, [MS-OI29500] 2.1.1370). A file claiming more is damaged
+# or hostile.
+XLSX_ROWS = 1_048_576
+XLSX_COLUMNS = 16_384
+# Budgets, checked before any parsing. An .xlsx is a zip package (ECMA-376 Part 2, Open Packaging
+# Conventions) whose parts can unpack to far more than the file's size; the declared sizes in the
+# zip's central directory bound what Python's zipfile will ever inflate (it stops at the declared
+# size and fails the CRC check), so they can be trusted as upper bounds.
+XLSX_MAX_MEMBERS = 10_000
+XLSX_MAX_BYTES = 200 * 2**20  # all parts, unpacked
+XLSX_MAX_SHARED_STRING_BYTES = 100 * 2**20  # the shared-string part, read whole when the workbook opens
+# XML tags parsed when the workbook opens (the shared strings, styles, and every worksheet that
+# does not declare its <dimension>, which openpyxl reads through to find its size).
+XLSX_MAX_OPEN_TAGS = 6_000_000
+# Cells of the chosen sheet: openpyxl parses about 250,000 cells a second.
+XLSX_MAX_CELLS = 1_000_000
+# Values the reader may materialise for the chosen sheet, counting the empty cells it fills in
+# up to each row's last cell.
+XLSX_MAX_GRID = 4 * XLSX_MAX_CELLS
+
+_OLE_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
+_SCAN_BYTES = 1 << 20
+_HEAD_BYTES = 65_536
+_PREFIX = rb"(?:[A-Za-z_][\w.-]*:)?"  # a namespace prefix such as "x:" (some writers use one)
+_CELL_TAG = re.compile(rb"<" + _PREFIX + rb"c[\s/>]")
+_ROW_TAG = re.compile(rb"<" + _PREFIX + rb"row[\s/>]")
+_SST_ITEM = re.compile(rb"<" + _PREFIX + rb"si[\s/>]")
+_DIMENSION = re.compile(rb"<" + _PREFIX + rb'dimension\b[^>]*?\bref\s*=\s*["\']([^"\']*)["\']')
+# A row number of seven digits or more in an r attribute (rows and cells): checked against the limit.
+_BIG_ROW_NUMBER = re.compile(rb"\br\s*=\s*[\"']\+?0*([1-9][0-9]{6,18})[\"'.eE]")
+_SHEET_DATA = re.compile(rb"<" + _PREFIX + rb"sheetData[\s/>]")
+_CELL_REF = re.compile(r"\$?([A-Za-z]{1,7})\$?([0-9]{1,12})")
+_SHARED_STRINGS_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"
+
+
+def _is_encrypted(raw: bytes) -> bool:
+    """An encrypted OOXML file is an OLE compound file holding the \\EncryptionInfo and
+    \\EncryptedPackage streams ([MS-OFFCRYPTO] 2.3.4.4 and 2.3.4.5); directory entry names are
+    UTF-16LE ([MS-CFB] 2.6.1)."""
+    return (
+        raw.startswith(_OLE_MAGIC)
+        and "EncryptedPackage".encode("utf-16-le") in raw
+        and "EncryptionInfo".encode("utf-16-le") in raw
+    )
+
+
+def _encrypted(name: str) -> DataError:
+    return DataError(
+        f"'{name}' is an encrypted (password-protected) workbook, which Formwise cannot open. Open it in your "
+        "spreadsheet program, remove the password (in Excel: File > Info > Protect Workbook > Encrypt with "
+        "Password, then clear it), save it as .xlsx or CSV, and load it again."
+    )
+
+
+def _megabytes(size: int) -> str:
+    return f"{size / 2**20:,.0f} MB"
+
+
+def _too_big(name: str, what: str) -> DataError:
+    return DataError(
+        f"'{name}' {what}. Save the sheet you need as CSV (Formwise reads large CSV files quickly) or as a "
+        "smaller workbook with only the columns you need, and load that."
+    )
+
+
+def _damaged(name: str) -> DataError:
+    return DataError(
+        f"'{name}' is not a readable .xlsx workbook (it may be damaged); open it in a spreadsheet and save it again."
+    )
+
+
+def _scan(package: zipfile.ZipFile, info: zipfile.ZipInfo, count: Any, stop: int) -> int:
+    """``count(chunk)`` summed over the member's unpacked bytes, a piece at a time; stops once past
+    ``stop``. A token split across two pieces is missed: an estimate, the parse guards are exact."""
+    total = 0
+    with package.open(info) as member:
+        while total <= stop and (chunk := member.read(_SCAN_BYTES)):
+            total += count(chunk)
+    return total
+
+
+def _tally(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[tuple[int, int, int, int]]:
+    """Running counts of a worksheet part's tags, rows and cells, and the highest row number
+    written, a piece at a time (estimates, as in ``_scan``)."""
+    tags = rows = cells = top = 0
+    with package.open(info) as member:
+        while chunk := member.read(_SCAN_BYTES):
+            tags += chunk.count(b"<")
+            rows += len(_ROW_TAG.findall(chunk))
+            cells += len(_CELL_TAG.findall(chunk))
+            top = max([top, *(int(n) for n in _BIG_ROW_NUMBER.findall(chunk))])
+            yield tags, rows, cells, top
+
+
+def _check_counts(where: str, counts: Iterator[tuple[int, int, int, int]], stop_tags: int | None = None) -> int:
+    """Refuse a worksheet part whose running counts pass the worksheet's limits or the cell budget;
+    returns the tags counted (stopping early once well past ``stop_tags``). Counting goes on past
+    the budgets, up to twice, so that a sheet of too many one-cell rows is named for its rows."""
+    tags = cells = 0
+    for tags, rows, cells, top in counts:
+        if rows > XLSX_ROWS or top > XLSX_ROWS:
+            raise _too_many_rows(where)
+        if cells > 2 * XLSX_MAX_CELLS or (stop_tags is not None and tags > max(stop_tags, 0) + XLSX_MAX_OPEN_TAGS):
+            break
+    if cells > XLSX_MAX_CELLS:
+        raise DataError(
+            f"{where} has more than {XLSX_MAX_CELLS:,} cells; Formwise reads workbooks up to that size. Save the sheet "
+            "as CSV (Formwise reads large CSV files quickly) or keep only the columns you need, and load it again."
+        )
+    return tags
+
+
+def _head(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> bytes:
+    with package.open(info) as member:
+        return member.read(_HEAD_BYTES)
+
+
+def _looks_xml(head: bytes) -> bool:
+    return head.lstrip(b"\xef\xbb\xbf \t\r\n").startswith(b"<")
+
+
+def _declared_dimension(head: bytes) -> bytes | None:
+    """The ``ref`` of a worksheet's <dimension> element when it comes before <sheetData>, where
+    CT_Worksheet puts it (ECMA-376 Part 1, 18.3.1.99) and where openpyxl stops looking."""
+    match = _DIMENSION.search(head)
+    data = _SHEET_DATA.search(head)
+    if match is None or (data is not None and data.start() < match.start()):
+        return None
+    return match.group(1)
+
+
+def _check_package(raw: bytes, name: str) -> dict[str, bytes | None]:
+    """Refuse a workbook whose parts would take too long or too much memory to open, from the zip
+    directory and a fast count of tags (no XML parsed). Returns each worksheet part's declared
+    dimension (None when it declares none)."""
+    try:
+        package = zipfile.ZipFile(io.BytesIO(raw))
+        members = package.infolist()
+    except (zipfile.BadZipFile, zipfile.LargeZipFile, OSError, ValueError, EOFError):
+        raise _damaged(name) from None
+    with package:
+        if len(members) > XLSX_MAX_MEMBERS:
+            raise _too_big(name, f"holds {len(members):,} parts; a workbook Formwise reads has at most {XLSX_MAX_MEMBERS:,}")
+        unpacked = sum(info.file_size for info in members)
+        if unpacked > XLSX_MAX_BYTES:
+            raise _too_big(
+                name,
+                f"unpacks to {_megabytes(unpacked)} of workbook data, more than the {_megabytes(XLSX_MAX_BYTES)} "
+                "Formwise reads from a workbook",
+            )
+        try:
+            dimensions: dict[str, bytes | None] = {}
+            shared = _shared_string_parts(package)
+            open_tags = 0
+            for info in members:
+                if info.is_dir() or info.file_size == 0:
+                    continue
+                head = _head(package, info)
+                if not _looks_xml(head):
+                    continue  # pictures and other binary parts are not parsed
+                if info.filename in shared:
+                    if info.file_size > XLSX_MAX_SHARED_STRING_BYTES:
+                        raise _too_big(
+                            name,
+                            f"holds {_megabytes(info.file_size)} of shared text, more than the "
+                            f"{_megabytes(XLSX_MAX_SHARED_STRING_BYTES)} Formwise reads from a workbook",
+                        )
+                    strings = _scan(package, info, lambda chunk: len(_SST_ITEM.findall(chunk)), XLSX_MAX_CELLS)
+                    if strings > XLSX_MAX_CELLS:
+                        raise _too_big(
+                            name, f"holds more than {XLSX_MAX_CELLS:,} distinct texts; Formwise reads at most that many"
+                        )
+                dimension = _declared_dimension(head)
+                dimensions[info.filename] = dimension
+                if dimension is None:
+                    # openpyxl parses this part through when the workbook opens (to find its size).
+                    where = f"a sheet of '{name}' ({info.filename})"
+                    open_tags += _check_counts(where, _tally(package, info), XLSX_MAX_OPEN_TAGS - open_tags)
+                    if open_tags > XLSX_MAX_OPEN_TAGS:
+                        raise _too_big(
+                            name,
+                            f"needs more than {XLSX_MAX_OPEN_TAGS:,} XML tags parsed just to open it (large sheets that "
+                            "do not declare their size, or a very large table of shared text); that is more than "
+                            "Formwise reads from a workbook",
+                        )
+        except DataError:  # a ValueError too: let it through
+            raise
+        except (zipfile.BadZipFile, OSError, ValueError, EOFError, NotImplementedError, zlib.error):
+            raise _damaged(name) from None
+    return dimensions
+
+
+def _shared_string_parts(package: zipfile.ZipFile) -> set[str]:
+    """Part names of the shared-string table: named in [Content_Types].xml, or by its usual name."""
+    parts = {info.filename for info in package.infolist() if info.filename.lower().endswith("sharedstrings.xml")}
+    try:
+        info = package.getinfo("[Content_Types].xml")
+    except KeyError:
+        return parts
+    if info.file_size > 4 * 2**20:
+        return parts  # an oversized manifest: still bounded by the total budget
+    text = package.read(info).decode("utf-8", "replace")
+    for tag in re.findall(r"<(?:[A-Za-z_][\w.-]*:)?Override\b[^>]*>", text):
+        if _SHARED_STRINGS_TYPE in tag:
+            part = re.search(r'PartName\s*=\s*["\']/?([^"\']+)["\']', tag)
+            if part:
+                parts.add(part.group(1))
+    return parts
+
+
+def _dimension_extent(ref: bytes) -> tuple[int, int] | None:
+    """(last row, last column) of a declared range such as ``A1:XFD1048577``, or None if unreadable."""
+    rows, columns = 0, 0
+    for corner in ref.decode("ascii", "replace").split(":")[:2]:
+        match = _CELL_REF.fullmatch(corner.strip())
+        if match is None:
+            return None
+        column = 0
+        for letter in match.group(1).upper():
+            column = column * 26 + ord(letter) - 64
+        rows, columns = max(rows, int(match.group(2))), max(columns, column)
+    return rows, columns
+
+
+def _check_sheet(package_raw: bytes, name: str, chosen: str, path: str, dimension: bytes | None) -> None:
+    """Refuse the chosen sheet when it declares or holds more than a worksheet can, or more cells
+    than the budget; cheap (tags counted, not parsed) so refusing takes well under a second."""
+    where = f"sheet '{chosen}' of '{name}'"
+    if dimension is not None:
+        extent = _dimension_extent(dimension)
+        if extent is not None and (extent[0] > XLSX_ROWS or extent[1] > XLSX_COLUMNS):
+            shown = dimension.decode("ascii", "replace")[:40]
+            raise DataError(
+                f"{where} declares the range {shown} ({extent[0]:,} rows by {extent[1]:,} columns), more than a "
+                f"worksheet can hold ({XLSX_ROWS:,} rows by {XLSX_COLUMNS:,} columns): the file is damaged or was not "
+                "written by a spreadsheet program. Export the data as CSV from its source and load that."
+            )
+    try:
+        with zipfile.ZipFile(io.BytesIO(package_raw)) as package:
+            _check_counts(where, _tally(package, package.getinfo(path)))
+    except DataError:
+        raise
+    except (KeyError, zipfile.BadZipFile, OSError, ValueError, EOFError, NotImplementedError, zlib.error):
+        return  # the parse itself reports a damaged part; its guards still bound the work
+
+
+def _too_many_rows(where: str) -> DataError:
+    return DataError(
+        f"{where} has more rows than a worksheet can hold ({XLSX_ROWS:,}): the file is damaged or was not written "
+        "by a spreadsheet program. Export the data as CSV from its source and load that."
+    )
+
+
+def _excel_value(value: Any) -> Any:
+    """A cell value as pandas' openpyxl reader gives it: blanks are missing, whole floats are ints."""
+    if value is None or (isinstance(value, str) and value == ""):
+        return np.nan
+    if isinstance(value, float) and value.is_integer():
+        return int(value)
+    return value
+
+
+def _sheet_grid(worksheet: Any, name: str, chosen: str) -> pd.DataFrame:
+    """The sheet's non-empty rows as an object frame (the values ``pd.read_excel(header=None,
+    dtype=object)`` gives, less the empty rows the caller drops anyway), with exact guards on rows,
+    width and the values materialised: the tag counts before it are estimates, and rows far down
+    or cells far right cost work without adding tags."""
+    where = f"sheet '{chosen}' of '{name}'"
+    rows: list[list[Any]] = []
+    entries = 0
+    width = 0
+    worksheet.reset_dimensions()  # a declared size can be wrong; read the real extent
+    try:
+        for index, row in enumerate(worksheet.iter_rows(values_only=True)):
+            if not row:  # openpyxl fills the gap above a row far down with empty rows
+                if index >= XLSX_ROWS:
+                    raise _too_many_rows(where)
+                continue
+            if index >= XLSX_ROWS:
+                raise _too_many_rows(where)
+            entries += len(row)
+            if len(row) > XLSX_COLUMNS:
+                raise DataError(
+                    f"{where} has a cell beyond column {XLSX_COLUMNS:,}, more than a worksheet can hold: the file is "
+                    "damaged or was not written by a spreadsheet program. Export the data as CSV and load that."
+                )
+            if entries > XLSX_MAX_GRID:
+                raise _too_big(
+                    name,
+                    f"spans more than {XLSX_MAX_GRID:,} cells on sheet '{chosen}' (counting the empty cells between "
+                    "its values); Formwise reads workbooks up to that size",
+                )
+            end = len(row)
+            while end and (row[end - 1] is None or row[end - 1] == ""):
+                end -= 1
+            if end:
+                width = max(width, end)
+                rows.append([_excel_value(v) for v in row[:end]])
+    except DataError:
+        raise
+    except Exception:  # openpyxl raises many unrelated types for a damaged sheet
+        raise DataError(f"{where} could not be read (the workbook may be damaged); save it again.") from None
+    if len(rows) * width > XLSX_MAX_GRID:
+        raise _too_big(
+            name,
+            f"spans {len(rows):,} rows by {width:,} columns on sheet '{chosen}', more than the {XLSX_MAX_GRID:,} cells "
+            "Formwise reads from a workbook (a stray value far to the right widens every row)",
+        )
+    padded = [r + [np.nan] * (width - len(r)) for r in rows]
+    return pd.DataFrame(padded, columns=range(width), dtype=object) if padded else pd.DataFrame(dtype=object)
+
+
 def _excel_cells(raw: bytes, name: str, sheet: str | None, notes: list[str]) -> tuple[list[str], pd.DataFrame, str]:
     if not raw.startswith(b"PK\x03\x04"):
         if not raw.strip():
             raise DataError(f"'{name}' is empty; save the workbook again from your spreadsheet program.")
+        if _is_encrypted(raw):
+            raise _encrypted(name)
         if raw.startswith(b"\xd0\xcf\x11\xe0"):
             raise DataError(f"'{name}' is in the old Excel format (.xls) despite its name; save it as .xlsx or CSV.")
         if b"\x00" not in raw[:4096]:
             raise DataError(f"'{name}' is not an Excel workbook: it looks like a text file. Rename it to .csv and load it again.")
         raise DataError(f"'{name}' is not a readable .xlsx workbook; open it in a spreadsheet and save it again.")
+    dimensions = _check_package(raw, name)
+    import openpyxl  # here, not at the top: only workbooks need it and it takes a while to import
+
     try:
-        book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
-        sheets = [str(s) for s in book.sheet_names]
+        # Read-only and values-only, as pandas opens workbooks: sheets are parsed on demand.
+        book = openpyxl.load_workbook(io.BytesIO(raw), read_only=True, data_only=True, keep_links=False)
+        worksheets = list(book.worksheets)
+        sheets = [str(ws.title) for ws in worksheets]
     except Exception:  # openpyxl raises many unrelated types for a broken workbook
-        raise DataError(
-            f"'{name}' is not a readable .xlsx workbook (it may be damaged); open it in a spreadsheet and save it again."
-        ) from None
-    if not sheets:
-        raise DataError(f"'{name}' has no sheets; save a workbook with the data on a sheet.")
-    if sheet is None:
-        chosen = sheets[0]
-    elif sheet in sheets:
-        chosen = sheet
-    else:
-        # Forgive case and surrounding spaces, which are invisible in most sheet tabs.
-        close = [s for s in sheets if s.strip().lower() == str(sheet).strip().lower()]
-        if not close:
-            raise DataError(f"'{name}' has no sheet '{sheet}'; its sheets are: {', '.join(sheets)}. Pick one of those.")
-        chosen = close[0]
+        raise _damaged(name) from None
     try:
-        grid = pd.read_excel(book, sheet_name=chosen, header=None, dtype=object, keep_default_na=False, na_values=[""])
-    except Exception:
-        raise DataError(f"sheet '{chosen}' of '{name}' could not be read (the workbook may be damaged); save it again.") from None
+        if not sheets:
+            raise DataError(f"'{name}' has no sheets; save a workbook with the data on a sheet.")
+        if sheet is None:
+            chosen = sheets[0]
+        elif sheet in sheets:
+            chosen = sheet
+        else:
+            # Forgive case and surrounding spaces, which are invisible in most sheet tabs.
+            close = [s for s in sheets if s.strip().lower() == str(sheet).strip().lower()]
+            if not close:
+                raise DataError(f"'{name}' has no sheet '{sheet}'; its sheets are: {', '.join(sheets)}. Pick one of those.")
+            chosen = close[0]
+        worksheet = worksheets[sheets.index(chosen)]
+        path = str(getattr(worksheet, "_worksheet_path", "")).lstrip("/")
+        _check_sheet(raw, name, chosen, path, dimensions.get(path))
+        grid = _sheet_grid(worksheet, name, chosen)
+    finally:
+        book.close()
     listed = f" (sheets: {', '.join(sheets)})" if len(sheets) > 1 else ""
     notes.append(f"read sheet '{chosen}' of '{name}'{listed}.")
     grid = grid.dropna(how="all").reset_index(drop=True)
@@ -529,6 +872,7 @@ def _tidy(
     header: list[str], body: pd.DataFrame, name: str, decimal: str, notes: list[str]
 ) -> tuple[pd.DataFrame, dict[str, _Column]]:
     header = list(header) + [""] * (body.shape[1] - len(header))
+    _refuse_long_cells(header, body, name)
     blank = _blank_cells(body)
     empty_cols = [j for j in range(body.shape[1]) if not str(header[j]).strip() and bool(blank[j].all())]
     if empty_cols:
@@ -583,6 +927,38 @@ def _tidy(
     frame = pd.DataFrame(columns)
     frame.columns = names
     return frame, facts
+
+
+def _longest_text(series: pd.Series) -> tuple[int, int]:
+    """Length and row position of the column's longest text cell ((0, -1) if it has none)."""
+    if series.dtype == object:
+        lengths = np.fromiter((len(v) if isinstance(v, str) else 0 for v in series.to_numpy()), dtype=np.int64, count=len(series))
+    elif pd.api.types.is_string_dtype(series):
+        lengths = series.str.len().fillna(0).to_numpy(dtype=np.int64)  # vectorised for pandas' string dtype
+    else:
+        return 0, -1
+    if not len(lengths):
+        return 0, -1
+    row = int(np.argmax(lengths))
+    return int(lengths[row]), row
+
+
+def _refuse_long_cells(header: list[str], body: pd.DataFrame, name: str) -> None:
+    for position, text in enumerate(header, start=1):
+        if len(str(text)) > MAX_CELL_CHARS:
+            raise DataError(
+                f"'{name}': the name of column {position} is {len(str(text)):,} characters long; Formwise reads cells of "
+                f"at most {MAX_CELL_CHARS:,} characters. Check that the file is a table with one header row."
+            )
+    for position, j in enumerate(body.columns):
+        length, row = _longest_text(body[j])
+        if length > MAX_CELL_CHARS:
+            shown = str(header[position])[:40] or f"column {position + 1}"
+            raise DataError(
+                f"'{name}': a cell in '{shown}' (data row {row + 1:,}) holds {length:,} characters; Formwise reads cells "
+                f"of at most {MAX_CELL_CHARS:,} (a spreadsheet cell holds 32,767). Remove that column or shorten the "
+                "cell, and load the file again."
+            )
 
 
 def _blank_cells(body: pd.DataFrame) -> pd.DataFrame:
@@ -647,14 +1023,23 @@ def _peel(text: str) -> tuple[str, float, bool, str | None, bool] | None:
             sign, text = _SIGNS[text[0]], text[1:].lstrip()
     if text.endswith("%"):
         percent, text = True, text[:-1].rstrip()
-    match = _CURRENCY_SUFFIX.search(text)
-    if match and currency is None:
-        currency, text = match.group(1), text[: match.start()]
+    suffix = _currency_suffix(text) if currency is None else None
+    if suffix:
+        currency, text = suffix
         if not percent and text.endswith("%"):
             percent, text = True, text[:-1].rstrip()
     if not text:
         return None
     return text, sign, parens, currency, percent
+
+
+def _currency_suffix(text: str) -> tuple[str, str] | None:
+    """The currency mark ending ``text`` and the text before it (spaces removed), longest mark
+    first. Not a regex search: ``\\s*(...)$`` tried at every position took 5 s on a 50 MB cell."""
+    for mark in _CURRENCIES:
+        if text.endswith(mark):
+            return mark, text[: len(text) - len(mark)].rstrip()
+    return None
 
 
 def _evidence(body: str) -> str | None:
