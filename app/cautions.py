@@ -13,26 +13,12 @@ import streamlit as st
 
 from core.output.escape import plain
 from core.output.report import CAUTION_REVIEW
-
-# Below these the estimates are fragile (common rules of thumb, as in core's warning).
-SMALL_N = 30
-ROWS_PER_COEFFICIENT = 10
+from core.output.text import small_sample_lines
 
 
 def sample_lines(result: dict[str, Any]) -> list[str]:
-    """A line when the sample is small: fewer than 30 rows, or fewer than 10 rows for each
-    coefficient (intercept included)."""
-    n = result.get("n_obs") or 0
-    k = len(result.get("terms") or []) or None
-    lines = []
-    if n < SMALL_N:
-        lines.append(f"Small sample: {n} rows. Treat every figure as fragile.")
-    if k and n < ROWS_PER_COEFFICIENT * k:
-        lines.append(
-            f"Few rows for the model's size: {n} rows for {k} coefficients, fewer than {ROWS_PER_COEFFICIENT} "
-            "per coefficient. Estimates, intervals and tests are fragile; a smaller model may be more honest."
-        )
-    return lines
+    """A line when the sample is small (``core.output.text.small_sample_lines``)."""
+    return small_sample_lines(result.get("n_obs") or 0, len(result.get("terms") or []) or None)
 
 
 def lines(result: dict[str, Any]) -> list[str]:

@@ -398,3 +398,11 @@ def with_outcome_level(grid: pd.DataFrame) -> pd.DataFrame:
         if _text(out.at[i, "role"]) == "outcome":
             out.at[i, "transform"] = "level"
     return out
+
+
+def transform_options(grid: pd.DataFrame) -> list[str]:
+    """The transforms the grid offers: the registry's menu, plus any other code a spec put in
+    the grid (e.g. 'shifted_log:2'), so the cell can show it."""
+    offered = menu_codes("regressor")
+    extra = sorted(set(grid["transform"].dropna().map(str)) - set(offered))
+    return offered + extra

@@ -32,11 +32,12 @@ from app.gridspec import (
     resolve_outcome,
     spec_json,
     spec_to_grid,
+    transform_options,
     with_outcome_level,
 )
 from core.inference.choices import suggest_cluster, zero_note
 from core.model.covariance import COVARIANCE_KINDS
-from core.model.transforms import menu_codes, menu_word
+from core.model.transforms import menu_word
 from core.output.escape import plain
 from core.output.text import dropped_lines, fit_sentence, model_sentence, rows_sentence, sentence_case, zero_sentence
 
@@ -163,8 +164,7 @@ def variables_grid() -> pd.DataFrame:
         "(from one value to another). Leave it blank for a sensible default."
     )
     intake.suggestion_button(restart_grid)
-    extra = sorted(set(ss[keys.GRID_BASE]["transform"].dropna()) - set(menu_codes("regressor")))
-    options = menu_codes("regressor") + extra
+    options = transform_options(ss[keys.GRID_BASE])
     # Tall enough to show every row of a typical file without an inner scrollbar.
     height = min(38 + 35 * len(ss[keys.GRID_BASE]), 620)
     grid = st.data_editor(

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -17,12 +18,13 @@ from core.inference.effects import compute_effects, gap_curve
 from core.inference.residuals import residual_sample, variable_distributions
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
 from core.inference.units import needs_units_check, units_check
-from core.model.design import ColumnCache
-from core.model.fitted import fit_model
-from core.model.ols import NEAR_COLLINEAR
-from core.model.spec import parse_spec
+from core.model.design import ColumnCache, Design
+from core.model.fitted import Model, fit_model
+from core.model.ols import NEAR_COLLINEAR, OLSFit
+from core.model.spec import ModelSpec, parse_spec
 from core.model.transforms import Log
 from core.output.readings import reading
+from core.output.text import small_sample
 
 ALL_PARTS = frozenset(
     {
@@ -40,8 +42,9 @@ ALL_PARTS = frozenset(
         "distributions",
     }
 )
-# Fewer rows than this, or than 10 per coefficient, and results are flagged (common practice, no source).
-SMALL_SAMPLE = 30
+# The display samples (residual points, histograms of the variables) are for the app's charts
+# and are computed only when asked for by name.
+DEFAULT_PARTS = ALL_PARTS - {"residuals", "distributions"}
 
 CAUTIONS = [
     "Effects are associations in this data with the other regressors held fixed; they are not causal effects by themselves.",
@@ -51,29 +54,45 @@ CAUTIONS = [
 ]
 
 
+@dataclass
+class _Run:
+    """One analysis in progress: the inputs, the fitted model, and the warnings gathered so far."""
+
+    data: pd.DataFrame
+    spec: dict[str, Any]
+    model_spec: ModelSpec
+    design: Design
+    fit: OLSFit
+    model: Model
+    warnings: list[str]
+
+    @property
+    def ppml(self) -> bool:
+        return self.model_spec.estimator == "ppml"
+
+
 def analyze(
     data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None, columns: ColumnCache | None = None
 ) -> dict[str, Any]:
     """Fit the model described by ``spec`` on ``data`` and return the result contract (docs/contract.md §3).
 
-    ``parts`` names the sections to compute (default: all); the header keys (n_obs, dropped,
-    outcome, covariance, warnings) are always present. Raises ``FormwiseError`` with a
-    message for the user on bad input. The result holds only JSON-able values. ``columns``
-    (a ``ColumnCache`` kept by the caller for this table) lets a refit reuse the columns and
-    transforms the previous fits already computed; the result is the same without it.
+    ``parts`` names the sections to compute (default: ``DEFAULT_PARTS``, every section but the
+    display samples; see ``SECTIONS``); the header keys
+    (docs/contract.md §3.1) are always present. Raises ``FormwiseError`` with a message for the
+    user on bad input. The result holds only JSON-able values. ``columns`` (a ``ColumnCache``
+    kept by the caller for this table) lets a refit reuse the columns and transforms the
+    previous fits already computed; the result is the same without it.
     """
     if not isinstance(data, pd.DataFrame):
         raise DataError("the data must be a table (a pandas DataFrame).")
-    wanted = ALL_PARTS if parts is None else frozenset(parts)
+    wanted = DEFAULT_PARTS if parts is None else frozenset(parts)
     unknown = wanted - ALL_PARTS
     if unknown:
         raise FormwiseError(f"unknown result part(s): {', '.join(sorted(unknown))}; use some of {', '.join(sorted(ALL_PARTS))}.")
 
     model_spec = parse_spec(spec, data)
     design, fit, model = fit_model(data, model_spec, columns)
-    cov, df = model.cov, model.df
-    warnings = list(design.warnings)
-
+    run = _Run(data, spec, model_spec, design, fit, model, list(design.warnings))
     result: dict[str, Any] = {
         "n_obs": fit.n,
         "n_dropped": design.n_total - fit.n,
@@ -83,32 +102,39 @@ def analyze(
         "estimator": model_spec.estimator,
         "reference_point": design.reference,
     }
-    if fit.n < max(SMALL_SAMPLE, 10 * fit.k):
-        warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
+    if small_sample(fit.n, fit.k):
+        run.warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
     if fit.condition_number > NEAR_COLLINEAR:
-        warnings.append(
+        run.warnings.append(
             f"the regressors are nearly collinear (condition number {fit.condition_number:,.0f}); "
             "individual coefficients are imprecise, though predictions may still be fine."
         )
-
-    ppml = model_spec.estimator == "ppml"
-    if "terms" in wanted:
-        result["terms"] = _terms(design, fit.coef, cov, df, model_spec)
-    if "fit" in wanted or "retransform" in wanted:
-        measures = {
-            "r2_original_scale": None,
-            "loglik_original_scale": None,
-            "aic_original_scale": None,
-            "bic_original_scale": None,
-            "retransform": None,
-        }
-        if not ppml:
+    for keys, section in SECTIONS:
+        if wanted & keys:
             with np.errstate(all="ignore"):
-                measures = fit_on_original_scale(model, design.y_raw, fit.fitted, fit.loglik, fit.k)
-        result["fit"] = {
+                result.update(section(run))
+    result["warnings"] = list(dict.fromkeys(run.warnings))
+    result["cautions"] = CAUTIONS
+    return json_safe(result)
+
+
+def _fit_section(run: _Run) -> dict[str, Any]:
+    fit = run.fit
+    measures: dict[str, Any] = dict.fromkeys(
+        ("r2_original_scale", "loglik_original_scale", "aic_original_scale", "bic_original_scale", "retransform")
+    )
+    if run.ppml:
+        run.warnings.append(
+            "PPML models the mean of the outcome directly: no retransformation is needed, and its Poisson "
+            "pseudo-likelihood is not comparable with the least-squares models' original-scale likelihoods."
+        )
+    else:
+        measures = fit_on_original_scale(run.model, run.design.y_raw, fit.fitted, fit.loglik, fit.k)
+    return {
+        "fit": {
             "r2": fit.r2,
             "adj_r2": fit.adj_r2,
-            "r2_original_scale": measures["r2_original_scale"] if not ppml else fit.r2,
+            "r2_original_scale": fit.r2 if run.ppml else measures["r2_original_scale"],
             "loglik": fit.loglik,
             "loglik_original_scale": measures["loglik_original_scale"],
             "aic_original_scale": measures["aic_original_scale"],
@@ -116,52 +142,58 @@ def analyze(
             "sigma": fit.sigma,
             "condition_number": fit.condition_number,
             "df_resid": fit.df_resid,
-        }
-        result["retransform"] = measures["retransform"]
-        if ppml:
-            warnings.append(
-                "PPML models the mean of the outcome directly: no retransformation is needed, and its Poisson "
-                "pseudo-likelihood is not comparable with the least-squares models' original-scale likelihoods."
+        },
+        "retransform": measures["retransform"],
+    }
+
+
+def _effects_section(run: _Run) -> dict[str, Any]:
+    effects, warnings = compute_effects(run.model)
+    run.warnings.extend(warnings)
+    return {"effects": effects}
+
+
+def _units_section(run: _Run) -> dict[str, Any]:
+    checks = []
+    for column in needs_units_check(run.model_spec):
+        check = units_check(run.data, run.model_spec, column, (run.design, run.fit, run.model))
+        checks.append(check)
+        if check["moves"]:
+            code = next(r.transform.code for r in run.model_spec.regressors if r.column == column)
+            run.warnings.append(
+                f"the effect of '{column}' ({code}) changes by up to {100 * check['max_relative_move']:.0f} % "
+                "when the variable is rescaled (say from units to thousands): with this transform the result "
+                "depends on the units of measurement. Consider log (if there are no zeros) or report the units."
             )
-    if "diagnostics" in wanted:
-        result["diagnostics"] = None if ppml else diagnostics(design, fit)
-    if "residuals" in wanted:
-        result["residuals"] = None if ppml else residual_sample(design, fit)
-    if "distributions" in wanted:
-        result["distributions"] = variable_distributions(data, spec)
-    if "boxcox" in wanted:
-        result["boxcox"] = None if ppml else boxcox_profile(design.y_raw, design.X, design.weights)
-    if "predictions" in wanted:
-        sigma = fit.sigma if not ppml else 0.0
-        result["predictions"] = predict(model, model_spec.predict, sigma) if model_spec.predict else []
-    if "effects" in wanted:
-        with np.errstate(all="ignore"):
-            effects, effect_warnings = compute_effects(model)
-        result["effects"] = effects
-        warnings.extend(effect_warnings)
-    if "gap_curves" in wanted:
-        with np.errstate(all="ignore"):
-            curves = [gap_curve(model, block) for block in design.encoder.blocks]
-        result["gap_curves"] = [c for c in curves if c is not None]
-    if "curves" in wanted:
-        with np.errstate(all="ignore"):
-            result["curves"] = [effect_curve(model, block) for block in design.encoder.blocks]
-    if "units_check" in wanted:
-        checks = []
-        for column in needs_units_check(model_spec):
-            check = units_check(data, model_spec, column, (design, fit, model))
-            checks.append(check)
-            if check["moves"]:
-                code = next(r.transform.code for r in model_spec.regressors if r.column == column)
-                warnings.append(
-                    f"the effect of '{column}' ({code}) changes by up to {100 * check['max_relative_move']:.0f} % "
-                    "when the variable is rescaled (say from units to thousands): with this transform the result "
-                    "depends on the units of measurement. Consider log (if there are no zeros) or report the units."
-                )
-        result["units_check"] = checks
-    result["warnings"] = list(dict.fromkeys(warnings))
-    result["cautions"] = CAUTIONS
-    return json_safe(result)
+    return {"units_check": checks}
+
+
+def _predictions_section(run: _Run) -> dict[str, Any]:
+    points = run.model_spec.predict
+    return {"predictions": predict(run.model, points, 0.0 if run.ppml else run.fit.sigma) if points else []}
+
+
+def _blocks(run: _Run, make: Callable[[Model, Any], Any]) -> list[Any]:
+    return [found for block in run.design.encoder.blocks if (found := make(run.model, block)) is not None]
+
+
+# The result sections in the order they are computed: (parts that ask for it, how).
+SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
+    (frozenset({"terms"}), lambda r: {"terms": _terms(r.design, r.fit.coef, r.model.cov, r.model.df, r.model_spec)}),
+    (frozenset({"fit", "retransform"}), _fit_section),
+    (frozenset({"diagnostics"}), lambda r: {"diagnostics": None if r.ppml else diagnostics(r.design, r.fit)}),
+    (frozenset({"residuals"}), lambda r: {"residuals": None if r.ppml else residual_sample(r.design, r.fit)}),
+    (frozenset({"distributions"}), lambda r: {"distributions": variable_distributions(r.data, r.spec)}),
+    (
+        frozenset({"boxcox"}),
+        lambda r: {"boxcox": None if r.ppml else boxcox_profile(r.design.y_raw, r.design.X, r.design.weights)},
+    ),
+    (frozenset({"predictions"}), _predictions_section),
+    (frozenset({"effects"}), _effects_section),
+    (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curve)}),
+    (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
+    (frozenset({"units_check"}), _units_section),
+]
 
 
 def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:

@@ -14,6 +14,30 @@ import numpy as np
 from core.model.transforms import variable_label
 from core.output.numbers import compact, p_text, signed
 
+# Fewer rows than this, or fewer than ROWS_PER_COEFFICIENT rows per coefficient (intercept
+# included), and every figure is flagged as fragile (common practice, no source).
+SMALL_SAMPLE = 30
+ROWS_PER_COEFFICIENT = 10
+
+
+def small_sample(n: int, k: int) -> bool:
+    """Whether n rows are few for k coefficients (the one small-sample rule)."""
+    return n < max(SMALL_SAMPLE, ROWS_PER_COEFFICIENT * k)
+
+
+def small_sample_lines(n: int, k: int | None) -> list[str]:
+    """The cautions for a small sample: one line for fewer than 30 rows, one for fewer than 10
+    rows per coefficient."""
+    lines = []
+    if n < SMALL_SAMPLE:
+        lines.append(f"Small sample: {n} rows. Treat every figure as fragile.")
+    if k and n < ROWS_PER_COEFFICIENT * k:
+        lines.append(
+            f"Few rows for the model's size: {n} rows for {k} coefficients, fewer than {ROWS_PER_COEFFICIENT} "
+            "per coefficient. Estimates, intervals and tests are fragile; a smaller model may be more honest."
+        )
+    return lines
+
 
 def join_words(items: list[str]) -> str:
     if len(items) <= 1:
