@@ -277,6 +277,147 @@ def _forward_all_rows(transform: Transform, x: np.ndarray) -> np.ndarray:
         return np.asarray(transform.forward(x), dtype=float)
 
 
+class _Drops:
+    """The rows kept so far, and each reason rows were dropped, counted per column."""
+
+    def __init__(self, n_total: int) -> None:
+        self.keep = np.ones(n_total, dtype=bool)
+        self.dropped: list[dict[str, Any]] = []
+
+    def drop(self, mask: np.ndarray, column: str, reason: str) -> None:
+        count = int(np.count_nonzero(mask))
+        if count:
+            self.dropped.append({"column": column, "reason": reason, "count": count})
+            self.keep[mask] = False
+
+    def warnings(self, weights: str | None) -> list[str]:
+        """A sentence per reason other than missing or infinite cells, and one for those."""
+        out = []
+        for entry in self.dropped:
+            if entry["column"] == weights and entry["reason"] == "weights must be above zero":
+                out.append(f"{entry['count']} row(s) dropped because their weight in '{weights}' is zero or negative.")
+            elif entry["reason"] not in ("missing value", "infinite value"):
+                other = "level or inverse hyperbolic sine (ihs)" if "log" in entry["reason"] else "level"
+                out.append(
+                    f"{entry['count']} row(s) dropped because {entry['reason']} in '{entry['column']}'; "
+                    f"consider the {other} transform to keep them."
+                )
+        missing = sum(e["count"] for e in self.dropped if e["reason"] == "missing value")
+        if missing:
+            out.append(f"rows with missing cells in the model's columns were dropped ({missing} missing cell(s) in all).")
+        return out
+
+
+@dataclass
+class _Columns:
+    """The model's columns over every row: numbers and their finite mask, category codes, and
+    the cluster labels (kept apart: the cluster column may also be a numeric regressor)."""
+
+    raw: dict[str, np.ndarray] = field(default_factory=dict)
+    finite: dict[str, np.ndarray] = field(default_factory=dict)
+    coded: dict[str, Coded] = field(default_factory=dict)
+    groups: np.ndarray | None = None
+
+
+def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Callable[..., Any]) -> _Columns:
+    """Convert each used column once (numbers or category codes) and drop missing and infinite cells."""
+    found = _Columns()
+    categories = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
+    if spec.cluster:
+        clusters = data[spec.cluster]
+        found.groups = clusters.astype(str).to_numpy()
+        drops.drop(clusters.isna().to_numpy(), spec.cluster, "missing value")
+    others = {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}
+    for column in spec.columns:
+        series = data[column]
+        if column == spec.cluster and column not in others:
+            continue
+        if column in categories:
+            found.coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
+            drops.drop(found.coded[column].codes < 0, column, "missing value")
+            continue
+        values, found.finite[column] = cached(
+            ("numbers", column), lambda series=series, column=column: _numbers_and_finite(series, column)
+        )
+        found.raw[column] = values
+        if not found.finite[column].all():
+            drops.drop(np.isnan(values), column, "missing value")
+            drops.drop(np.isinf(values), column, "infinite value")
+    return found
+
+
+def _drop_outside_domains(spec: ModelSpec, found: _Columns, drops: _Drops, cached: Callable[..., Any]) -> None:
+    """Drop the rows each transform cannot take, and rows whose weight is not above zero."""
+
+    def invalid(column: str, transform: Transform) -> tuple[np.ndarray, str]:
+        return cached(("invalid", column, transform), lambda: transform.invalid(found.raw[column]))
+
+    bad, reason = invalid(spec.outcome_column, spec.outcome_transform)
+    drops.drop(bad & found.finite[spec.outcome_column], spec.outcome_column, reason)
+    for reg in spec.regressors:
+        if reg.column in found.coded:
+            continue
+        bad, reason = invalid(reg.column, reg.transform)
+        drops.drop(bad & found.finite[reg.column], reg.column, reason)
+    if spec.weights:
+        w = found.raw[spec.weights]
+        drops.drop(found.finite[spec.weights] & ~(w > 0), spec.weights, "weights must be above zero")
+
+
+def _category_block(
+    reg: RegressorSpec, coded: Coded, rows: np.ndarray | None, start: int
+) -> tuple[Block, list[Term], Coded, np.ndarray, str]:
+    """A category's block and dummy terms on the used rows (``rows`` None: every row), its codes
+    there, its level names per row, and its mode for the reference point."""
+    names = coded.names
+    codes = coded.codes if rows is None else coded.codes[rows]
+    tally = np.bincount(codes, minlength=len(names))
+    present = sorted(names[np.flatnonzero(tally)].tolist(), key=_level_order)
+    if len(present) < 2:
+        raise DataError(
+            f"category '{reg.column}' has a single level ('{present[0] if present else ''}') in the rows used; "
+            "remove it from the regressors."
+        )
+    top = np.flatnonzero(tally == tally.max())
+    # The mode for the reference point: ties go to the first name in sorted order (as pandas'
+    # Series.mode); the default reference level: ties go to the level seen first in the rows
+    # used (as pandas' value_counts).
+    mode = str(min(names[top].tolist()))
+    if reg.reference is not None:
+        reference = reg.reference
+    else:
+        first = top[0] if len(top) == 1 else min(top, key=lambda c: int(np.argmax(codes == c)))
+        reference = str(names[first])
+    if reference not in present:
+        raise DataError(
+            f"category '{reg.column}': the reference level '{reference}' does not occur in the rows used; "
+            f"pick one of: {', '.join(present[:10])}."
+        )
+    levels = [lv for lv in present if lv != reference]
+    block = Block(reg, start, start + len(levels), levels=levels, reference_level=reference)
+    terms = [Term(f"{reg.column}[{level}]", reg.column, "category", level=level) for level in levels]
+    return block, terms, Coded(codes, names), names[codes], mode
+
+
+def _numeric_block(reg: RegressorSpec, x: np.ndarray, start: int) -> tuple[Block, list[Term]]:
+    """A numeric regressor's block and terms (a quadratic has two)."""
+    if len(x) and float(np.ptp(x)) == 0:
+        raise DataError(
+            f"regressor '{reg.column}' has the same value ({x[0]:g}) in every row used, so its effect "
+            "cannot be estimated; remove it from the regressors."
+        )
+    block = Block(reg, start, start + reg.transform.width, binary=bool(len(x)) and _zero_one(x))
+    terms = []
+    for power in reg.transform.powers():
+        name = reg.column if reg.transform.code == "level" else f"{reg.transform.code}({reg.column})"
+        if power == 2:
+            name = f"{reg.column}^2"
+        elif power == 1:
+            name = reg.column
+        terms.append(Term(name, reg.column, reg.transform.code, power=power))
+    return block, terms
+
+
 def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | None = None) -> Design:
     """Transform, drop and encode: the design matrix for ``spec`` on ``data``. ``columns``
     keeps converted and transformed columns between calls on the same table (see
@@ -288,71 +429,12 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
     n_total = len(data)
     if n_total == 0:
         raise DataError("the data has no rows; load a file with a header row and at least a few data rows.")
-    dropped: list[dict[str, Any]] = []
-    warnings: list[str] = []
-    keep = np.ones(n_total, dtype=bool)
+    drops = _Drops(n_total)
+    found = _read_columns(data, spec, drops, cached)
+    _drop_outside_domains(spec, found, drops, cached)
+    raw = found.raw
 
-    def drop(mask: np.ndarray, column: str, reason: str) -> None:
-        count = int(np.count_nonzero(mask))
-        if count:
-            dropped.append({"column": column, "reason": reason, "count": count})
-            keep[mask] = False
-
-    raw: dict[str, np.ndarray] = {}
-    finite: dict[str, np.ndarray] = {}
-    coded: dict[str, Coded] = {}
-    category_columns = {r.column for r in spec.regressors if isinstance(r.transform, Category)}
-    group_labels = None
-    if spec.cluster:
-        # Group labels are kept apart: the cluster column may also be a numeric regressor.
-        clusters = data[spec.cluster]
-        group_labels = clusters.astype(str).to_numpy()
-        drop(clusters.isna().to_numpy(), spec.cluster, "missing value")
-    for column in spec.columns:
-        series = data[column]
-        if column == spec.cluster and column not in {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}:
-            continue
-        if column in category_columns:
-            coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
-            drop(coded[column].codes < 0, column, "missing value")
-            continue
-        values, finite[column] = cached(
-            ("numbers", column), lambda series=series, column=column: _numbers_and_finite(series, column)
-        )
-        raw[column] = values
-        if not finite[column].all():
-            drop(np.isnan(values), column, "missing value")
-            drop(np.isinf(values), column, "infinite value")
-
-    def invalid(column: str, transform: Transform) -> tuple[np.ndarray, str]:
-        return cached(("invalid", column, transform), lambda: transform.invalid(raw[column]))
-
-    y_transform = spec.outcome_transform
-    bad, reason = invalid(spec.outcome_column, y_transform)
-    drop(bad & finite[spec.outcome_column], spec.outcome_column, reason)
-    for reg in spec.regressors:
-        if reg.column in category_columns:
-            continue
-        bad, reason = invalid(reg.column, reg.transform)
-        drop(bad & finite[reg.column], reg.column, reason)
-    if spec.weights:
-        w = raw[spec.weights]
-        drop(finite[spec.weights] & ~(w > 0), spec.weights, "weights must be above zero")
-
-    for entry in dropped:
-        if entry["column"] == spec.weights and entry["reason"] == "weights must be above zero":
-            warnings.append(f"{entry['count']} row(s) dropped because their weight in '{spec.weights}' is zero or negative.")
-        elif entry["reason"] not in ("missing value", "infinite value"):
-            other = "level or inverse hyperbolic sine (ihs)" if "log" in entry["reason"] else "level"
-            warnings.append(
-                f"{entry['count']} row(s) dropped because {entry['reason']} in '{entry['column']}'; "
-                f"consider the {other} transform to keep them."
-            )
-    missing_total = sum(e["count"] for e in dropped if e["reason"] == "missing value")
-    if missing_total:
-        warnings.append(f"rows with missing cells in the model's columns were dropped ({missing_total} missing cell(s) in all).")
-
-    rows = np.flatnonzero(keep)
+    rows = np.flatnonzero(drops.keep)
     n = len(rows)
     every_row = n == n_total
 
@@ -363,71 +445,28 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
             return array[rows]
         return array if array.flags.owndata and array.flags.writeable else array.copy()
 
-    values = {reg.column: used(raw[reg.column]) for reg in spec.regressors if reg.column not in category_columns}
+    values = {reg.column: used(raw[reg.column]) for reg in spec.regressors if reg.column not in found.coded}
     codes_used: dict[str, Coded] = {}
     modes: dict[str, str] = {}
-
     blocks: list[Block] = []
     terms = [Term(name="intercept", column=None, transform=None)]
     width = 1
     for reg in spec.regressors:
         if isinstance(reg.transform, Category):
-            names = coded[reg.column].names
-            codes = coded[reg.column].codes[rows] if not every_row else coded[reg.column].codes
-            values[reg.column] = names[codes]
-            codes_used[reg.column] = Coded(codes, names)
-            tally = np.bincount(codes, minlength=len(names))
-            present = sorted(names[np.flatnonzero(tally)].tolist(), key=_level_order)
-            if len(present) < 2:
-                raise DataError(
-                    f"category '{reg.column}' has a single level ('{present[0] if present else ''}') in the rows used; "
-                    "remove it from the regressors."
-                )
-            top = np.flatnonzero(tally == tally.max())
-            # The mode for the reference point: ties go to the first name in sorted order (as
-            # pandas' Series.mode); the default reference level: ties go to the level seen first
-            # in the rows used (as pandas' value_counts).
-            modes[reg.column] = str(min(names[top].tolist()))
-            if reg.reference is not None:
-                reference = reg.reference
-            else:
-                first = top[0] if len(top) == 1 else min(top, key=lambda c: int(np.argmax(codes == c)))
-                reference = str(names[first])
-            if reference not in present:
-                raise DataError(
-                    f"category '{reg.column}': the reference level '{reference}' does not occur in the rows used; "
-                    f"pick one of: {', '.join(present[:10])}."
-                )
-            levels = [lv for lv in present if lv != reference]
-            blocks.append(Block(reg, width, width + len(levels), levels=levels, reference_level=reference))
-            for level in levels:
-                terms.append(Term(f"{reg.column}[{level}]", reg.column, "category", level=level))
-            width += len(levels)
-            continue
-        x = values[reg.column]
-        spread = float(np.ptp(x)) if n else 0.0
-        if n and spread == 0:
-            raise DataError(
-                f"regressor '{reg.column}' has the same value ({x[0]:g}) in every row used, so its effect "
-                "cannot be estimated; remove it from the regressors."
+            block, new_terms, codes_used[reg.column], values[reg.column], modes[reg.column] = _category_block(
+                reg, found.coded[reg.column], None if every_row else rows, width
             )
-        binary = bool(n) and _zero_one(x)
-        blocks.append(Block(reg, width, width + reg.transform.width, binary=binary))
-        for power in reg.transform.powers():
-            name = reg.column if reg.transform.code == "level" else f"{reg.transform.code}({reg.column})"
-            if power == 2:
-                name = f"{reg.column}^2"
-            elif power == 1:
-                name = reg.column
-            terms.append(Term(name, reg.column, reg.transform.code, power=power))
-        width += reg.transform.width
+        else:
+            block, new_terms = _numeric_block(reg, values[reg.column], width)
+        blocks.append(block)
+        terms.extend(new_terms)
+        width = block.stop
 
     if n <= width:
         raise DataError(
             f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
             "coefficients. Use fewer regressors or categories, or load more data."
         )
-
     encoder = Encoder(blocks, width)
     bases = None
     if columns is not None:
@@ -444,14 +483,12 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
             "there is nothing to explain. Pick another outcome."
         )
+    y_transform, outcome = spec.outcome_transform, spec.outcome_column
     if columns is not None:
-        outcome = spec.outcome_column
         y = used(cached(("forward", outcome, y_transform), lambda: _forward_all_rows(y_transform, raw[outcome])))
     else:
         with np.errstate(all="ignore"):
             y = y_transform.forward(y_raw)
-
-    reference = reference_point(spec, blocks, values, modes)
     return Design(
         y=y,
         y_raw=y_raw,
@@ -460,12 +497,12 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
         encoder=encoder,
         values=values,
         weights=used(raw[spec.weights]) if spec.weights else None,
-        groups=used(group_labels) if group_labels is not None else None,
+        groups=used(found.groups) if found.groups is not None else None,
         rows=rows,
         n_total=n_total,
-        dropped=dropped,
-        warnings=warnings,
-        reference=reference,
+        dropped=drops.dropped,
+        warnings=drops.warnings(spec.weights),
+        reference=reference_point(spec, blocks, values, modes),
     )
 
 
