@@ -142,19 +142,7 @@ def _check_keys(entry: dict, allowed: set[str], where: str) -> None:
         raise SpecError(f"{where}: unknown key '{unknown[0]}'; allowed keys are {', '.join(sorted(allowed))}.")
 
 
-def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
-    """Validate a spec dict against the data and return the parsed model spec."""
-    if not isinstance(spec, dict):
-        raise SpecError("spec: must be a JSON object with at least 'outcome' and 'regressors'.")
-    _check_keys(spec, TOP_KEYS, "spec")
-
-    outcome = spec.get("outcome")
-    if not isinstance(outcome, dict):
-        raise SpecError('spec.outcome: must be an object like {"column": "revenue", "transform": "log"}.')
-    _check_keys(outcome, OUTCOME_KEYS, "spec.outcome")
-    outcome_column = _require_column(outcome.get("column"), data, "spec.outcome")
-    outcome_transform = parse_transform(outcome.get("transform", "level"), "outcome", "spec.outcome")
-
+def _parse_regressors(spec: dict, data: pd.DataFrame, outcome_column: str) -> list[RegressorSpec]:
     entries = spec.get("regressors", [])
     if not isinstance(entries, list):
         raise SpecError("spec.regressors: must be a list of objects, one per regressor.")
@@ -182,6 +170,11 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
             raise SpecError(f"{where}: a category changes from one level to another, e.g. 'Coast->Inland'.")
         regressors.append(RegressorSpec(column, transform, parsed_change, None if reference is None else str(reference)))
 
+    return regressors
+
+
+def _parse_estimation(spec: dict, data: pd.DataFrame, outcome_transform: Transform) -> tuple[str, str, str | None]:
+    """The estimator, the covariance kind and the cluster column it needs."""
     estimator = spec.get("estimator") or "ols"
     if estimator not in ESTIMATORS:
         raise SpecError(f"spec.estimator: unknown estimator '{estimator}'; use one of: {', '.join(ESTIMATORS)}.")
@@ -209,12 +202,11 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
     else:
         cluster = None
 
-    weights = spec.get("weights")
-    if weights:
-        weights = _require_column(weights, data, "spec.weights")
-    else:
-        weights = None
+    return estimator, covariance, cluster
 
+
+def _parse_points(spec: dict, regressors: list[RegressorSpec]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """The reference values ``at`` and the prediction points, each naming regressors of the model."""
     at = spec.get("at") or {}
     if not isinstance(at, dict):
         raise SpecError('spec.at: must be an object of reference values, e.g. {"drink_price": 4.5}.')
@@ -237,6 +229,31 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
             if isinstance(value, bool) or not isinstance(value, (int, float, str)):
                 raise SpecError(f"spec.predict[{i}].{key}: must be a number (or a level name for a category).")
 
+    return at, predict
+
+
+def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
+    """Validate a spec dict against the data and return the parsed model spec."""
+    if not isinstance(spec, dict):
+        raise SpecError("spec: must be a JSON object with at least 'outcome' and 'regressors'.")
+    _check_keys(spec, TOP_KEYS, "spec")
+
+    outcome = spec.get("outcome")
+    if not isinstance(outcome, dict):
+        raise SpecError('spec.outcome: must be an object like {"column": "revenue", "transform": "log"}.')
+    _check_keys(outcome, OUTCOME_KEYS, "spec.outcome")
+    outcome_column = _require_column(outcome.get("column"), data, "spec.outcome")
+    outcome_transform = parse_transform(outcome.get("transform", "level"), "outcome", "spec.outcome")
+
+    regressors = _parse_regressors(spec, data, outcome_column)
+    estimator, covariance, cluster = _parse_estimation(spec, data, outcome_transform)
+    weights = spec.get("weights")
+    if weights:
+        weights = _require_column(weights, data, "spec.weights")
+    else:
+        weights = None
+
+    at, predict = _parse_points(spec, regressors)
     name = spec.get("name")
     if name is not None and not isinstance(name, str):
         raise SpecError("spec.name: must be text.")
