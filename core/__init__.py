@@ -6,6 +6,7 @@ passed as ``columns=`` lets the refits of an edit loop reuse converted and trans
 
 from core.analysis import analyze
 from core.errors import DataError, FormwiseError, SpecError
+from core.intake.advisor import suggest, suggest_with_notes
 from core.model.design import ColumnCache
 
-__all__ = ["analyze", "ColumnCache", "FormwiseError", "SpecError", "DataError"]
+__all__ = ["analyze", "suggest", "suggest_with_notes", "ColumnCache", "FormwiseError", "SpecError", "DataError"]

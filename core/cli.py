@@ -1,4 +1,6 @@
-"""Command line: ``analyze DATA --spec SPEC.json`` (or ``--demo``), ``report`` and ``profile DATA``.
+"""Command line: ``analyze DATA --spec SPEC.json`` (or ``--demo``), ``report``, ``profile DATA``
+and ``suggest DATA`` (the advisor's starting model as a spec: ``suggest DATA > spec.json`` then
+``analyze DATA --spec spec.json`` gives the app's first screen for that file).
 
 Success exits 0. Bad input exits 2 with one ``error: ...`` line on stderr; never a traceback.
 """
@@ -12,6 +14,7 @@ from typing import Any
 
 from core.analysis import analyze
 from core.errors import FormwiseError
+from core.intake.advisor import suggest_with_notes
 from core.intake.profile import profile_table
 from core.intake.reader import read_table, read_table_with_notes
 from core.model.specfile import read_spec_file
@@ -66,6 +69,10 @@ def _parser() -> argparse.ArgumentParser:
     look = commands.add_parser("profile", help="print each column's profile and suggested transform as JSON")
     look.add_argument("data", help="data file: .csv, .tsv, .txt or .xlsx")
     look.add_argument("--sheet", help="sheet name, for .xlsx files")
+    start = commands.add_parser("suggest", help="print the advisor's starting model for a data file as a JSON spec")
+    start.add_argument("data", help="data file: .csv, .tsv, .txt or .xlsx")
+    start.add_argument("--sheet", help="sheet name, for .xlsx files")
+    start.add_argument("--notes", action="store_true", help="also print why each column was used or left out (on stderr)")
     return parser
 
 
@@ -81,6 +88,11 @@ def main(argv: list[str] | None = None) -> int:
         elif args.command == "profile":
             frame, notes = read_table_with_notes(args.data, sheet=args.sheet)
             _emit(to_json(profile_table(frame, notes)), None)
+        elif args.command == "suggest":
+            spec, why = suggest_with_notes(read_table(args.data, sheet=args.sheet))
+            _emit(to_json(spec), None)
+            for note in why if args.notes else []:
+                print(f"note: {note['text']}", file=sys.stderr)
         return 0
     except FormwiseError as exc:
         print(f"error: {exc}", file=sys.stderr)

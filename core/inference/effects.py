@@ -38,9 +38,10 @@ from typing import Any
 
 import numpy as np
 
+from core.inference.changes import default_change_text
 from core.model.design import Block, match_level
 from core.model.fitted import Model
-from core.model.spec import Change
+from core.model.spec import Change, parse_change
 
 # The sample-average effect is taken over a seeded random sample of rows when the data are
 # larger than this (its sampling error is then far below the effect's own standard error) ...
@@ -91,17 +92,11 @@ def effect_arrays(
 
 
 def default_change(block: Block, x: np.ndarray) -> Change:
-    """A sensible change when the spec names none (common practice, no source): a 0->1
-    switch for dummies, +10 % for log-type scales, else one unit or a round step near 1 SD."""
-    if block.binary:
-        return Change(text="0->1", kind="switch", start=0.0, end=1.0)
-    if block.spec.transform.code != "level" and block.spec.transform.code != "quadratic":
-        return Change(text="+10%", kind="percent", amount=10.0)
-    sd = float(np.std(x))
-    if sd >= 1 or sd == 0:
-        return Change(text="+1", kind="units", amount=1.0)
-    step = float(f"{sd:.0e}")
-    return Change(text=f"+{step:g}", kind="units", amount=step)
+    """The change when the spec names none, by the one rule in ``core.inference.changes``
+    (common practice, no source): 0->1 for dummies, +1 or a round step for whole numbers,
+    +10 % on relative scales, else a round step near the typical spread."""
+    text = default_change_text(x, block.spec.transform.relative_change, binary=block.binary)
+    return parse_change(text, f"spec.regressors ({block.spec.column})")
 
 
 def _start_end(change: Change, x_ref: Any) -> tuple[Any, Any]:

@@ -1,37 +1,32 @@
-"""Column profiles and the transform advisor (SPEC §5 ``profile``, §6 intake and advisor).
+"""Column profiles (docs/contract.md §4 ``profile``): what each column holds, before any advice.
 
 ``profile_table(frame, notes)`` describes every column — its kind, missing values, zeros,
-negatives, range, skewness before and after a log or IHS, a small histogram — and suggests a
-transform with reasons in plain words (``suggest_transform``).
+negatives, range, skewness before and after a log or IHS, a small histogram, the Box-Cox λ of
+the column alone — and adds the advisor's transform with reasons in plain words
+(``core.intake.advisor.suggest_transform``, re-exported here).
 
 Kinds come from the values and the column name together: the name says what a number means
 (a price, an age), the values say what a transform can do with it (zeros, negatives, skew).
-
-The advisor's rules are rules of thumb: common practice in applied work, no single source.
-They are written out in ``suggest_transform`` so that a user can read and overrule them.
-The one published point they lean on: effects of IHS and of logs with zeros depend on the
-units of measurement (Aihounton & Henningsen 2021, Econometrics Journal 24(2); Chen & Roth
-2024, QJE 139(2)), which is why a zero-heavy amount gets IHS with that caution attached.
+Skewness and Box-Cox come from scipy (``scipy.stats.skew``, ``scipy.stats.boxcox``).
 """
 
 from __future__ import annotations
 
 import math
 import re
+import warnings
 from typing import Any
 
 import numpy as np
 import pandas as pd
+from scipy import stats
 
-from core.inference.retransform import boxcox_profile
+from core.intake.advisor import name_words, suggest_transform
 from core.intake.reader import ATTRS_KEY
 
 KINDS = ("money", "count", "duration_years", "share", "percent", "binary", "category", "continuous", "identifier", "date", "text")
 HISTOGRAM_BINS = 20
-# Thresholds of the advisor (common practice, no source).
-SKEWED = 1.0  # |skewness| above this reads as clearly skewed
-STRONGLY_SKEWED = 2.0  # shares and percentages leave levels only beyond this
-LARGE_COUNT_MEDIAN = 10.0  # counts whose positive values have a median this large behave like amounts
+# Thresholds of the column kinds (common practice, no source); the advisor's own are in advisor.py.
 CATEGORY_MAX_LEVELS = 50  # more distinct text values than this (and not unique) reads as free text
 IDENTIFIER_MIN_DISTINCT = 20  # a column named like an id with more distinct values is an identifier
 DATE_SHARE = 0.9  # share of distinct text values that must look like dates
@@ -40,7 +35,7 @@ BOXCOX_SAMPLE = 5_000  # Box-Cox λ of a long column from this many evenly space
 # Name words, matched against the column name split at non-letters and camelCase.
 _MONEY_STEMS = (
     "price", "revenue", "cost", "spend", "spent", "income", "wage", "salar", "amount", "sales",
-    "expend", "expense", "earning", "profit", "payment", "budget", "turnover", "dollar", "euro",
+    "expend", "expense", "earn", "fare", "profit", "payment", "budget", "turnover", "dollar", "euro",
     "wealth", "asset", "debt", "loan", "prix", "preis", "precio", "ventes", "umsatz", "kosten",
 )  # fmt: skip
 _MONEY_WORDS = {"pay", "fee", "fees", "tax", "taxes", "rent", "usd", "eur", "gbp", "gdp"}
@@ -52,6 +47,9 @@ _ID_WORDS = {
     "id", "ids", "identifier", "code", "key", "uuid", "guid", "sku", "zip", "zipcode", "postcode",
     "fips", "isbn", "ssn", "phone", "index", "idx", "row", "rowid",
 }  # fmt: skip
+# Units that identifiers number: 'distid', 'schid', 'countyid'; and words naming the group itself.
+_ID_STEMS = {"dist", "sch", "school", "study", "county", "state", "firm", "person", "house", "hh", "int", "cust", "user", "store", "emp", "student", "fam", "ind", "case", "group", "team", "p", "u"}  # fmt: skip
+_GROUP_WORDS = {"county", "state", "district", "nr", "puma", "team", "case", "firm", "school", "country", "city"}
 _SHARE_WORDS = {"share", "shr", "ratio", "fraction", "frac", "prop", "proportion", "rate"}
 _PERCENT_WORDS = {"pct", "percent", "percentage", "perc"}
 _MONTHS = r"(?:jan|feb|mar|apr|may|jun|jul|aug|sep|sept|oct|nov|dec)[a-z]*\.?"
@@ -65,11 +63,13 @@ _DATE_PATTERNS = {
 
 
 # --- the table ----------------------------------------------------------------------------------
-def profile_table(frame: pd.DataFrame, notes: list[str] | None = None) -> dict[str, Any]:
+def profile_table(frame: pd.DataFrame, notes: list[str] | None = None, boxcox: bool = True) -> dict[str, Any]:
     """Profile every column and suggest a transform for each; plain JSON-able data.
 
     ``notes`` are the reader's intake notes (``read_table_with_notes``); when left out, the
-    notes the reader stored on the frame are used.
+    notes the reader stored on the frame are used. ``boxcox=False`` leaves each column's Box-Cox
+    λ out (None): scipy's search costs about 30 to 70 ms a column, and the advisor does not
+    read it.
     """
     intake = frame.attrs.get(ATTRS_KEY) or {}
     facts = intake.get("columns") or {}
@@ -77,14 +77,14 @@ def profile_table(frame: pd.DataFrame, notes: list[str] | None = None) -> dict[s
         notes = list(intake.get("notes") or [])
     columns = []
     for position, column in enumerate(frame.columns):
-        entry = profile_column(frame.iloc[:, position], str(column), facts.get(column) or {})
+        entry = profile_column(frame.iloc[:, position], str(column), facts.get(column) or {}, boxcox)
         entry["suggested_transform"], entry["reasons"] = suggest_transform(entry)
         columns.append(_strict(entry))
     return {"intake": [str(n) for n in notes], "n_rows": int(len(frame)), "columns": columns}
 
 
 def _strict(value: Any) -> Any:
-    """NaN and infinities become None, so the profile is strict JSON (SPEC §2)."""
+    """NaN and infinities become None, so the profile is strict JSON (docs/contract.md §1)."""
     if isinstance(value, float):
         return value if math.isfinite(value) else None
     if isinstance(value, dict):
@@ -95,7 +95,7 @@ def _strict(value: Any) -> Any:
 
 
 # --- one column ---------------------------------------------------------------------------------
-def profile_column(series: pd.Series, column: str, facts: dict[str, Any] | None = None) -> dict[str, Any]:
+def profile_column(series: pd.Series, column: str, facts: dict[str, Any] | None = None, boxcox: bool = True) -> dict[str, Any]:
     """Kind, counts, range, skewness and histogram of one column (no advice yet)."""
     facts = facts or {}
     entry: dict[str, Any] = {
@@ -123,7 +123,7 @@ def profile_column(series: pd.Series, column: str, facts: dict[str, Any] | None 
     if pd.api.types.is_bool_dtype(series) or (
         pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_complex_dtype(series)
     ):
-        _numeric_profile(entry, series.astype(float).to_numpy(dtype=float, na_value=np.nan), column, facts)
+        _numeric_profile(entry, series.astype(float).to_numpy(dtype=float, na_value=np.nan), column, facts, boxcox)
     elif pd.api.types.is_datetime64_any_dtype(series):
         stamps = series.dropna()
         entry["kind"] = "date"
@@ -135,7 +135,7 @@ def profile_column(series: pd.Series, column: str, facts: dict[str, Any] | None 
     return entry
 
 
-def _numeric_profile(entry: dict[str, Any], values: np.ndarray, column: str, facts: dict[str, Any]) -> None:
+def _numeric_profile(entry: dict[str, Any], values: np.ndarray, column: str, facts: dict[str, Any], boxcox: bool) -> None:
     finite = values[np.isfinite(values)]
     entry["n_infinite"] = int(np.isinf(values).sum())
     entry["kind"] = "continuous"
@@ -162,7 +162,8 @@ def _numeric_profile(entry: dict[str, Any], values: np.ndarray, column: str, fac
     entry["kind"], flags = _numeric_kind(finite, distinct, column, facts, len(finite))
     entry["flags"].extend(flags)
     if (
-        entry["kind"] in ("money", "count", "continuous", "share", "percent", "duration_years")
+        boxcox
+        and entry["kind"] in ("money", "count", "continuous", "share", "percent", "duration_years")
         and len(distinct) >= 3
         and entry["min"] > 0
     ):
@@ -172,7 +173,7 @@ def _numeric_profile(entry: dict[str, Any], values: np.ndarray, column: str, fac
 def _numeric_kind(
     finite: np.ndarray, distinct: np.ndarray, column: str, facts: dict[str, Any], n_values: int
 ) -> tuple[str, list[str]]:
-    words = _words(column)
+    words = name_words(column)
     lo, hi = float(distinct[0]), float(distinct[-1])
     integer = bool(np.all(distinct == np.round(distinct)))
     flags: list[str] = []
@@ -184,10 +185,14 @@ def _numeric_kind(
         return "continuous", [*flags, "calendar_year"]
     if integer and words and words <= _TIME_WORDS | _TIME_FILLER and words & _TIME_WORDS:
         return ("count" if lo >= 0 else "continuous"), [*flags, "time_index"]
-    if integer and words & _ID_WORDS:
+    if words & {"date", "dates"}:
+        return ("count" if integer and lo >= 0 else "continuous"), [*flags, "time_index"]  # e.g. 1947.01
+    if integer and _id_name(words):
         unique_rows = len(distinct) == n_values
         if unique_rows or len(distinct) > IDENTIFIER_MIN_DISTINCT:
             return "identifier", flags
+        if len(distinct) >= 3 and not words & _ID_WORDS:
+            return "category", [*flags, "group_codes"]  # a few numbered groups: labels, not amounts
     if (
         integer
         and re.fullmatch(r"column_\d+|unnamed: ?\d+", column.lower())
@@ -239,7 +244,7 @@ def _text_profile(entry: dict[str, Any], series: pd.Series, column: str, facts: 
         entry["flags"].append(f"date_{date[0]}")
         entry["first"], entry["last"] = date[1], date[2]
         return
-    words = _words(column)
+    words = name_words(column)
     n_values = int(counts.sum())
     if len(counts) == n_values and n_values >= 3:
         entry["kind"] = "identifier"
@@ -300,149 +305,17 @@ def _parse_dates(values: list[str], label: str) -> pd.Series | None:
         return None
 
 
-# --- the advisor --------------------------------------------------------------------------------
-def suggest_transform(entry: dict[str, Any]) -> tuple[str | None, list[str]]:
-    """A transform for one profiled column and the reasons for it, in plain words.
-
-    Rules of thumb (common practice, no single source):
-    - positive money amounts and large counts -> log (effects read as percent changes);
-    - durations in years -> level (the effect of one more year);
-    - zeros or negatives -> never log (say how many rows it would drop): IHS for amounts and
-      large counts with zeros, level otherwise;
-    - shares and percentages -> level, unless strongly skewed and positive;
-    - binary -> level; category -> category;
-    - identifier, date, text -> not used (None), with the reason.
-    Returns (transform name as in SPEC §3 or None, reasons).
-    """
-    kind = entry.get("kind")
-    flags = set(entry.get("flags") or [])
-    transform, reasons = _advise(kind, flags, entry)
-    extra = []
-    if entry.get("n_missing"):
-        extra.append(
-            f"{_count(entry['n_missing'])} missing value{'s' if entry['n_missing'] != 1 else ''}; a model leaves those rows out"
-        )
-    if entry.get("n_infinite"):
-        extra.append(
-            f"{_count(entry['n_infinite'])} infinite value{'s' if entry['n_infinite'] != 1 else ''}; a model leaves those rows out"
-        )
-    return transform, reasons + (extra if transform is not None else [])
-
-
-def _advise(kind: str | None, flags: set[str], e: dict[str, Any]) -> tuple[str | None, list[str]]:
-    if "empty" in flags:
-        return None, ["no values: every cell is blank or missing; not usable"]
-    if kind == "identifier":
-        example = e["top_values"][0]["value"] if e.get("top_values") else None
-        shown = f" such as '{example}'" if example is not None else ""
-        what = (
-            "a saved row number" if "row_number" in flags else f"an identifier ({_count(e['n_distinct'])} distinct values{shown})"
-        )
-        return None, [f"{what}; not a variable for the model — it can define clusters for standard errors"]
-    if kind == "date":
-        span = f" ({e['first']} to {e['last']})" if e.get("first") else ""
-        return None, [f"dates{span}; not used directly — derive a trend or period column from them to model time"]
-    if kind == "text":
-        if "mixed_text" in flags:
-            rows = e.get("text_rows") or []
-            where = f" (rows {', '.join(map(str, rows[:8]))})" if rows else ""
-            return None, [f"mostly numbers, but some cells hold text{where}; fix or blank those cells to use it as a number"]
-        return None, [f"free text ({_count(e['n_distinct'])} distinct values); not used in a model"]
-    if "constant" in flags:
-        value = e["top_values"][0]["value"] if e.get("top_values") else e.get("min")
-        return None, [f"the same value ({value}) in every row; it cannot explain anything"]
-    if kind == "category":
-        levels = e.get("top_values") or []
-        shown = ", ".join(f"{lv['value']} {_count(lv['count'])}" for lv in levels[:5])
-        more = ", ..." if e["n_distinct"] > 5 else ""
-        reasons = [
-            f"{_count(e['n_distinct'])} levels ({shown}{more}); one dummy per level, the most frequent is the reference by default"
-        ]
-        if "numeric_codes" in flags:
-            reasons.append("two number codes that are not 0/1 read as labels, not amounts")
-        if e["n_distinct"] > 20:
-            reasons.append(f"{e['n_distinct']} levels add {e['n_distinct'] - 1} coefficients; consider grouping rare levels")
-        return "category", reasons
-    if kind == "binary":
-        ones = next((v["count"] for v in e.get("top_values") or [] if v["value"] == 1), 0)
-        share = ones / max(1, e["n"] - e["n_missing"] - e.get("n_infinite", 0))
-        return "level", [f"0/1 indicator ({share:.0%} ones); a dummy enters in levels"]
-    span = f"{_short(e['min'])} to {_short(e['max'])}"
-    if "time_index" in flags or "calendar_year" in flags:
-        if "calendar_year" in flags:
-            what, span = "calendar years", f"{e['min']:.0f} to {e['max']:.0f}"
-        else:
-            what = "a time index"
-        return "level", [
-            f"{what} ({span}): level fits a linear trend; choose category for a separate effect per period; a log of time makes no sense"
-        ]
-    if kind == "duration_years":
-        return "level", [f"a duration in years ({span}); level gives the effect of one more year"]
-    if kind in ("share", "percent"):
-        return _advise_share(kind, e, span)
-    if kind == "money":
-        return _advise_amount("money amounts", e, span, always_log=True)
-    if kind == "count":
-        if (e.get("median_positive") or 0.0) >= LARGE_COUNT_MEDIAN and e["max"] >= 100:
-            return _advise_amount("counts", e, span, always_log=True)
-        reasons = [f"small counts ({span}, median {_short(e['median'])}); level keeps every row and reads as one more unit"]
-        if e["n_zero"]:
-            reasons.append("as the outcome, consider PPML (estimator 'ppml'): it keeps the zeros and reads like a log model")
-        return "level", reasons
-    return _advise_amount("values", e, span, always_log=False)
-
-
-def _advise_share(kind: str, e: dict[str, Any], span: str) -> tuple[str | None, list[str]]:
-    unit = "shares between 0 and 1" if kind == "share" else "percentages"
-    step = "+0.1 reads as ten percentage points" if kind == "share" else "+1 reads as one percentage point"
-    skew, after = e.get("skewness"), e.get("skewness_log")
-    if e["min"] > 0 and skew is not None and skew > STRONGLY_SKEWED and after is not None and abs(after) < abs(skew) / 2:
-        return "log", [
-            f"{unit} ({span}) but strongly right-skewed (skewness {skew:.1f} -> {after:.1f} after log); a log reads as percent changes of the {kind}"
-        ]
-    reasons = [f"{unit} ({span}); level: {step}"]
-    if skew is not None and abs(skew) > SKEWED:
-        reasons.append(f"skewed (skewness {skew:.1f}), but not enough to leave levels")
-    return "level", reasons
-
-
-def _advise_amount(what: str, e: dict[str, Any], span: str, always_log: bool) -> tuple[str | None, list[str]]:
-    skew, skew_log, skew_ihs = e.get("skewness"), e.get("skewness_log"), e.get("skewness_ihs")
-    drop = e.get("log_would_drop", 0)
-    if drop == 0:
-        shape = (
-            "right-skewed"
-            if skew is not None and skew > 0.5
-            else "not much skewed"
-            if skew is not None and abs(skew) <= 0.5
-            else "left-skewed"
-        )
-        change = f" (skewness {skew:.1f} -> {skew_log:.1f} after log)" if skew is not None and skew_log is not None else ""
-        if always_log:
-            return "log", [f"positive {what} ({span}), {shape}{change}; a log reads as percent changes (elasticities)"]
-        if skew is not None and skew > SKEWED and skew_log is not None and abs(skew_log) < abs(skew):
-            return "log", [f"positive {what} ({span}), right-skewed{change}; a log tames the skew"]
-        return "level", [f"positive {what} ({span}), {shape} (skewness {_fmt(skew)}); level is fine"]
-    share = drop / max(1, e["n"] - e["n_missing"] - e.get("n_infinite", 0))
-    zeros, negatives = e["n_zero"], e["n_negative"]
-    held = " and ".join(
-        p for p in (f"{_count(zeros)} zeros" if zeros else "", f"{_count(negatives)} negative values" if negatives else "") if p
-    )
-    lost = f"{held} ({share:.0%} of rows); a log would drop {_count(drop)} row{'s' if drop != 1 else ''}"
-    if negatives == 0 and (always_log or (skew is not None and skew > SKEWED)):
-        change = f" (skewness {_fmt(skew)} -> {_fmt(skew_ihs)} after IHS)" if skew is not None and skew_ihs is not None else ""
-        return "ihs", [
-            f"{what} with {lost}",
-            f"IHS keeps the zeros and behaves like a log for large values{change}",
-            "IHS effects depend on the units of measurement (Aihounton & Henningsen 2021); report the units used",
-        ]
-    return "level", [f"{what} with {lost}; level keeps every row (skewness {_fmt(skew)})"]
-
-
 # --- small helpers ------------------------------------------------------------------------------
-def _words(column: str) -> set[str]:
-    spaced = re.sub(r"([a-z0-9])([A-Z])", r"\1 \2", column)
-    return {w for w in re.split(r"[^0-9a-zA-Z]+", spaced.lower()) if w}
+def _id_name(words: set[str]) -> bool:
+    """Whether the name reads as an identifier or a group code: 'id', 'distid', 'dcode', 'county'."""
+    if words & (_ID_WORDS | _GROUP_WORDS):
+        return True
+    for word in words:
+        if len(word) > 4 and word.endswith(("code", "fips")):
+            return True
+        if word.endswith("id") and word[:-2] in _ID_STEMS:
+            return True
+    return False
 
 
 def _money_name(column: str, words: set[str]) -> bool:
@@ -452,10 +325,12 @@ def _money_name(column: str, words: set[str]) -> bool:
 
 
 def _skew(values: np.ndarray) -> float | None:
-    """Sample skewness, adjusted Fisher-Pearson G1 (as spreadsheets' SKEW); None when undefined.
+    """Sample skewness, adjusted Fisher-Pearson G1 (``scipy.stats.skew(bias=False)``, as
+    spreadsheets' SKEW; Joanes & Gill 1998, The Statistician 47(1)); None when undefined.
 
-    G1 = g1·sqrt(n(n-1))/(n-2), g1 = m3/m2^1.5 with central moments m2, m3 (Joanes & Gill 1998,
-    The Statistician 47(1)); written out so near-constant data give None, not a warning.
+    The values are scaled to at most 1 in size first (skewness is scale-free; this keeps the
+    moments in range near the float limit), and a spread below the rounding noise of the values
+    counts as none, so near-constant data give None rather than scipy's precision warning.
     """
     n = len(values)
     if n < 3 or not np.isfinite(values).all():
@@ -464,15 +339,11 @@ def _skew(values: np.ndarray) -> float | None:
     if scale == 0:
         return None
     with np.errstate(all="ignore"):
-        scaled = values / scale  # skewness is scale-free; this keeps the moments in range
-        centred = scaled - scaled.mean()
-        squared = centred * centred
-        m2 = float(np.mean(squared))
-        m3 = float(np.mean(squared * centred))
-        # Spread below the rounding noise of the values is no spread at all.
-        if not (math.isfinite(m2) and math.isfinite(m3)) or math.sqrt(m2) <= 1e-12:
+        scaled = values / scale
+        spread = float(np.std(scaled))
+        if not math.isfinite(spread) or spread <= 1e-12:
             return None
-        value = m3 / m2**1.5 * math.sqrt(n * (n - 1)) / (n - 2)
+        value = float(stats.skew(scaled, bias=False))
     return value if math.isfinite(value) else None
 
 
@@ -489,7 +360,8 @@ def _histogram(values: np.ndarray) -> dict[str, list[float] | list[int]] | None:
 
 
 def _boxcox(values: np.ndarray) -> dict[str, Any] | None:
-    """Box-Cox λ of the column alone (no regressors), with its 95 % interval.
+    """Box-Cox λ of the column alone (no regressors) with its 95 % profile-likelihood interval,
+    from ``scipy.stats.boxcox`` (maximum likelihood); None when scipy finds no λ or |λ| >= 10.
 
     A long column is represented by BOXCOX_SAMPLE evenly spaced order statistics, so λ̂ keeps
     its value while the interval is that of the smaller sample (wider, on the safe side).
@@ -497,36 +369,22 @@ def _boxcox(values: np.ndarray) -> dict[str, Any] | None:
     sample = np.sort(values)
     if len(sample) > BOXCOX_SAMPLE:
         sample = sample[np.linspace(0, len(sample) - 1, BOXCOX_SAMPLE).astype(int)]
+    # Box-Cox is scale-equivariant in λ; dividing by the geometric mean keeps the transformed
+    # values in range for data near the float limits.
+    with np.errstate(all="ignore"):
+        centre = float(np.exp(np.mean(np.log(sample))))
+    if not math.isfinite(centre) or centre <= 0:
+        return None
     try:
-        with np.errstate(all="ignore"):
-            found = boxcox_profile(sample, np.ones((len(sample), 1)))
+        with np.errstate(all="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            _, lam, (low, high) = stats.boxcox(sample / centre, alpha=0.05)
     except (ValueError, ArithmeticError, RuntimeError, np.linalg.LinAlgError):
         return None
-    if not found:
+    if not (math.isfinite(lam) and -10 < lam < 10):
         return None
-    return {
-        k: (float(found[k]) if found[k] is not None and math.isfinite(found[k]) else None)
-        for k in ("lambda", "ci_low", "ci_high")
-    }
+    return {k: (float(v) if math.isfinite(v) else None) for k, v in (("lambda", lam), ("ci_low", low), ("ci_high", high))}
 
 
 def _plain(value: float) -> float | int:
     return int(value) if float(value).is_integer() and abs(value) < 2**53 else value
-
-
-def _count(n: int) -> str:
-    return f"{int(n):,}"
-
-
-def _short(value: float | None) -> str:
-    if value is None:
-        return "?"
-    if float(value).is_integer() and abs(value) < 1e15:
-        return f"{int(value):,}"
-    if abs(value) >= 1000:
-        return f"{value:,.0f}"
-    return f"{value:.4g}" if abs(value) >= 1 else f"{value:.3g}"
-
-
-def _fmt(value: float | None) -> str:
-    return "n/a" if value is None else f"{value:.1f}"
