@@ -35,6 +35,91 @@ def _y_range(curves: list[np.ndarray], points: np.ndarray) -> tuple[float, float
     return low - pad, high + pad
 
 
+def _data_points(fig: go.Figure, points: dict[str, Any] | None, column: str, outcome_column: str) -> np.ndarray:
+    """The data as faint grey dots behind the curve (a sample when large); their y values."""
+    pts_y = np.array([], dtype=float)
+    if points and points.get("x"):
+        pts_y = floats(points["y"])
+        fig.add_trace(
+            go.Scatter(
+                x=points["x"],
+                y=points["y"],
+                mode="markers",
+                showlegend=False,
+                marker={"color": GREY, "size": 5, "opacity": 0.28},
+                hovertemplate=f"{column} %{{x:.4g}}<br>{outcome_column} %{{y:.4g}}<extra>data</extra>",
+            )
+        )
+        legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    return pts_y
+
+
+def _shade_beyond(fig: go.Figure, x_low: float, x_high: float, observed_min: float, observed_max: float) -> None:
+    """Grey strips where the curve runs beyond the observed values, named in the legend."""
+    shaded = False
+    for left, right in ((x_low, observed_min), (observed_max, x_high)):
+        if right - left <= 1e-12 * max(1.0, abs(right)):
+            continue
+        fig.add_vrect(x0=left, x1=right, fillcolor=SHADE, opacity=0.16, line_width=0, layer="below")
+        shaded = True
+    if shaded:
+        # Named in the legend rather than written in the strips: a strip can be too narrow
+        # for a label on a half-slide export.
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=BEYOND_NAME,
+                marker={"symbol": "square", "size": 16, "color": "rgba(154, 165, 177, 0.35)"},
+                hoverinfo="skip",
+            )
+        )
+
+
+def _comparison_lines(
+    fig: go.Figure,
+    x: np.ndarray,
+    naive: np.ndarray,
+    column: str,
+    observed_min: float,
+    overlay: dict[str, Any] | None,
+    overlay_label: str | None,
+    show_naive: bool,
+) -> list[np.ndarray]:
+    """The naive retransform (dashed) and another transform's curve (dash-dot), when shown;
+    their y values, for the axis range."""
+    extra: list[np.ndarray] = []
+    if show_naive:
+        fig.add_trace(
+            go.Scatter(
+                x=x,
+                y=naive,
+                mode="lines",
+                name=NAIVE_NAME,
+                line={"color": ORANGE, "width": 3, "dash": "dash"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>naive %{{y:,.4g}}<extra></extra>",
+            )
+        )
+        extra.append(naive)
+    if overlay is not None:
+        ox = floats(overlay["x"])
+        oy = floats(overlay["smearing"])
+        okeep = ox >= 0 if observed_min >= 0 else np.ones_like(ox, dtype=bool)
+        fig.add_trace(
+            go.Scatter(
+                x=ox[okeep],
+                y=oy[okeep],
+                mode="lines",
+                name=html(overlay_label or "Other transform"),
+                line={"color": VERMILLION, "width": 3, "dash": "dashdot"},
+                hovertemplate=f"{column} %{{x:.4g}}<br>%{{y:,.4g}}<extra>other transform</extra>",
+            )
+        )
+        extra.append(oy[okeep])
+    return extra
+
+
 def curve_figure(
     curve: dict[str, Any],
     *,
@@ -64,20 +149,7 @@ def curve_figure(
     x, smear, naive, low, high = (a[keep] for a in (x, smear, naive, low, high))
 
     fig = go.Figure()
-    pts_y = np.array([], dtype=float)
-    if points and points.get("x"):
-        pts_y = floats(points["y"])
-        fig.add_trace(
-            go.Scatter(
-                x=points["x"],
-                y=points["y"],
-                mode="markers",
-                showlegend=False,
-                marker={"color": GREY, "size": 5, "opacity": 0.28},
-                hovertemplate=f"{column} %{{x:.4g}}<br>{outcome_column} %{{y:.4g}}<extra>data</extra>",
-            )
-        )
-        legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    pts_y = _data_points(fig, points, column, outcome_column)
     fig.add_trace(go.Scatter(x=x, y=high, mode="lines", line={"width": 0}, showlegend=False, hoverinfo="skip"))
     fig.add_trace(
         go.Scatter(
@@ -108,54 +180,9 @@ def curve_figure(
         )
     )
     curves = [smear, low, high]
-    if show_naive:
-        fig.add_trace(
-            go.Scatter(
-                x=x,
-                y=naive,
-                mode="lines",
-                name=NAIVE_NAME,
-                line={"color": ORANGE, "width": 3, "dash": "dash"},
-                hovertemplate=f"{column} %{{x:.4g}}<br>naive %{{y:,.4g}}<extra></extra>",
-            )
-        )
-        curves.append(naive)
-    if overlay is not None:
-        ox = floats(overlay["x"])
-        oy = floats(overlay["smearing"])
-        okeep = ox >= 0 if observed_min >= 0 else np.ones_like(ox, dtype=bool)
-        fig.add_trace(
-            go.Scatter(
-                x=ox[okeep],
-                y=oy[okeep],
-                mode="lines",
-                name=html(overlay_label or "Other transform"),
-                line={"color": VERMILLION, "width": 3, "dash": "dashdot"},
-                hovertemplate=f"{column} %{{x:.4g}}<br>%{{y:,.4g}}<extra>other transform</extra>",
-            )
-        )
-        curves.append(oy[okeep])
-
+    curves += _comparison_lines(fig, x, naive, column, observed_min, overlay, overlay_label, show_naive)
     x_low, x_high = float(np.nanmin(x)), float(np.nanmax(x))
-    shaded = False
-    for left, right in ((x_low, observed_min), (observed_max, x_high)):
-        if right - left <= 1e-12 * max(1.0, abs(right)):
-            continue
-        fig.add_vrect(x0=left, x1=right, fillcolor=SHADE, opacity=0.16, line_width=0, layer="below")
-        shaded = True
-    if shaded:
-        # Named in the legend rather than written in the strips: a strip can be too narrow
-        # for a label on a half-slide export.
-        fig.add_trace(
-            go.Scatter(
-                x=[None],
-                y=[None],
-                mode="markers",
-                name=BEYOND_NAME,
-                marker={"symbol": "square", "size": 16, "color": "rgba(154, 165, 177, 0.35)"},
-                hoverinfo="skip",
-            )
-        )
+    _shade_beyond(fig, x_low, x_high, observed_min, observed_max)
 
     y_low, y_high = _y_range(curves, pts_y)
     style(
@@ -171,6 +198,32 @@ def curve_figure(
         yaxis={"range": [y_low, y_high]},
     )
     return fig
+
+
+def _level_points(fig: go.Figure, points: dict[str, Any] | None, levels: list[str], outcome_column: str) -> np.ndarray:
+    """The data as a light jittered strip at each level; their y values."""
+    if not (points and points.get("x")):
+        return np.array([], dtype=float)
+    labels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in points["x"]]
+    where = {lv: i for i, lv in enumerate(levels)}
+    pairs = [(where[lv], y) for lv, y in zip(labels, points["y"], strict=True) if lv in where]
+    if not pairs:
+        return np.array([], dtype=float)
+    jitter = np.random.default_rng(0).uniform(-0.28, 0.28, len(pairs))
+    px = np.array([p for p, _ in pairs], dtype=float) + jitter
+    pts_y = np.array([y for _, y in pairs], dtype=float)
+    fig.add_trace(
+        go.Scatter(
+            x=px,
+            y=pts_y,
+            mode="markers",
+            showlegend=False,
+            marker={"color": GREY, "size": 5, "opacity": 0.25},
+            hovertemplate=f"{outcome_column} %{{y:.4g}}<extra>data</extra>",
+        )
+    )
+    legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    return pts_y
 
 
 def _levels_figure(
@@ -191,26 +244,7 @@ def _levels_figure(
     smear, naive = floats(curve["smearing"]), floats(curve["naive"])
     low, high = floats(curve["ci_low"]), floats(curve["ci_high"])
     fig = go.Figure()
-    pts_y = np.array([], dtype=float)
-    if points and points.get("x"):
-        labels = [str(v) if not isinstance(v, float) else f"{v:g}" for v in points["x"]]
-        where = {lv: i for i, lv in enumerate(levels)}
-        pairs = [(where[lv], y) for lv, y in zip(labels, points["y"], strict=True) if lv in where]
-        if pairs:
-            jitter = np.random.default_rng(0).uniform(-0.28, 0.28, len(pairs))
-            px = np.array([p for p, _ in pairs], dtype=float) + jitter
-            pts_y = np.array([y for _, y in pairs], dtype=float)
-            fig.add_trace(
-                go.Scatter(
-                    x=px,
-                    y=pts_y,
-                    mode="markers",
-                    showlegend=False,
-                    marker={"color": GREY, "size": 5, "opacity": 0.25},
-                    hovertemplate=f"{outcome_column} %{{y:.4g}}<extra>data</extra>",
-                )
-            )
-            legend_dot(fig, "Data rows" + (" (a sample)" if points["shown"] < points["total"] else ""), GREY)
+    pts_y = _level_points(fig, points, levels, outcome_column)
     main_name = (
         "Predicted mean (PPML)" if ppml else (SMEARING_NAME if show_naive else f"Predicted {outcome_column} (expected value)")
     )

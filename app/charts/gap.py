@@ -137,6 +137,78 @@ def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: boo
     return f"Effect as {what}{model}, other regressors held at their reference values"
 
 
+def _tolerance_bands(fig: go.Figure, sizes: np.ndarray, approx: np.ndarray, exact: np.ndarray, tolerance_pct: float) -> None:
+    """Shaded stretches where the approximation misses by more than the tolerance, labelled."""
+    regions = tolerance_regions(sizes, approx, exact, tolerance_pct / 100)
+    band = f"Approximation off by more than {tolerance_pct:g} %"
+    span = float(np.nanmax(sizes) - np.nanmin(sizes)) or 1.0
+    for left, right in regions:
+        fig.add_vrect(x0=left, x1=right, fillcolor=PURPLE, opacity=0.13, line_width=0, layer="below")
+        on_left = right <= 0
+        fig.add_annotation(
+            x=right if on_left else left,
+            xanchor="right" if on_left else "left",
+            y=1.0,
+            yref="paper",
+            yanchor="top",
+            text=_band_label(tolerance_pct, (right - left) / span, on_left),
+            showarrow=False,
+            font={"size": TYPE["note"], "color": "#8A3B6B"},
+            bgcolor="rgba(255,255,255,0.8)",
+        )
+    if regions:
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=band,
+                marker={"symbol": "square", "size": 16, "color": "rgba(204, 121, 167, 0.35)"},
+                hoverinfo="skip",
+            )
+        )
+
+
+def _mark_change(
+    fig: go.Figure,
+    sizes: np.ndarray,
+    approx: np.ndarray,
+    exact: np.ndarray,
+    chosen: float,
+    percent_change: bool,
+    x_hover: str,
+    y_hover: str,
+) -> None:
+    """The user's change: a dotted line, its label, and the two effects marked on it."""
+    span = float(np.nanmax(sizes) - np.nanmin(sizes)) or 1.0
+    at = int(np.argmin(np.abs(sizes - chosen)))
+    fig.add_vline(x=chosen, line={"color": VERMILLION, "width": 2.5, "dash": "dot"})
+    # Near the right edge the label goes on the line's left so it is not cut off.
+    near_right = chosen > float(np.nanmax(sizes)) - 0.3 * span
+    fig.add_annotation(
+        x=chosen,
+        y=0.0,
+        yref="paper",
+        yanchor="bottom",
+        xanchor="right" if near_right else "left",
+        text=f"your change: {_fmt(chosen, percent_change)}",
+        showarrow=False,
+        font={"size": TYPE["note"], "color": VERMILLION},
+        bgcolor="rgba(255,255,255,0.85)",
+        xshift=-6 if near_right else 6,
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=[sizes[at], sizes[at]],
+            y=[exact[at], approx[at]],
+            mode="markers",
+            marker={"color": [BLUE, ORANGE], "size": 11, "line": {"color": "white", "width": 1.5}},
+            showlegend=False,
+            hovertemplate=f"your change {x_hover}<br>{y_hover}<extra></extra>",
+        )
+    )
+
+
 def gap_figure(
     curve: dict[str, Any],
     tolerance_pct: float,
@@ -194,61 +266,8 @@ def gap_figure(
         )
     )
 
-    regions = tolerance_regions(sizes, approx, exact, tolerance_pct / 100)
-    band = f"Approximation off by more than {tolerance_pct:g} %"
-    span = float(np.nanmax(sizes) - np.nanmin(sizes)) or 1.0
-    for left, right in regions:
-        fig.add_vrect(x0=left, x1=right, fillcolor=PURPLE, opacity=0.13, line_width=0, layer="below")
-        on_left = right <= 0
-        fig.add_annotation(
-            x=right if on_left else left,
-            xanchor="right" if on_left else "left",
-            y=1.0,
-            yref="paper",
-            yanchor="top",
-            text=_band_label(tolerance_pct, (right - left) / span, on_left),
-            showarrow=False,
-            font={"size": TYPE["note"], "color": "#8A3B6B"},
-            bgcolor="rgba(255,255,255,0.8)",
-        )
-    if regions:
-        fig.add_trace(
-            go.Scatter(
-                x=[None],
-                y=[None],
-                mode="markers",
-                name=band,
-                marker={"symbol": "square", "size": 16, "color": "rgba(204, 121, 167, 0.35)"},
-                hoverinfo="skip",
-            )
-        )
-
-    at = int(np.argmin(np.abs(sizes - chosen)))
-    fig.add_vline(x=chosen, line={"color": VERMILLION, "width": 2.5, "dash": "dot"})
-    # Near the right edge the label goes on the line's left so it is not cut off.
-    near_right = chosen > float(np.nanmax(sizes)) - 0.3 * span
-    fig.add_annotation(
-        x=chosen,
-        y=0.0,
-        yref="paper",
-        yanchor="bottom",
-        xanchor="right" if near_right else "left",
-        text=f"your change: {_fmt(chosen, percent_change)}",
-        showarrow=False,
-        font={"size": TYPE["note"], "color": VERMILLION},
-        bgcolor="rgba(255,255,255,0.85)",
-        xshift=-6 if near_right else 6,
-    )
-    fig.add_trace(
-        go.Scatter(
-            x=[sizes[at], sizes[at]],
-            y=[exact[at], approx[at]],
-            mode="markers",
-            marker={"color": [BLUE, ORANGE], "size": 11, "line": {"color": "white", "width": 1.5}},
-            showlegend=False,
-            hovertemplate=f"your change {x_hover}<br>{y_hover}<extra></extra>",
-        )
-    )
+    _tolerance_bands(fig, sizes, approx, exact, tolerance_pct)
+    _mark_change(fig, sizes, approx, exact, chosen, percent_change, x_hover, y_hover)
     fig.add_hline(y=0, line={"color": "#9AA5B1", "width": 1})
 
     style(
@@ -259,6 +278,7 @@ def gap_figure(
         y_title,
         height=580,
     )
+    span = float(np.nanmax(sizes) - np.nanmin(sizes)) or 1.0
     fig.update_layout(
         xaxis={
             "range": [float(np.nanmin(sizes)) - 0.02 * span, float(np.nanmax(sizes)) + 0.02 * span],
