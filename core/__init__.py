@@ -1,6 +1,6 @@
 """Formwise core: pure computation for regressions with transformed variables.
 
-``analyze(data, spec, parts=None)`` is the single entry point (SPEC §2); a ``ColumnCache``
+``analyze(data, spec, parts=None)`` is the single entry point (docs/contract.md §1); a ``ColumnCache``
 passed as ``columns=`` lets the refits of an edit loop reuse converted and transformed columns.
 """
 

@@ -108,7 +108,7 @@ def test_demo_profile_shape_and_strict_json(demo_profile: dict) -> None:
 
 
 def test_skewness_matches_scipy(demo_profile: dict) -> None:
-    from scipy import stats  # general-purpose reference library (SPEC §7)
+    from scipy import stats  # general-purpose reference library (docs/contract.md §3.13)
 
     values = pd.read_csv(DEMO_CSV)["foot_traffic"].to_numpy(dtype=float)
     e = entry(demo_profile, "foot_traffic")

@@ -166,18 +166,8 @@ def _one_effect(
             warnings.append(
                 f"the change {text} of '{column}' (from {x0:g} to {x1:g}) leaves the range its transform takes: {reason}."
             )
-            entry.update(
-                elasticity=None,
-                approximate=None,
-                exact=None,
-                ci_low=None,
-                ci_high=None,
-                adjusted=None,
-                average=None,
-                gap=None,
-                interval_method=None,
-                extrapolated=True,
-            )
+            empty = ("elasticity", "approximate", "exact", "ci_low", "ci_high", "adjusted", "average", "gap", "interval_method")
+            entry.update(dict.fromkeys(empty), extrapolated=True)
             return entry
     arrays = effect_arrays(
         model,
@@ -189,24 +179,8 @@ def _one_effect(
     )
     exact = float(arrays.exact[0])
     approximate = float(arrays.approximate[0])
-    c = arrays.c[0]
-    var_delta = float(c @ model.cov @ c)
-    t = model.t_crit
-    if model.kind == "smearing":
-        g = arrays.gradient[0]
-        se = float(np.sqrt(g @ model.cov @ g))
-        low, high = exact - t * se, exact + t * se
-        method = "delta method"
-    else:
-        se_delta = np.sqrt(var_delta)
-        d = float(arrays.delta_index[0])
-        low_d, high_d = d - t * se_delta, d + t * se_delta
-        if model.kind == "log":
-            low, high = 100.0 * np.expm1(low_d), 100.0 * np.expm1(high_d)
-        else:
-            low, high = low_d, high_d
-        single = int(np.count_nonzero(np.abs(c) > 0)) == 1
-        method = "coefficient interval carried through" if single else "interval of the index change carried through"
+    var_delta = float(arrays.c[0] @ model.cov @ arrays.c[0])
+    low, high, method = _interval(model, arrays, exact)
     adjusted = None
     if (
         model.kind == "log"
@@ -231,6 +205,24 @@ def _one_effect(
             f"the effect of {text} in '{column}' reaches outside the observed range of '{column}'; it is an extrapolation."
         )
     return entry
+
+
+def _interval(model: Model, arrays: EffectArrays, exact: float) -> tuple[float, float, str]:
+    """The exact effect's interval and how it was found: the t interval of the index change
+    carried through the monotone map for level and log outcomes, the delta method otherwise."""
+    c = arrays.c[0]
+    t = model.t_crit
+    if model.kind == "smearing":
+        g = arrays.gradient[0]
+        se = float(np.sqrt(g @ model.cov @ g))
+        return exact - t * se, exact + t * se, "delta method"
+    se_delta = float(np.sqrt(c @ model.cov @ c))
+    d = float(arrays.delta_index[0])
+    low, high = d - t * se_delta, d + t * se_delta
+    if model.kind == "log":
+        low, high = 100.0 * np.expm1(low), 100.0 * np.expm1(high)
+    single = int(np.count_nonzero(np.abs(c) > 0)) == 1
+    return low, high, "coefficient interval carried through" if single else "interval of the index change carried through"
 
 
 def elasticity(model: Model, block: Block, point: dict[str, Any]) -> float | None:
