@@ -1,47 +1,81 @@
-"""Least squares: a numerically careful fit that is also fast at a million rows.
+"""Least squares: as accurate as a Householder QR factorisation, at the cost of a Gram matrix.
 
-Method (one path for every data size, so the accuracy checked on NIST's Longley data is the
-accuracy users get at scale):
+The passes over the rows live in ``core.model.engine``; this module decides which to run and
+turns their small k x k results into the fit. Notation: X (n x k, intercept first), weights w,
+Z = sqrt(w)·[1, X₂ - c] the shifted design and ỹ = sqrt(w)·(y - c_y) (the shift is the mean of
+the first block of rows, ``engine.shift_for``); y - c_y ≈ Zγ, and β = T⁻¹γ in the original
+parametrisation (β₀ = γ₀ + c_y - c'γ₂, β₂ = γ₂). Weighted least squares is least squares on the
+sqrt(w)-scaled rows.
 
-1. Weighted least squares reduces to OLS on sqrt(w)-scaled rows.
-2. Every column but the intercept is centred at its (weighted) mean and scaled to unit
-   length. Centring removes the near-collinearity with the intercept that makes raw normal
-   equations fail on data such as Longley's; scaling equilibrates the Gram matrix. The
-   centred Gram matrix C = Σ_c Z_c'Z_c and Z'y are summed over row chunks Z_c of the centred
-   rows (a chunk at a time, never a centred copy of X); the scaling D = diag(sqrt(C_jj)) is
-   then applied to C itself, G = D⁻¹CD⁻¹, which is the Gram matrix of the scaled columns.
-3. G is factored by Cholesky and the solution is improved by one step of iterative
-   refinement on the residuals, b <- b + G^{-1} Z'(y - Zb) (Björck 1967, "Iterative
-   refinement of linear least squares solutions I", BIT 7; Golub & Van Loan, Matrix
-   Computations, 4th ed., §5.3.7), the residuals again formed chunk by chunk. This costs two
-   passes over the data, one n·k² product and one n·k product, against n·k² for a QR
-   factorisation that also forms Q.
-4. Exact or near-exact collinearity is found from the eigenvalues of the scaled, centred
-   Gram matrix; its condition number is reported (Belsley, Kuh & Welsch 1980, ch. 3).
+1. One pass forms the Gram matrix of [Z, ỹ]. The condition number κ of the design with its
+   columns centred at their means and scaled to unit length (Belsley, Kuh & Welsch 1980, ch. 3)
+   is read off the Cholesky factor R of Z'Z: the trailing block R₂₂ is the R factor of the
+   centred columns whatever the shift, and κ is the ratio of the extreme singular values of
+   R₂₂ with unit-length columns.
+2. If κ ≤ ``NORMAL_EQUATIONS_MAX_CONDITION``, the normal equations are solved with that factor:
+   their forward error is of order κ²u (u = 2⁻⁵³; Golub & Van Loan, Matrix Computations, 4th ed.,
+   §5.3.7) and with κ ≤ 100 that is at most 2e-12, below what the statistics need and within a
+   step of refinement of a QR solution. Every realistic regression, and every design the app
+   does not flag as nearly collinear, takes this path: one pass for Z'Z, one for the residuals.
+3. Otherwise (and when Cholesky fails) a second pass computes R by a tall-skinny QR of [Z, ỹ]
+   (``engine.tsqr_pass``; Demmel, Grigori, Hoemmen & Langou 2012), backward stable like a
+   Householder QR of the whole matrix; κ and the numerical rank come from the singular values of
+   its R₂₂ (a rank-revealing step on the k x k factor instead of column pivoting over the rows;
+   Golub & Van Loan §5.4.1, §5.5). A rank below k at the tolerance ``RANK_TOLERANCE`` relative to
+   the largest singular value, a few units of rounding, is refused naming the columns of the
+   null vectors; a design short of that is fitted, however ill conditioned, and its condition
+   number reported.
+4. The residual pass refines the solution: δγ = R⁻¹R⁻ᵀ Z'W e (seminormal equations with the
+   factor at hand; Björck 1987, "Stability analysis of the method of seminormal equations for
+   linear least squares problems", Linear Algebra Appl. 88/89). On the normal-equation path the
+   residuals are formed in working precision and a step is taken only when it exceeds the error
+   of a QR solution (about κu). On the QR path they are formed in extended precision, which
+   makes the iteration converge to the least-squares solution of the data as stored, to working
+   precision, whenever κu is well below 1 (Björck 1967, "Iterative refinement of linear least
+   squares solutions I", BIT 7; Golub & Van Loan §5.3.8): on NIST's Wampler data this gives all
+   15 certified digits where a Householder QR alone gives 6 to 13.
+5. (X'WX)⁻¹ = T⁻¹R⁻¹R⁻ᵀT⁻ᵀ = M'M with M = R⁻ᵀT⁻ᵀ (one triangular solve): every diagonal entry
+   is a sum of squares, so the intercept's variance does not suffer the cancellation of forming
+   T⁻¹(Z'Z)⁻¹T⁻ᵀ term by term.
 
-Fit measures follow the usual definitions (Greene, Econometric Analysis, 8th ed., §3.5,
-§14.9): R² = 1 - SSR/SST with SST centred at the (weighted) mean; adjusted R² = 1 -
-(n-1)/(n-k)·(1-R²); sigma² = SSR/(n-k); Gaussian log-likelihood
--n/2·(ln 2π + ln(SSR/n) + 1) + ½·Σ ln wᵢ.
+Fit measures follow the usual definitions (Greene, Econometric Analysis, 8th ed., §3.5, §14.9):
+R² = 1 - SSR/SST with SST centred at the (weighted) mean (the sum of squares of the y column of
+R below the intercept row); adjusted R² = 1 - (n-1)/(n-k)·(1-R²); sigma² = SSR/(n-k); Gaussian
+log-likelihood -n/2·(ln 2π + ln(SSR/n) + 1) + ½·Σ ln wᵢ.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import scipy.linalg as sla
 
 from core.errors import DataError
+from core.model import engine
 
-# Relative size of the smallest eigenvalue of the scaled Gram matrix below which the
-# regressors are treated as collinear: about the square root of machine epsilon squared,
-# i.e. a condition number of the scaled design near 1e7 (common practice, no source).
-COLLINEAR_EIGEN = 1e-14
-# Condition number of the centred, scaled design above which results are flagged.
+# Condition number (centred, unit-length columns) above which results are flagged as nearly
+# collinear (core.analysis words the warning).
 NEAR_COLLINEAR = 1e3
-# Rows per chunk in passes over the data: 65,536 x 13 columns is about 7 MB, small enough to
-# stay in cache-friendly sizes and never to hold a second full copy of X.
+# Largest condition number solved by the normal equations; above it the tall-skinny QR is used.
+NORMAL_EQUATIONS_MAX_CONDITION = 1e2
+# Smallest singular value of the centred design with unit-length columns, relative to the
+# largest, at or below which the design is taken to have lower rank: collinear up to rounding.
+# Centring and unit lengths make the test blind to the columns' offsets and units; rounding a
+# column to double precision moves it by about u = 1.1e-16 of its length, and exact
+# collinearities (a dummy for every level, log(100·p) beside log(p), x1 + x2 beside both) give
+# 1e-16 to 5e-15 from 100 to 1,000,000 rows (tests/test_fit_engine.py). 1000u = 2.2e-13 keeps a
+# margin of 40 above those and fits NIST's Filip polynomial (1 / 3.8e9 = 2.6e-10).
+_EPS = float(np.finfo(float).eps)
+RANK_TOLERANCE = 1000 * _EPS
+# Condition number above which the refinement forms residuals in extended precision.
+EXTENDED_REFINEMENT = NEAR_COLLINEAR
+# Condition number above which a fit carries a warning that rounding limits its digits.
+PRECISION_WARNING = 1e10
+# Most refinement passes after the first residual pass.
+MAX_REFINEMENTS = 4
+# Rows per chunk in the passes of other modules (covariance meats, diagnostics): 65,536 x 13
+# columns is about 7 MB, never a second full copy of X.
 CHUNK_ROWS = 65_536
 
 
@@ -60,6 +94,11 @@ class OLSFit:
     loglik: float
     condition_number: float
     weights: np.ndarray | None
+    # "normal equations" or "tall-skinny QR", and how many refinement steps were taken.
+    solver: str = "normal equations"
+    refinements: int = 0
+    # Warnings about the numerics of this fit, for the user (analysis words the collinearity one).
+    warnings: list[str] = field(default_factory=list)
 
     @property
     def df_resid(self) -> int:
@@ -72,91 +111,80 @@ def row_chunks(n: int, size: int | None = None) -> range:
 
 
 def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, names: list[str] | None = None) -> OLSFit:
-    """Least squares of y on X (first column the intercept), optionally weighted.
-
-    X is read in row chunks (Fortran order suits it best; any layout works) and never copied
-    whole: the centred, weighted chunk Z_c = sqrt(w)·(X_c - m) is formed, added into G and
-    Z'y, and dropped.
-    """
+    """Least squares of y on X (first column the intercept), optionally weighted (see the module
+    docstring for the method). X is read in row blocks and never copied whole; Fortran order
+    suits it best. Raises ``DataError`` naming the columns when the design is rank deficient."""
     n, k = X.shape
-    root_w = np.sqrt(weights) if weights is not None else None
-    w_sum = float(weights.sum()) if weights is not None else float(n)
-    means = (X[:, 1:].T @ weights / w_sum) if weights is not None else X[:, 1:].mean(axis=0)
-    shift = np.concatenate([[0.0], means])  # the intercept column is not centred
-    ys = y * root_w if root_w is not None else y
+    shift = engine.shift_for(X, y, weights)
+    gram = engine.gram_pass(shift)
 
-    def centred(start: int) -> np.ndarray:
-        chunk = X[start : start + CHUNK_ROWS] - shift
-        if root_w is not None:
-            chunk *= root_w[start : start + CHUNK_ROWS, None]
-        return chunk
+    R, q, rho, kappa = _normal_equations_factor(gram, k)
+    solver = "normal equations"
+    if R is None or kappa > NORMAL_EQUATIONS_MAX_CONDITION:
+        solver = "tall-skinny QR"
+        full = engine.tsqr_pass(shift)
+        R, q, rho = full[:k, :k], full[:k, k], float(abs(full[k, k]))
+        singular, right = _singular(R, k)
+        kappa = _screen(singular, right, names)
 
-    # Pass 1: G = Z'Z and Z'y of the centred (unscaled) design, summed over row chunks.
-    G = np.zeros((k, k))
-    zy = np.zeros(k)
-    for start in row_chunks(n):
-        chunk = centred(start)
-        G += chunk.T @ chunk
-        zy += chunk.T @ ys[start : start + CHUNK_ROWS]
-    # Unit-length scaling: D = diag(sqrt(G_jj)), scaled Gram D^{-1} G D^{-1}.
-    scale = np.sqrt(np.diag(G)).copy()
-    scale[scale == 0] = 1.0
-    gram = G / scale[:, None] / scale[None, :]
-
-    eig_vals, eig_vecs = np.linalg.eigh(gram[1:, 1:]) if k > 1 else (np.ones(1), np.ones((1, 1)))
-    top = float(eig_vals.max())
-    if k > 1 and eig_vals.min() <= COLLINEAR_EIGEN * top * k:
-        vector = eig_vecs[:, int(np.argmin(eig_vals))]
-        involved = np.flatnonzero(np.abs(vector) > 0.1) + 1
-        labels = [names[i] if names else f"column {i}" for i in involved]
-        raise DataError(
-            "these regressors are perfectly collinear (one is an exact combination of the others): "
-            f"{', '.join(labels)}. Remove one of them, or for categories pick a different set of levels."
-        )
-    condition = float(np.sqrt(top / eig_vals.min())) if k > 1 else 1.0
-
-    factor = sla.cho_factor(gram, lower=False, check_finite=False)
-    b_scaled = sla.cho_solve(factor, zy / scale, check_finite=False)
-    # Pass 2, one step of iterative refinement: b <- b + G^{-1} Z'(y - Zb), in scaled units.
-    step = b_scaled / scale
-    correction = np.zeros(k)
-    for start in row_chunks(n):
-        chunk = centred(start)
-        correction += chunk.T @ (ys[start : start + CHUNK_ROWS] - chunk @ step)
-    b_scaled += sla.cho_solve(factor, correction / scale, check_finite=False)
-
-    coef = b_scaled / scale
-    coef[0] -= means @ coef[1:]
-    if not np.all(np.isfinite(coef)):
+    gamma = sla.solve_triangular(R, q, check_finite=False)
+    beta = _original(gamma, shift)
+    if not np.all(np.isfinite(beta)):
         raise DataError(
             "the fit overflowed: some values are too large to work with; rescale the data (e.g. thousands instead of units)."
         )
 
-    # (X'WX)^{-1} from the scaled factor: X = Z·D·T with T the centring map, so
-    # (X'WX)^{-1} = T^{-1} D^{-1} G^{-1} D^{-1} T^{-T}.
-    g_inv = sla.cho_solve(factor, np.eye(k), check_finite=False)
-    g_inv = g_inv / scale[:, None] / scale[None, :]
-    t_inv = np.eye(k)
-    t_inv[0, 1:] = -means
-    xtx_inv = t_inv @ g_inv @ t_inv.T
+    # Sizes for the refinement test, in units of each column's length (‖Dγ‖). Forming a
+    # residual rounds at the size of y (y - c_y - Zγ in working precision), so steps below a few
+    # units of ‖sqrt(w)·y‖ + ‖Dγ‖ are rounding noise; ‖sqrt(w)·y‖² comes from the Gram matrix.
+    lengths = np.sqrt(np.einsum("ij,ij->j", R, R))
+    y_length = float(np.sqrt(max(gram[k, k] + 2 * shift.c_y * gram[0, k] + shift.c_y**2 * gram[0, 0], 0.0)))
+    resid = np.empty(n)
+    # Extended-precision residuals only where they pay: on designs flagged as nearly collinear.
+    extended = solver != "normal equations" and kappa > EXTENDED_REFINEMENT
+    refinements = 0
+    previous = np.inf
+    while True:
+        grad, ssr = engine.residual_pass(shift, gamma, beta, resid, extended)
+        step = sla.cho_solve((R, False), grad, check_finite=False)
+        size = float(np.linalg.norm(lengths * step))
+        scale = float(np.linalg.norm(lengths * gamma)) + y_length
+        # Stop at rounding noise, or when the steps no longer contract (the iteration contracts
+        # by about κ²u per step on the normal equations, κu on the QR factor).
+        done = size <= 4 * _EPS * scale or size > 0.5 * previous
+        if done or refinements == MAX_REFINEMENTS or not np.isfinite(size):
+            break
+        previous = size
+        refinements += 1
+        if extended:
+            beta = beta + _original_step(step, shift)
+            gamma = _shifted(beta, shift)
+        else:
+            gamma = gamma + step
+            beta = _original(gamma, shift)
 
-    fitted = X @ coef
-    resid = y - fitted
-    if weights is not None:
-        ssr = float(weights @ (resid * resid))
-        y_bar = float(weights @ y / w_sum)
-        sst = float(weights @ (y - y_bar) ** 2)
-        log_w = 0.5 * float(np.log(weights).sum())
-    else:
-        ssr = float(resid @ resid)
-        sst = float(((y - y.mean()) ** 2).sum())
-        log_w = 0.0
+    # (X'WX)^{-1} = M'M with M = R^{-T} T^{-T} (module docstring, step 5).
+    t_inv_t = np.eye(k)
+    t_inv_t[1:, 0] = -shift.c[1:]
+    m = sla.solve_triangular(R, t_inv_t, trans="T", check_finite=False)
+    xtx_inv = m.T @ m
+
+    fitted = y - resid
+    sst = float(q[1:] @ q[1:]) + rho * rho
     r2 = 1.0 - ssr / sst if sst > 0 else float("nan")
     adj_r2 = 1.0 - (n - 1) / (n - k) * (1.0 - r2)
     sigma = float(np.sqrt(ssr / (n - k)))
+    log_w = 0.5 * float(np.log(weights).sum()) if weights is not None else 0.0
     loglik = -0.5 * n * (np.log(2 * np.pi) + np.log(ssr / n) + 1.0) + log_w
+    notes = []
+    if kappa > PRECISION_WARNING:
+        digits = max(0, int(np.floor(-np.log10(kappa * _EPS))))
+        notes.append(
+            f"the design is so close to collinear (condition number {kappa:.2g}) that rounding error limits the "
+            f"coefficients to about {digits} reliable significant digits."
+        )
     return OLSFit(
-        coef=coef,
+        coef=beta,
         resid=resid,
         fitted=fitted,
         xtx_inv=xtx_inv,
@@ -167,6 +195,82 @@ def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, nam
         adj_r2=adj_r2,
         sigma=sigma,
         loglik=float(loglik),
-        condition_number=condition,
+        condition_number=kappa,
         weights=weights,
+        solver=solver,
+        refinements=refinements,
+        warnings=notes,
     )
+
+
+def _normal_equations_factor(gram: np.ndarray, k: int) -> tuple[np.ndarray | None, np.ndarray, float, float]:
+    """Cholesky factor R of Z'Z (from the augmented Gram matrix), R⁻ᵀZ'ỹ, the residual norm and κ;
+    R is None when Z'Z is not numerically positive definite."""
+    zz = gram[:k, :k]
+    length = np.sqrt(np.diag(zz))
+    if not np.all(length > 0):
+        return None, np.zeros(k), 0.0, np.inf
+    # Cholesky of the equilibrated matrix, then undone: R = chol(D⁻¹Z'ZD⁻¹)·D.
+    try:
+        unit = sla.cholesky(zz / length[:, None] / length[None, :], lower=False, check_finite=False)
+    except np.linalg.LinAlgError:
+        return None, np.zeros(k), 0.0, np.inf
+    R = unit * length[None, :]
+    if not np.all(np.isfinite(R)) or np.any(np.diag(R) <= 0):
+        return None, np.zeros(k), 0.0, np.inf
+    q = sla.solve_triangular(R, gram[:k, k], trans="T", check_finite=False)
+    rho = float(np.sqrt(max(gram[k, k] - q @ q, 0.0)))
+    singular, _ = _singular(R, k)
+    kappa = float(singular[0] / singular[-1]) if singular[-1] > 0 else np.inf
+    return R, q, rho, kappa
+
+
+def _singular(R: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Singular values (descending) and right singular vectors (rows) of the centred design with
+    unit-length columns, from R₂₂ (intercept-only model: one singular value 1)."""
+    if k == 1:
+        return np.ones(1), np.ones((1, 1))
+    block = R[1:, 1:]
+    length = np.sqrt(np.einsum("ij,ij->j", block, block))
+    length[length == 0] = 1.0  # a column equal to its shift: a zero singular value
+    _, singular, right = np.linalg.svd(block / length[None, :])
+    return singular, right
+
+
+def _screen(singular: np.ndarray, right: np.ndarray, names: list[str] | None) -> float:
+    """The condition number, or a DataError naming the columns when the rank is below k."""
+    top = float(singular[0])
+    null = singular <= RANK_TOLERANCE * top
+    if not null.any():
+        return top / float(singular[-1])
+    involved: set[int] = set()
+    for vector in right[null]:
+        involved.update(int(j) + 1 for j in np.flatnonzero(np.abs(vector) > 0.1))
+    labels = [names[i] if names else f"column {i}" for i in sorted(involved)]
+    rank = len(singular) - int(null.sum()) + 1
+    raise DataError(
+        f"these regressors are collinear: {', '.join(labels)}. One of them is a combination of the others "
+        f"(with the intercept) up to rounding error, so the model's {len(singular) + 1} coefficients cannot all "
+        f"be estimated (the design has rank {rank}). Remove one of them, or for categories pick a different set of levels."
+    )
+
+
+def _original(gamma: np.ndarray, shift: engine.Shift) -> np.ndarray:
+    """β from γ: β₀ = γ₀ + c_y - c'γ₂, β₂ = γ₂."""
+    beta = gamma.copy()
+    beta[0] = gamma[0] + shift.c_y - float(shift.c[1:] @ gamma[1:])
+    return beta
+
+
+def _original_step(step: np.ndarray, shift: engine.Shift) -> np.ndarray:
+    """δβ from δγ (the shift of y drops out of a difference)."""
+    out = step.copy()
+    out[0] = step[0] - float(shift.c[1:] @ step[1:])
+    return out
+
+
+def _shifted(beta: np.ndarray, shift: engine.Shift) -> np.ndarray:
+    """γ from β (the inverse of ``_original``)."""
+    gamma = beta.copy()
+    gamma[0] = beta[0] - shift.c_y + float(shift.c[1:] @ beta[1:])
+    return gamma

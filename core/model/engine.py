@@ -1,0 +1,223 @@
+"""The passes over the rows that least squares needs, each streamed in row blocks on two threads.
+
+Every pass reads a block of rows of the design X (n x k, intercept first), forms the block of the
+shifted, weighted design
+
+    B = sqrt(w) · [1, X₂ - c, y - c_y]                               ((k+1) columns, y last)
+
+in a per-thread buffer and folds it into a small k x k result before moving on, so no shifted or
+weighted copy of X is ever held. The shift (c, c_y) is the (weighted) mean of the first block: any
+shift is an exact reparametrisation of the model, and one close to the mean removes the offset
+that makes uncentred sums of squares lose digits (the "shifted data" method of Chan, Golub &
+LeVeque 1983, "Algorithms for computing the sample variance", The American Statistician 37(3));
+taking it from the first block lets the first pass start without a pass of its own.
+
+- ``gram_pass``: the augmented Gram matrix A = B'B, summed over blocks (one symmetric rank-k
+  update per block).
+- ``tsqr_pass``: the R factor of B by a tall-skinny QR: a Householder QR of each block (LAPACK
+  through numpy.linalg.qr), then one QR of the stacked block factors (Demmel, Grigori, Hoemmen &
+  Langou 2012, "Communication-optimal parallel and sequential QR and LU factorizations", SIAM J.
+  Sci. Comput. 34(1), the flat-tree TSQR). It is backward stable like a Householder QR of B whole
+  (Golub & Van Loan, Matrix Computations, 4th ed., §5.2.2-5.2.3).
+- ``residual_pass``: residuals e = y - Xβ for given coefficients, written into an n-vector, with
+  the weighted sum of squares Σwe² and the gradient B₁'(sqrt(w)·e) = Z'We of the shifted design,
+  which drives a step of iterative refinement. Residuals are formed in the shifted
+  parametrisation (e = (y - c_y) - Zγ, rounding error u·|Z||γ| rather than u·|X||β|) or, for
+  refinement beyond working precision, in extended precision (numpy.longdouble, 64-bit
+  significand on x86) from the raw X and β (Björck 1967, "Iterative refinement of linear least
+  squares solutions I", BIT 7; Golub & Van Loan §5.3.8).
+
+Blocks are split between ``THREADS`` threads, each taking a contiguous run of blocks: numpy's
+ufuncs and BLAS/LAPACK calls release the GIL, so the two threads run at once. Per-thread partial
+sums are added in a fixed order, so a result does not depend on scheduling.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+from typing import TypeVar
+
+import numpy as np
+
+# Rows per block. 16,384 rows x 14 columns is 1.8 MB: a block's buffer is written and read back
+# while it is still in cache (measured on the refit benchmark's design: blocks of 65,536 rows
+# were slower; see bench/refit.py).
+BLOCK_ROWS = 16_384
+# Threads for the passes (both cores of a small machine; more rarely pays off for a pass that
+# is bound by memory bandwidth).
+THREADS = max(1, min(2, os.cpu_count() or 1))
+# Below this many rows a pass runs on the calling thread: starting threads would cost more.
+THREADED_MIN_ROWS = 4 * BLOCK_ROWS
+
+T = TypeVar("T")
+_pool: ThreadPoolExecutor | None = None
+_pool_lock = threading.Lock()
+
+
+def _executor() -> ThreadPoolExecutor:
+    global _pool
+    with _pool_lock:
+        if _pool is None:
+            _pool = ThreadPoolExecutor(max_workers=THREADS, thread_name_prefix="formwise-pass")
+        return _pool
+
+
+def _blocks(n: int) -> list[tuple[int, int]]:
+    return [(start, min(start + BLOCK_ROWS, n)) for start in range(0, n, BLOCK_ROWS)]
+
+
+def _run(n: int, work: Callable[[list[tuple[int, int]]], T]) -> list[T]:
+    """``work`` on contiguous runs of the row blocks, one run per thread; results in row order."""
+    blocks = _blocks(n)
+    if THREADS == 1 or n < THREADED_MIN_ROWS:
+        return [work(blocks)]
+    share = -(-len(blocks) // THREADS)
+    runs = [blocks[i : i + share] for i in range(0, len(blocks), share)]
+    return list(_executor().map(work, runs))
+
+
+@dataclass(frozen=True)
+class Shift:
+    """The shifted, weighted design B = sqrt(w)·[1, X₂ - c, y - c_y] (see the module docstring)."""
+
+    X: np.ndarray
+    y: np.ndarray
+    root_w: np.ndarray | None
+    c: np.ndarray  # shift per column of X, c[0] = 0 (the intercept is not shifted)
+    c_y: float
+
+    @property
+    def n(self) -> int:
+        return self.X.shape[0]
+
+    @property
+    def k(self) -> int:
+        return self.X.shape[1]
+
+    def fill(self, buffer: np.ndarray, start: int, stop: int) -> np.ndarray:
+        """B for rows start:stop, written into ``buffer`` (BLOCK_ROWS x (k+1), Fortran order)."""
+        k = self.k
+        out = buffer[: stop - start]
+        np.subtract(self.X[start:stop, 1:], self.c[1:], out=out[:, 1:k])
+        np.subtract(self.y[start:stop], self.c_y, out=out[:, k])
+        if self.root_w is None:
+            out[:, 0] = 1.0
+        else:
+            root = self.root_w[start:stop]
+            out[:, 0] = root
+            out[:, 1:] *= root[:, None]
+        return out
+
+    def buffer(self) -> np.ndarray:
+        return np.empty((min(BLOCK_ROWS, self.n), self.k + 1), order="F")
+
+
+def shift_for(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None) -> Shift:
+    """The shift from the (weighted) means of the first block of rows."""
+    head = slice(0, min(BLOCK_ROWS, X.shape[0]))
+    if weights is None:
+        c = X[head].mean(axis=0)
+        c_y = float(y[head].mean())
+    else:
+        w = weights[head]
+        c = X[head].T @ w / w.sum()
+        c_y = float(y[head] @ w / w.sum())
+    c = np.array(c, dtype=float)
+    c[0] = 0.0
+    return Shift(X, y, None if weights is None else np.sqrt(weights), c, c_y)
+
+
+def gram_pass(shift: Shift) -> np.ndarray:
+    """A = B'B, the (k+1) x (k+1) Gram matrix of the shifted, weighted design and outcome."""
+
+    def work(run: list[tuple[int, int]]) -> np.ndarray:
+        buffer = shift.buffer()
+        total = np.zeros((shift.k + 1, shift.k + 1))
+        for start, stop in run:
+            block = shift.fill(buffer, start, stop)
+            total += block.T @ block  # numpy hands B'B to BLAS syrk (one triangle, mirrored)
+        return total
+
+    return sum(_run(shift.n, work), start=np.zeros((shift.k + 1, shift.k + 1)))
+
+
+def tsqr_pass(shift: Shift) -> np.ndarray:
+    """R ((k+1) x (k+1), upper triangular) with B = QR, by the flat-tree TSQR."""
+
+    def work(run: list[tuple[int, int]]) -> list[np.ndarray]:
+        buffer = shift.buffer()
+        return [np.linalg.qr(shift.fill(buffer, start, stop), mode="r") for start, stop in run]
+
+    factors = [r for part in _run(shift.n, work) for r in part]
+    if len(factors) == 1:
+        return _square(factors[0], shift.k + 1)
+    return _square(np.linalg.qr(np.vstack(factors), mode="r"), shift.k + 1)
+
+
+def _square(r: np.ndarray, size: int) -> np.ndarray:
+    """R padded to size x size (a block with fewer rows than columns gives a short R)."""
+    if r.shape[0] == size:
+        return r
+    out = np.zeros((size, size))
+    out[: r.shape[0]] = r
+    return out
+
+
+def residual_pass(
+    shift: Shift, gamma: np.ndarray, beta: np.ndarray, resid: np.ndarray, extended: bool
+) -> tuple[np.ndarray, float]:
+    """Residuals into ``resid`` (unweighted, y - Xβ), and (Z'We, Σwe²).
+
+    ``gamma`` are the coefficients in the shifted parametrisation (y - c_y ≈ Zγ, Z = [1, X₂ - c])
+    and ``beta`` the same in the original one; the residuals come from γ in working precision, or
+    from β in extended precision when ``extended``.
+    """
+    X, y, k = shift.X, shift.y, shift.k
+    weights = None if shift.root_w is None else shift.root_w * shift.root_w
+    beta_ext = beta.astype(np.longdouble)
+    slope = np.ascontiguousarray(gamma[1:])
+    offset = shift.c_y + float(gamma[0])
+
+    def work(run: list[tuple[int, int]]) -> tuple[np.ndarray, float]:
+        z = np.empty((min(BLOCK_ROWS, shift.n), k - 1), order="F")
+        grad = np.zeros(k)
+        grad_ext = np.zeros(k, dtype=np.longdouble)
+        ssr = 0.0
+        for start, stop in run:
+            zc = z[: stop - start]
+            np.subtract(X[start:stop, 1:], shift.c[1:], out=zc)
+            e = resid[start:stop]
+            if extended:
+                # y - Xβ and X'We with a 64-bit significand: both are small differences of large
+                # terms near the solution, and working precision would bound the refinement at
+                # the κ²u·|e| level of a QR solution.
+                rows = X[start:stop].astype(np.longdouble)
+                e_ext = y[start:stop] - rows @ beta_ext
+                we_ext = e_ext if weights is None else weights[start:stop] * e_ext
+                grad_ext += rows.T @ we_ext
+                e[:] = e_ext
+                ssr += float(e_ext @ we_ext)
+                continue
+            np.subtract(y[start:stop], offset, out=e)
+            e -= zc @ slope
+            we = e if weights is None else weights[start:stop] * e
+            grad[0] += we.sum()
+            grad[1:] += zc.T @ we
+            ssr += float(e @ we)
+        if extended:
+            # X'We to Z'We = T⁻ᵀX'We: (Z'We)₂ = (X'We)₂ - c·(X'We)₀, still in extended precision.
+            grad[0] = grad_ext[0]
+            grad[1:] = grad_ext[1:] - shift.c[1:].astype(np.longdouble) * grad_ext[0]
+        return grad, ssr
+
+    parts = _run(shift.n, work)
+    grad = np.zeros(k)
+    ssr = 0.0
+    for g, s in parts:
+        grad += g
+        ssr += s
+    return grad, ssr

@@ -1,0 +1,183 @@
+"""The least-squares engine (core.model.ols, core.model.engine): its two solvers, the refinement,
+the collinearity screen, weights, and the row blocks split over threads.
+
+References: statsmodels as reference library (its QR solver, OLS and WLS); numpy.linalg for
+matrix identities (inverse, Householder QR). Thresholds on the rank tolerance come from the
+values measured below; data are invented (seeded), as in the property tests.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+
+import core
+from core.errors import DataError
+from core.model import engine, ols
+from core.model.ols import NEAR_COLLINEAR, fit_ols
+
+N_BLOCKS = 5 * engine.BLOCK_ROWS + 777  # several blocks on each thread, and a part block
+
+
+def _design(n: int, seed: int = 1) -> tuple[np.ndarray, np.ndarray]:
+    rng = np.random.default_rng(seed)
+    x1 = rng.lognormal(1.0, 0.5, n)
+    x2 = rng.uniform(1950.0, 2020.0, n)  # a large offset against its spread
+    x3 = (rng.random(n) < 0.3).astype(float)
+    X = np.asfortranarray(np.column_stack([np.ones(n), np.log(x1), x2, x3]))
+    y = X @ np.array([1.0, -0.7, 0.01, 0.2]) + rng.normal(0.0, 0.3 + 0.2 * x3, n)
+    return X, y
+
+
+def _rel(a: np.ndarray, b: np.ndarray) -> float:
+    return float(np.max(np.abs(np.asarray(a) - np.asarray(b)) / np.maximum(np.abs(b), 1e-300)))
+
+
+@pytest.fixture(scope="module")
+def big() -> tuple[np.ndarray, np.ndarray]:
+    return _design(N_BLOCKS)
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_both_solvers_agree_with_statsmodels(big, weighted, monkeypatch):
+    X, y = big
+    w = np.random.default_rng(2).uniform(0.5, 2.0, len(y)) if weighted else None
+    ref = (sm.WLS(y, X, weights=w) if weighted else sm.OLS(y, X)).fit(method="qr")  # statsmodels as reference library
+    fits = {"normal equations": fit_ols(X, y, w)}
+    monkeypatch.setattr(ols, "NORMAL_EQUATIONS_MAX_CONDITION", 0.0)  # force the QR path
+    fits["tall-skinny QR"] = fit_ols(X, y, w)
+    for solver, fit in fits.items():
+        assert fit.solver == solver
+        assert _rel(fit.coef, ref.params) < 1e-11
+        assert _rel(np.sqrt(np.diag(fit.xtx_inv)) * fit.sigma, ref.bse) < 1e-10
+        assert _rel(fit.ssr, ref.ssr) < 1e-11
+        assert _rel(fit.r2, ref.rsquared) < 1e-11
+        assert _rel(fit.loglik, ref.llf) < 1e-11
+        assert _rel(fit.fitted, ref.fittedvalues) < 1e-11
+        assert np.allclose(fit.resid, y - X @ fit.coef, rtol=0, atol=1e-12)
+        gram = X.T @ (X * (w[:, None] if weighted else 1.0))
+        assert np.array_equal(fit.xtx_inv, fit.xtx_inv.T)
+        assert _rel(fit.xtx_inv, np.linalg.inv(gram)) < 1e-6  # numpy: the inverse (of a Gram matrix with κ ≈ 1e9)
+
+
+def test_threads_and_blocks_do_not_change_the_fit(big, monkeypatch):
+    X, y = big
+    two = fit_ols(X, y)
+    monkeypatch.setattr(engine, "THREADS", 1)
+    one = fit_ols(X, y)
+    monkeypatch.setattr(engine, "BLOCK_ROWS", len(y))
+    whole = fit_ols(X, y)
+    for fit in (one, whole):
+        assert _rel(fit.coef, two.coef) < 1e-13
+        assert _rel(fit.xtx_inv, two.xtx_inv) < 1e-12
+        assert _rel(fit.ssr, two.ssr) < 1e-13
+    assert np.array_equal(fit_ols(X, y).coef, fit_ols(X, y).coef)  # partial sums added in a fixed order
+
+
+def test_unrepresentative_first_block_is_still_accurate(big):
+    """The shift is taken from the first block; sorting a column puts its extreme values there."""
+    X, y = big
+    order = np.argsort(X[:, 2])
+    Xs, ys = np.asfortranarray(X[order]), y[order]
+    fit = fit_ols(Xs, ys)
+    unsorted = fit_ols(X, y)  # the same least-squares problem, rows in another order
+    assert _rel(fit.coef, unsorted.coef) < 1e-12
+    assert _rel(fit.xtx_inv, unsorted.xtx_inv) < 1e-11
+    ref = sm.OLS(ys, Xs).fit(method="qr")  # statsmodels as reference library
+    assert _rel(fit.coef, ref.params) < 1e-10
+    assert _rel(fit.sigma * np.sqrt(np.diag(fit.xtx_inv)), ref.bse) < 1e-10
+
+
+def test_extended_refinement_beats_working_precision():
+    """A Wampler-like polynomial (x = 0..20, degree 5) with an exactly known solution: the QR
+    path with extended-precision residuals recovers it far beyond a Householder QR."""
+    x = np.arange(21.0)
+    X = np.asfortranarray(np.column_stack([x**j for j in range(6)]))
+    y = X @ np.ones(6) + 1e4 * np.where(np.arange(21) % 2 == 0, 1.0, -1.0)  # large residuals
+    fit = fit_ols(X, y)
+    exact = np.linalg.lstsq(X.astype(np.longdouble).astype(float), y, rcond=None)[0]  # numpy lstsq (SVD)
+    assert fit.solver == "tall-skinny QR" and fit.condition_number > NEAR_COLLINEAR
+    assert fit.refinements >= 1
+    assert np.max(np.abs(fit.coef - exact) / np.abs(exact)) < 1e-6
+
+
+@pytest.mark.parametrize(
+    "case",
+    ["log(100p) and log(p)", "12x and x", "x1 + x2 beside both", "a dummy for every level"],
+)
+def test_exact_collinearity_is_refused_naming_the_columns(case):
+    n = N_BLOCKS
+    rng = np.random.default_rng(4)
+    p, x, z = rng.lognormal(1, 0.5, n), rng.normal(10, 2, n), rng.normal(size=n)
+    level = rng.integers(0, 3, n)
+    columns, names, named = {
+        "log(100p) and log(p)": ([np.log(100 * p), np.log(p), z], ["log(cents)", "log(p)", "z"], {"log(cents)", "log(p)"}),
+        "12x and x": ([12 * x, x, z], ["months", "years", "z"], {"months", "years"}),
+        "x1 + x2 beside both": ([x, z, x + z], ["x", "z", "x+z"], {"x", "z", "x+z"}),
+        "a dummy for every level": (
+            [x, *[(level == j).astype(float) for j in range(3)]],
+            ["x", "d0", "d1", "d2"],
+            {"d0", "d1", "d2"},
+        ),
+    }[case]
+    X = np.asfortranarray(np.column_stack([np.ones(n), *columns]))
+    y = X[:, 1] + rng.normal(size=n)
+    # How close to singular these are, in the screen's own terms (the values RANK_TOLERANCE is
+    # set against): a few units of rounding.
+    R = engine.tsqr_pass(engine.shift_for(X, y, None))[: X.shape[1], : X.shape[1]]
+    singular, _ = ols._singular(R, X.shape[1])
+    assert singular[-1] / singular[0] < 1e-14
+    with pytest.raises(DataError) as caught:
+        fit_ols(X, y, names=["intercept", *names])
+    message = str(caught.value)
+    assert "collinear" in message
+    for name in named:
+        assert name in message
+    assert "perfectly" not in message and "exact combination" not in message
+
+
+def test_near_collinear_design_is_fitted_with_a_warning():
+    """Condition number about 1e8: fitted, the condition number reported, the app warned."""
+    rng = np.random.default_rng(6)
+    n = 3000
+    x, z = rng.normal(10, 2, n), rng.normal(size=n)
+    table = pd.DataFrame({"x": x, "x2": x + 4e-8 * rng.normal(size=n), "z": z})
+    table["y"] = 1 + 2 * x + 0.5 * z + rng.normal(size=n)
+    spec = {
+        "outcome": {"column": "y", "transform": "level"},
+        "regressors": [{"column": c, "transform": "level"} for c in ("x", "x2", "z")],
+        "covariance": "classical",
+    }
+    result = core.analyze(table, spec, parts={"terms", "fit"})
+    condition = result["fit"]["condition_number"]
+    assert 3e7 < condition < 3e8
+    warning = [w for w in result["warnings"] if "collinear" in w]
+    assert warning and "exact" not in warning[0] and "perfectly" not in warning[0]
+    ref = sm.OLS(table["y"], sm.add_constant(table[["x", "x2", "z"]])).fit(method="qr")  # statsmodels as reference library
+    estimates = {t["name"]: t["estimate"] for t in result["terms"]}
+    # Both solutions carry errors of order κu ≈ 1e-8 of the largest coefficient.
+    assert abs(estimates["z"] - ref.params["z"]) < 1e-6
+    assert abs(estimates["x"] + estimates["x2"] - ref.params["x"] - ref.params["x2"]) < 1e-6
+
+
+def test_precision_warning_beyond_1e10():
+    rng = np.random.default_rng(7)
+    n = 500
+    x = rng.normal(10, 2, n)
+    X = np.asfortranarray(np.column_stack([np.ones(n), x, x + 1e-11 * rng.normal(size=n)]))
+    fit = fit_ols(X, x + rng.normal(size=n))
+    assert fit.condition_number > 1e10
+    assert fit.warnings and "significant digits" in fit.warnings[0]
+    well = fit_ols(*_design(500))
+    assert well.warnings == [] and well.solver == "normal equations" and well.condition_number < 10
+
+
+def test_intercept_only_and_one_block():
+    rng = np.random.default_rng(8)
+    y = rng.normal(5, 1, 50)
+    fit = fit_ols(np.ones((50, 1)), y)
+    assert abs(fit.coef[0] - y.mean()) < 1e-14
+    assert fit.condition_number == 1.0
+    assert abs(fit.xtx_inv[0, 0] - 1 / 50) < 1e-17
