@@ -8,10 +8,8 @@ from __future__ import annotations
 
 import json
 import math
-import re
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from core.inference.choices import numeric_or_none
@@ -24,43 +22,8 @@ GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
 ROLES = ["outcome", "regressor", "not used"]
 
 
-# A default model on a wide file stays readable and quick; the user can add more in the grid.
-MAX_DEFAULT_REGRESSORS = 12
-
-
-# Text columns with more levels than this are treated as identifiers, not categories.
-MAX_DEFAULT_LEVELS = 20
-
-
-# Skewness above which a positive amount is logged by default (a common rule of thumb).
-SKEWED = 1.0
-
-
-_INDEX_NAME = re.compile(r"(^|_)(id|index|week|year|month|day|quarter|period|date|time)s?($|_)", re.IGNORECASE)
-
-
 class GridError(ValueError):
     """The grid does not describe a model yet (e.g. no outcome); worded for the user."""
-
-
-# --- reading a column ------------------------------------------------------------------------
-def _looks_like_index(name: str, values: pd.Series) -> bool:
-    """Row counters, ids and time indices make poor outcomes and regressors by default."""
-    finite = values.dropna()
-    if finite.empty:
-        return True
-    integer = bool(np.all(np.equal(np.mod(finite.to_numpy(), 1), 0)))
-    if not integer:
-        return False
-    if _INDEX_NAME.search(name):
-        return True
-    distinct = finite.nunique()
-    return distinct > 2 and distinct == int(finite.max() - finite.min()) + 1
-
-
-def _skewness(values: pd.Series) -> float:
-    skew = values.dropna().skew()
-    return float(skew) if skew is not None and math.isfinite(skew) else 0.0
 
 
 def describe_column(series: pd.Series) -> str:
@@ -86,133 +49,14 @@ def describe_column(series: pd.Series) -> str:
     return ", ".join(parts) + tail
 
 
-def suggest_transform(series: pd.Series, role: str = "regressor") -> str:
-    """A first transform for a column (rules of thumb, the user can change it in the grid).
-
-    Text -> category; 0/1 -> level; strictly positive and right-skewed -> log; non-negative
-    with zeros and right-skewed -> IHS (log would drop the zero rows); otherwise level.
-    """
-    values = numeric_or_none(series)
-    if values is None:
-        return "level" if role == "outcome" else "category"
-    finite = values.dropna()
-    if finite.empty or set(finite.unique()) <= {0.0, 1.0}:
-        return "level"
-    skewed = _skewness(finite) > SKEWED
-    if skewed and (finite > 0).all():
-        return "log"
-    if skewed and (finite >= 0).all():
-        return "ihs"
-    return "level"
-
-
-def _is_outcome_candidate(name: str, series: pd.Series) -> bool:
-    values = numeric_or_none(series)
-    if values is None:
-        return False
-    finite = values.dropna()
-    return bool(len(finite) > 2 and (finite > 0).all() and finite.nunique() > 2 and not _looks_like_index(name, finite))
-
-
-def default_spec(frame: pd.DataFrame, profile: dict[str, Any] | None = None) -> dict[str, Any]:
-    """A starting model for a newly loaded file.
-
-    Outcome: the first strictly positive numeric column that is not a counter or time index.
-    Regressors: the other numeric columns that vary, and text columns with a few levels as
-    categories, up to ``MAX_DEFAULT_REGRESSORS``. Raises ``GridError`` when no column fits
-    as an outcome. With the file's ``profile`` (``core.intake.profile.profile_table``) the advisor
-    decides: kinds pick the columns and its suggested transforms fill the grid.
-    """
-    if profile is not None:
-        return _advised_spec(frame, profile)
-    names = [str(c) for c in frame.columns]
-    outcome = next((c for c in names if _is_outcome_candidate(c, frame[c])), None)
-    if outcome is None:
-        raise GridError("the table has no numeric column with positive values to use as the outcome; check the file.")
-    regressors: list[dict[str, Any]] = []
-    for name in names:
-        if name == outcome or len(regressors) >= MAX_DEFAULT_REGRESSORS:
-            continue
-        series = frame[name]
-        values = numeric_or_none(series)
-        if values is None:
-            levels = series.dropna().astype(str).nunique()
-            if 2 <= levels <= min(MAX_DEFAULT_LEVELS, max(2, len(series) // 10)):
-                regressors.append({"column": name, "transform": "category"})
-            continue
-        finite = values.dropna()
-        if finite.nunique() < 2 or _looks_like_index(name, finite):
-            continue
-        regressors.append({"column": name, "transform": suggest_transform(series)})
-    return {
-        "outcome": {"column": outcome, "transform": suggest_transform(frame[outcome], "outcome")},
-        "regressors": regressors,
-        "estimator": "ols",
-        "covariance": "HC1",
-        "cluster": None,
-        "weights": None,
-        "at": {},
-    }
-
-
 # Kinds the advisor reads as labels of rows, not variables: kept out of the model unless the
 # user asks for them (an identifier still serves to cluster standard errors).
 LOCKED_KINDS = {"identifier": "identifier", "date": "dates"}
 
 
-# Kinds that make a sensible default outcome: amounts and measurements, not labels or 0/1.
-_OUTCOME_KINDS = ("money", "count", "continuous", "duration_years", "share", "percent")
-
-
-_NOT_BY_DEFAULT = {"time_index", "calendar_year", "constant", "empty"}
-
-
 def profile_entries(profile: dict[str, Any] | None) -> dict[str, dict[str, Any]]:
     """The profile's column entries by column name (empty without a profile)."""
     return {str(e["column"]): e for e in (profile or {}).get("columns") or []}
-
-
-def _advised_spec(frame: pd.DataFrame, profile: dict[str, Any]) -> dict[str, Any]:
-    """``default_spec`` following the advisor: identifiers, dates, text, constants and time
-    indices stay out; every other column enters with its suggested transform."""
-    entries = profile_entries(profile)
-    names = [str(c) for c in frame.columns]
-
-    def usable(name: str) -> bool:
-        entry = entries.get(name)
-        return bool(entry and entry.get("suggested_transform") and not set(entry.get("flags") or []) & _NOT_BY_DEFAULT)
-
-    def outcome_fits(name: str) -> bool:
-        entry = entries.get(name) or {}
-        return (
-            usable(name)
-            and entry.get("kind") in _OUTCOME_KINDS
-            and (entry.get("min") or 0) > 0
-            and (entry.get("n_distinct") or 0) > 2
-        )
-
-    outcome = next((c for c in names if outcome_fits(c)), None)
-    if outcome is None:
-        # The advisor found no amount to explain; fall back on the plain rules.
-        return default_spec(frame)
-    suggested = entries[outcome]["suggested_transform"]
-    regressors: list[dict[str, Any]] = []
-    for name in names:
-        if name == outcome or len(regressors) >= MAX_DEFAULT_REGRESSORS or not usable(name):
-            continue
-        transform = entries[name]["suggested_transform"]
-        if transform == "category" and entries[name].get("n_distinct", 0) > min(MAX_DEFAULT_LEVELS, max(2, len(frame) // 10)):
-            continue  # many levels: a dummy each would swamp a first model; the user can add it
-        regressors.append({"column": name, "transform": transform})
-    return {
-        "outcome": {"column": outcome, "transform": suggested if suggested in menu_codes("outcome") else "level"},
-        "regressors": regressors,
-        "estimator": "ols",
-        "covariance": "HC1",
-        "cluster": None,
-        "weights": None,
-        "at": {},
-    }
 
 
 # --- spec <-> grid ------------------------------------------------------------------------------
@@ -247,7 +91,8 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
         elif advice.get("suggested_transform") in menu_codes("regressor"):
             row["transform"] = advice["suggested_transform"]
         else:
-            row["transform"] = suggest_transform(series)
+            # No advice (a column the advisor did not profile): text as a category, numbers as they are.
+            row["transform"] = "level" if numeric_or_none(series) is not None else "category"
         rows.append(row)
     return pd.DataFrame(rows, columns=GRID_COLUMNS).astype(object)
 

@@ -26,8 +26,10 @@ from typing import Any
 import pandas as pd
 import streamlit as st
 
+import core
 from app import keys
 from app.gridspec import LOCKED_KINDS, _text, profile_entries
+from core.intake.advisor import suggest_with_notes
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
 from core.model.transforms import menu_codes, menu_word
@@ -59,6 +61,46 @@ def sheet_names(raw: bytes) -> list[str]:
         return [str(s) for s in pd.ExcelFile(io.BytesIO(raw), engine="openpyxl").sheet_names]
     except Exception:  # openpyxl raises many unrelated types for a broken workbook
         return []
+
+
+@st.cache_data(max_entries=8, show_spinner="Choosing a starting model…")
+def starting_model(_frame: pd.DataFrame, profile: dict[str, Any]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """The advisor's starting model for a new table and its notes (``core.suggest_with_notes``),
+    cached on the table's profile (the frame itself is not hashed)."""
+    return suggest_with_notes(_frame, profile)
+
+
+def starting_model_or_none(frame: pd.DataFrame, profile: dict[str, Any]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """The starting model, or, for a table no model can be fitted to, an empty grid with the
+    advisor's reason as its one note (the table is still shown, so the user sees why)."""
+    try:
+        return starting_model(frame, profile)
+    except core.DataError as exc:
+        return {"outcome": {}, "regressors": []}, [{"column": None, "about": "no_model", "text": str(exc)}]
+
+
+def has_sheets(upload: Any) -> bool:
+    """Whether the upload is a workbook with more than one sheet (the picker is shown)."""
+    known = st.session_state.get(keys.SHEET_LIST)
+    return bool(known and known[0] == upload.file_id and len(known[1]) > 1)
+
+
+def advice_notes(data: dict[str, Any]) -> None:
+    """Under the grid: how the starting model was chosen (columns left out and why)."""
+    advice = data.get("advice") or []
+    for note in advice:
+        if note.get("about") == "no_model":
+            st.warning(plain(sentence_case(note["text"])))
+    advice = [note for note in advice if note.get("about") != "no_model"]
+    if not advice:
+        return
+    left_out = sum(1 for note in advice if note.get("about") in ("left_out", "removed"))
+    title = "How the starting model was chosen" + (
+        f" ({left_out} column{'s' if left_out != 1 else ''} left out)" if left_out else ""
+    )
+    with st.expander(title):
+        st.caption("\n".join(f"- {plain(sentence_case(note['text']))}" for note in advice))
+        st.caption("A column left out can be added again in the grid: set its role to 'regressor'.")
 
 
 def sheet_picker(upload: Any) -> str | None:

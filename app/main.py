@@ -26,7 +26,6 @@ from app.gridspec import (
     ROLES,
     GridError,
     category_levels,
-    default_spec,
     grid_to_spec,
     outcome_column,
     resolve_outcome,
@@ -54,11 +53,13 @@ def use_data(
     spec: dict[str, Any],
     notes: list[str] | None = None,
     profile: dict[str, Any] | None = None,
+    advice: list[dict[str, Any]] | None = None,
 ) -> None:
     """Make ``frame`` the working data, with the grid and error choices taken from ``spec``;
-    ``notes`` say what reading changed, ``profile`` holds the advisor's column profiles."""
+    ``notes`` say what reading changed, ``profile`` holds the advisor's column profiles and
+    ``advice`` its notes on the starting model (``core.suggest_with_notes``)."""
     ss = st.session_state
-    ss[keys.DATA] = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile}
+    ss[keys.DATA] = {"id": data_id, "name": name, "frame": frame, "notes": notes, "profile": profile, "advice": advice}
     ss[keys.GRID_BASE] = spec_to_grid(spec, frame, profile)
     # A new table starts with its identifier and date columns locked out again.
     ss.pop(keys.UNLOCK_LOCKED, None)
@@ -93,17 +94,20 @@ def take_upload(upload: Any) -> None:
     raw = upload.getvalue()
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet)
-        spec = default_spec(frame, profile)
+        spec, advice = intake.starting_model_or_none(frame, profile)
     except (core.FormwiseError, GridError) as exc:
         # Most reader messages name the file already; say it once.
         said = str(exc)
-        ss[keys.UPLOAD_ERROR] = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
+        said = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
+        if intake.has_sheets(upload):
+            said += " This workbook has several sheets: pick the one that holds the table in the Sheet picker above."
+        ss[keys.UPLOAD_ERROR] = said
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
         ss[keys.UPLOAD_ERROR] = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
         return
     data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
-    use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile)
+    use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile, advice)
     st.rerun()  # draw the page (data name, notes) for the new table from the top
 
 
@@ -205,6 +209,7 @@ def variables_grid() -> pd.DataFrame:
         st.rerun()
     ss[keys.PREVIOUS_GRID] = grid
     intake.keep_locked_out(grid, restart_grid)
+    intake.advice_notes(ss[keys.DATA])
     levels = category_levels(ss[keys.DATA]["frame"], grid)
     if levels:
         st.caption(

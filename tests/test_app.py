@@ -17,8 +17,9 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import charts, tables
-from app.gridspec import GridError, default_spec, describe_column, grid_to_spec, resolve_outcome, spec_to_grid
+from app.gridspec import GridError, describe_column, grid_to_spec, resolve_outcome, spec_to_grid
 from core.inference.choices import suggest_cluster
+from core.intake.profile import profile_table
 from core.model.transforms import variable_label
 from core.output.numbers import interval, p_value, sig
 from core.output.text import fit_sentence, model_sentence, rows_sentence
@@ -199,10 +200,10 @@ def test_demo_spec_round_trips_through_the_grid(demo_frame: pd.DataFrame) -> Non
 
 
 def test_unused_rows_carry_a_suggested_transform(demo_frame: pd.DataFrame) -> None:
-    grid = spec_to_grid(DEMO_SPEC, demo_frame).set_index("column")
+    grid = spec_to_grid(DEMO_SPEC, demo_frame, profile_table(demo_frame)).set_index("column")
     assert grid.at["kiosk_id", "role"] == "not used"
     assert grid.at["kiosk_id", "transform"] == "category"
-    assert grid.at["catering_orders", "transform"] == "ihs"  # zeros and right skew
+    assert grid.at["catering_orders", "transform"] == "level"  # a small count with zeros: the advisor keeps levels
     assert grid.at["ad_spend", "about"].endswith("647 zeros")
 
 
@@ -272,7 +273,7 @@ def test_default_spec_for_a_new_file() -> None:
             "constant": 1.0,  # no variation: left out
         }
     )
-    spec = default_spec(frame)
+    spec = core.suggest(frame)
     assert spec["outcome"] == {"column": "revenue", "transform": "log"}
     assert {r["column"]: r["transform"] for r in spec["regressors"]} == {
         "visits": "log",
@@ -283,8 +284,8 @@ def test_default_spec_for_a_new_file() -> None:
     }
     result = core.analyze(frame, spec)
     assert result["n_obs"] == n
-    with pytest.raises(GridError):
-        default_spec(pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]}))
+    with pytest.raises(core.DataError):
+        core.suggest(pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]}))
 
 
 def test_cluster_suggestion_and_column_words(demo_frame: pd.DataFrame) -> None:

@@ -13,7 +13,7 @@ from streamlit.testing.v1 import AppTest
 
 import core
 from app import intake, keys, profiles_view
-from app.gridspec import GridError, default_spec, spec_to_grid
+from app.gridspec import spec_to_grid
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
 from core.model.transforms import menu_word
@@ -263,7 +263,7 @@ def demo_profile() -> tuple[pd.DataFrame, dict]:
 
 def test_apply_suggestions_keeps_roles_and_skips_what_an_outcome_cannot_take(demo_profile) -> None:
     frame, profile = demo_profile
-    base = spec_to_grid(default_spec(frame, profile), frame, profile)
+    base = spec_to_grid(core.suggest(frame, profile), frame, profile)
     edited = base.copy()
     edited.loc[edited["column"] == "drink_price", "transform"] = "sqrt"
     edited.loc[edited["column"] == "region", "role"] = "outcome"  # an outcome cannot be a category
@@ -279,7 +279,7 @@ def test_apply_suggestions_keeps_roles_and_skips_what_an_outcome_cannot_take(dem
 def test_lock_roles_and_locked_columns(demo_profile) -> None:
     frame, profile = demo_profile
     assert intake.locked_columns(profile) == {"kiosk_id": "identifier"}
-    g = spec_to_grid(default_spec(frame, profile), frame, profile)
+    g = spec_to_grid(core.suggest(frame, profile), frame, profile)
     g.loc[g["column"] == "kiosk_id", "role"] = "regressor"
     fixed, moved = intake.lock_roles(g, {"kiosk_id": "identifier"})
     assert moved == ["kiosk_id"] and set(fixed.loc[fixed["column"] == "kiosk_id", "role"]) == {"not used"}
@@ -305,7 +305,7 @@ def test_default_spec_follows_the_advisor() -> None:
         }
     )
     profile = profile_table(frame)
-    spec = default_spec(frame, profile)
+    spec = core.suggest(frame, profile)
     assert spec["outcome"] == {"column": "revenue", "transform": "log"}
     assert {r["column"]: r["transform"] for r in spec["regressors"]} == {
         "visits": "log",
@@ -318,14 +318,14 @@ def test_default_spec_follows_the_advisor() -> None:
     g = spec_to_grid(spec, frame, profile).set_index("column")
     assert g.at["customer", "about"].startswith("identifier") and g.at["customer", "role"] == "not used"
     assert g.at["week", "transform"] == "level"  # unused rows carry the advisor's suggestion too
-    with pytest.raises(GridError):
+    with pytest.raises(core.DataError):
         names = pd.DataFrame({"name": ["a", "b", "c"], "town": ["x", "y", "z"]})
-        default_spec(names, profile_table(names))
+        core.suggest(names, profile_table(names))
 
 
 def test_profile_table_rows_and_words(demo_profile) -> None:
     frame, profile = demo_profile
-    g = spec_to_grid(default_spec(frame, profile), frame, profile)
+    g = spec_to_grid(core.suggest(frame, profile), frame, profile)
     table = profiles_view.profile_frame(profile, g)
     assert list(table["Column"]) == list(g["column"])  # the grid's order
     row = table.set_index("Column").loc["region"]
