@@ -704,7 +704,7 @@ def _dimension_extent(ref: bytes) -> tuple[int, int] | None:
     return rows, columns
 
 
-def _check_sheet(package_raw: bytes, name: str, chosen: str, path: str, dimension: bytes | None) -> None:
+def _check_sheet(package_raw: bytes, name: str, chosen: str, path: str, dimension: bytes | None, counted: bool) -> None:
     """Refuse the chosen sheet when it declares or holds more than a worksheet can, or more cells
     than the budget; cheap (tags counted, not parsed) so refusing takes well under a second."""
     where = f"sheet '{chosen}' of '{name}'"
@@ -717,6 +717,8 @@ def _check_sheet(package_raw: bytes, name: str, chosen: str, path: str, dimensio
                 f"worksheet can hold ({XLSX_ROWS:,} rows by {XLSX_COLUMNS:,} columns): the file is damaged or was not "
                 "written by a spreadsheet program. Export the data as CSV from its source and load that."
             )
+    if counted:
+        return
     try:
         with zipfile.ZipFile(io.BytesIO(package_raw)) as package:
             _check_counts(where, _tally(package, package.getinfo(path)))
@@ -731,6 +733,10 @@ def _too_many_rows(where: str) -> DataError:
         f"{where} has more rows than a worksheet can hold ({XLSX_ROWS:,}): the file is damaged or was not written "
         "by a spreadsheet program. Export the data as CSV from its source and load that."
     )
+
+
+def _blank_value(value: Any) -> bool:
+    return value is None or (isinstance(value, str) and not value.strip())
 
 
 def _excel_value(value: Any) -> Any:
@@ -772,6 +778,10 @@ def _sheet_grid(worksheet: Any, name: str, chosen: str) -> pd.DataFrame:
                     f"spans more than {XLSX_MAX_GRID:,} cells on sheet '{chosen}' (counting the empty cells between "
                     "its values); Formwise reads workbooks up to that size",
                 )
+            if len(row) - row.count(None) > MAX_COLUMNS:  # cheap bound first, exact count only then
+                filled = sum(1 for v in row if not _blank_value(v))
+                if filled > MAX_COLUMNS:
+                    raise _too_wide(name, filled)  # that many filled columns survive the tidying: stop now
             end = len(row)
             while end and (row[end - 1] is None or row[end - 1] == ""):
                 end -= 1
@@ -828,7 +838,9 @@ def _excel_cells(raw: bytes, name: str, sheet: str | None, notes: list[str]) -> 
             chosen = close[0]
         worksheet = worksheets[sheets.index(chosen)]
         path = str(getattr(worksheet, "_worksheet_path", "")).lstrip("/")
-        _check_sheet(raw, name, chosen, path, dimensions.get(path))
+        # A sheet without a declared size was counted already, before the workbook opened.
+        counted = path in dimensions and dimensions[path] is None
+        _check_sheet(raw, name, chosen, path, dimensions.get(path), counted)
         grid = _sheet_grid(worksheet, name, chosen)
     finally:
         book.close()
