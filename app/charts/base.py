@@ -15,29 +15,30 @@ import numpy as np
 import plotly.graph_objects as go
 
 from core.output.escape import html
-
-BLUE = "#0072B2"
-ORANGE = "#E69F00"
-SKY = "#56B4E9"
-VERMILLION = "#D55E00"
-PURPLE = "#CC79A7"
-GREEN = "#009E73"
-INK = "#1F2933"
-GRID = "#E4E7EB"
-FONT = "Source Sans Pro, Segoe UI, Helvetica, Arial, sans-serif"
-
+from core.output.theme import (  # noqa: F401 - the app's charts read the shared look from here
+    BEYOND_NAME,
+    BLUE,
+    FONT,
+    GREEN,
+    GREY,
+    GRID,
+    INK,
+    ORANGE,
+    PURPLE,
+    SHADE,
+    SKY,
+    SLIDE_SIZES,
+    SUBTLE,
+    TYPE,
+    VERMILLION,
+)
 
 # --- shared look of the views' charts ------------------------------------------------------------------
-GREY = "#7B8794"
-BEYOND_NAME = "Beyond the data: extrapolated"
-SHADE = "#9AA5B1"
-SUBTLE = "#52606D"
 CONFIG = {"displaylogo": False}
 # Type sizes in CSS pixels of the figure's own canvas. The canvas of a full-slide export is
 # 1280 x 720 px, which at 96 px per inch is the 13.33 x 7.5 in of a 16:9 slide: a size here
 # times 0.75 is the size in points on the slide (ticks 14 pt, title 19.5 pt), the same figure
 # on screen reads like a preview of the slide.
-TYPE = {"base": 19, "title": 26, "subtitle": 18, "legend": 18, "note": 17, "caption": 16}
 # Room per row of the legend placed between the subtitle and the plot.
 _LEGEND_ROW = 32
 # Widest line of title, subtitle, legend or caption: the chart's width less the margins, and
@@ -173,11 +174,6 @@ def style(
 # 1280 x 720 px at 96 px per inch, so an SVG drops onto a slide at its real size and the type
 # keeps its point sizes (see TYPE). PNGs are drawn at EXPORT_SCALE times the canvas: a full
 # slide's PNG is 3840 x 2160, twice the pixels of a 1920 x 1080 screen, sharp on a 4K projector.
-SLIDE_SIZES = {
-    "full": ("Full slide, 16:9", 1280, 720),
-    "half": ("Half slide, 8:9", 640, 720),
-    "square": ("Square", 720, 720),
-}
 EXPORT_FORMATS = {"png": "PNG (picture)", "svg": "SVG (scalable, editable)"}
 EXPORT_SCALE = 3
 # Distance of the caption line under the plot: clear of the tick labels and the x-axis title.

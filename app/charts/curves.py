@@ -9,12 +9,9 @@ import plotly.graph_objects as go
 
 from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, style
 from core.output.escape import html
+from core.output.theme import NAIVE_NAME, SMEARING_NAME
 
 # --- effect curves ---------------------------------------------------------------------------------------
-SMEARING_NAME = "Smearing (Duan) — expected value"
-
-
-NAIVE_NAME = "Naive back-transform — closer to the median"
 
 
 def _model_words(outcome_label: str, ppml: bool) -> str:

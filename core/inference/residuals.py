@@ -6,7 +6,6 @@ Computed from the fitted model through ``core.analyze`` (parts ``"residuals"`` a
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
 import numpy as np
@@ -14,6 +13,7 @@ import pandas as pd
 from scipy import stats
 
 from core.inference.choices import numeric_or_none
+from core.inference.shape import skewness
 from core.model.covariance import leverage
 from core.model.design import Design
 from core.model.ols import OLSFit
@@ -94,11 +94,6 @@ def _histogram(values: np.ndarray, bins: int = 40) -> dict[str, list[float]]:
     return {"counts": counts.tolist(), "edges": edges.tolist()}
 
 
-def _skew(values: np.ndarray) -> float | None:
-    skew = pd.Series(values).skew() if len(values) > 2 else float("nan")
-    return float(skew) if skew is not None and math.isfinite(skew) else None
-
-
 def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[dict[str, Any]]:
     """For the outcome and each numeric regressor: histograms of the values as recorded and as
     transformed (rows the transform cannot take left out and counted), with skewness of each."""
@@ -124,7 +119,7 @@ def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[di
             "transform": code,
             "label": variable_label(column, code, role),
             "raw": _histogram(raw),
-            "skew_raw": _skew(raw),
+            "skew_raw": skewness(raw),
             "transformed": None,
             "skew_transformed": None,
             "n_left_out": 0,
@@ -136,6 +131,6 @@ def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[di
                 moved = transform.forward(raw[~bad])
             moved = moved[np.isfinite(moved)]
             if moved.size >= 3:
-                item.update(transformed=_histogram(moved), skew_transformed=_skew(moved), n_left_out=int(bad.sum()))
+                item.update(transformed=_histogram(moved), skew_transformed=skewness(moved), n_left_out=int(bad.sum()))
         out.append(item)
     return out

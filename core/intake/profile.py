@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from core.inference.shape import skewness
 from core.intake.advisor import name_words, suggest_transform
 from core.intake.reader import ATTRS_KEY
 
@@ -151,9 +152,9 @@ def _numeric_profile(entry: dict[str, Any], values: np.ndarray, column: str, fac
     with np.errstate(all="ignore"):  # the median of two values near the float limit overflows
         entry["min"], entry["median"], entry["max"] = float(finite.min()), float(np.median(finite)), float(finite.max())
         entry["median_positive"] = float(np.median(positive)) if len(positive) else None
-    entry["skewness"] = _skew(finite)
-    entry["skewness_log"] = _skew(np.log(positive)) if len(positive) >= 3 else None
-    entry["skewness_ihs"] = _skew(np.arcsinh(finite))
+    entry["skewness"] = skewness(finite)
+    entry["skewness_log"] = skewness(np.log(positive)) if len(positive) >= 3 else None
+    entry["skewness_ihs"] = skewness(np.arcsinh(finite))
     entry["histogram"] = _histogram(finite)
     if len(distinct) <= 10:
         labels, freq = np.unique(finite, return_counts=True)
@@ -322,29 +323,6 @@ def _money_name(column: str, words: set[str]) -> bool:
     if any(mark in column for mark in _CURRENCY_MARKS) or words & _MONEY_WORDS:
         return True
     return any(w.startswith(stem) for w in words for stem in _MONEY_STEMS)
-
-
-def _skew(values: np.ndarray) -> float | None:
-    """Sample skewness, adjusted Fisher-Pearson G1 (``scipy.stats.skew(bias=False)``, as
-    spreadsheets' SKEW; Joanes & Gill 1998, The Statistician 47(1)); None when undefined.
-
-    The values are scaled to at most 1 in size first (skewness is scale-free; this keeps the
-    moments in range near the float limit), and a spread below the rounding noise of the values
-    counts as none, so near-constant data give None rather than scipy's precision warning.
-    """
-    n = len(values)
-    if n < 3 or not np.isfinite(values).all():
-        return None
-    scale = float(np.max(np.abs(values)))
-    if scale == 0:
-        return None
-    with np.errstate(all="ignore"):
-        scaled = values / scale
-        spread = float(np.std(scaled))
-        if not math.isfinite(spread) or spread <= 1e-12:
-            return None
-        value = float(stats.skew(scaled, bias=False))
-    return value if math.isfinite(value) else None
 
 
 def _histogram(values: np.ndarray) -> dict[str, list[float] | list[int]] | None:

@@ -24,6 +24,7 @@ from core.model.transforms import parse_transform
 from core.output import figures, numbers, theme
 from core.output.numbers import format_cell
 from core.output.tables import coefficient_table, comparison_table, diagnostics_table, effects_table
+from core.output.text import small_sample
 
 CAUTION_REVIEW = (
     "For decisions with consequences, have the analysis reviewed by a qualified statistician and follow "
@@ -137,7 +138,7 @@ def build_report(
         generated=f"{datetime.now(UTC):%Y-%m-%d %H:%M}",
         model_words=model_in_words(spec),
         cautions=[*result["cautions"], CAUTION_REVIEW],
-        small_sample=n_coefficients if result["n_obs"] < max(30, 10 * n_coefficients) else None,
+        small_sample=n_coefficients if small_sample(result["n_obs"], n_coefficients) else None,
         coefficients=coefficient_table(result),
         effects=effects_table(result),
         reference=reference,
