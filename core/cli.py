@@ -77,6 +77,19 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
+    import warnings  # imported here, as only main() needs them
+
+    import numpy as np
+
+    # A numpy or pandas warning would print before the one `error:` line; results carry their own
+    # warnings, so the command's are captured (and dropped), and floating-point ones never raised.
+    with warnings.catch_warnings(record=True), np.errstate(all="ignore"):
+        warnings.simplefilter("default")  # recorded once per place, so the list stays short
+        return _command(argv)
+
+
+def _command(argv: list[str] | None) -> int:
+    """Run one command; bad input is one ``error:`` line and exit 2 (see ``main``)."""
     try:
         args = _parser().parse_args(argv)
         if args.command == "analyze":
