@@ -181,3 +181,17 @@ def test_intercept_only_and_one_block():
     assert abs(fit.coef[0] - y.mean()) < 1e-14
     assert fit.condition_number == 1.0
     assert abs(fit.xtx_inv[0, 0] - 1 / 50) < 1e-17
+
+
+def test_blas_threads_are_restored_after_a_fit(big):
+    """The passes run BLAS on one thread each (engine.single_threaded_blas) and give the caller's
+    setting back afterwards, also when a fit raises."""
+    controls = engine._openblas_thread_controls()
+    before = [get() for get, _ in controls]
+    X, y = big
+    fit_ols(X, y)
+    with pytest.raises(DataError):
+        fit_ols(np.asfortranarray(np.column_stack([X, X[:, 1]])), y)
+    assert [get() for get, _ in controls] == before
+    with engine.single_threaded_blas:
+        assert all(get() == 1 for get, _ in controls)

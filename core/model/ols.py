@@ -114,6 +114,13 @@ def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, nam
     """Least squares of y on X (first column the intercept), optionally weighted (see the module
     docstring for the method). X is read in row blocks and never copied whole; Fortran order
     suits it best. Raises ``DataError`` naming the columns when the design is rank deficient."""
+    # Every BLAS/LAPACK call here is on k x k matrices or inside the passes' own threads: BLAS's
+    # threads would only contend with them (engine.single_threaded_blas).
+    with engine.single_threaded_blas:
+        return _fit(X, y, weights, names)
+
+
+def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[str] | None) -> OLSFit:
     n, k = X.shape
     shift = engine.shift_for(X, y, weights)
     gram = engine.gram_pass(shift)
