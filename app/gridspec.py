@@ -13,7 +13,7 @@ from typing import Any
 import pandas as pd
 
 from core.inference.choices import numeric_or_none
-from core.model.transforms import menu_codes, menu_word
+from core.model.transforms import lookup, menu_codes, menu_word
 from core.output.numbers import compact
 
 GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
@@ -145,7 +145,7 @@ def grid_to_spec(
         raise GridError(f"more than one outcome ({names}): keep exactly one row with the role 'outcome'.")
     outcome = outcomes[0]
     outcome_transform = _text(outcome.get("transform")) or "level"
-    if outcome_transform in ("quadratic", "category"):
+    if outcome_transform not in menu_codes("outcome") and lookup(outcome_transform, "outcome") is None:
         raise GridError(
             f"the outcome '{_text(outcome['column'])}' cannot be '{outcome_transform}'; "
             f"use one of: {', '.join(menu_codes('outcome'))}."

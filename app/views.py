@@ -21,7 +21,7 @@ from core.inference.choices import (
     retransforms_differ,
     switch_transform,
 )
-from core.model.transforms import phrase, variable_label
+from core.model.transforms import IDENTITY, lookup, phrase, variable_label
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
@@ -100,7 +100,7 @@ def effects_view(ctx: Context) -> None:
 
 def units_view(ctx: Context) -> None:
     """Beside IHS and shifted-log effects: does the effect depend on the variable's units?"""
-    unit_bound = [c for c, t in ctx.transforms.items() if t == "ihs" or t.startswith("shifted_log")]
+    unit_bound = [c for c, t in ctx.transforms.items() if not (lookup(t) or IDENTITY).unit_invariant]
     if not unit_bound:
         return
     if ctx.result.get("n_obs", 0) > UNITS_CHECK_AUTO_ROWS:

@@ -124,8 +124,8 @@ def variable_distributions(frame: pd.DataFrame, spec: dict[str, Any]) -> list[di
             "skew_transformed": None,
             "n_left_out": 0,
         }
-        if code not in ("level", "quadratic"):
-            transform = parse_transform(code, role, column)
+        transform = parse_transform(code, role, column)
+        if transform.code != "level" and transform.width == 1:  # a quadratic's values are x itself
             bad, _ = transform.invalid(raw)
             with np.errstate(all="ignore"):
                 moved = transform.forward(raw[~bad])

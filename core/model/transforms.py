@@ -413,6 +413,9 @@ def _make_boxcox(parameter: str | None, text: str, where: str) -> Transform:
     return BoxCox(power=value)
 
 
+# The identity ('level'), for code that needs a transform where none is named.
+IDENTITY = Transform()
+
 # In menu order.
 register(Transform)
 register(Log)
