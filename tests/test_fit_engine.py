@@ -195,3 +195,10 @@ def test_blas_threads_are_restored_after_a_fit(big):
     assert [get() for get, _ in controls] == before
     with engine.single_threaded_blas:
         assert all(get() == 1 for get, _ in controls)
+
+
+def test_values_too_large_to_square_are_refused():
+    rng = np.random.default_rng(9)
+    X = np.asfortranarray(np.column_stack([np.ones(100), rng.normal(size=100) * 1e160]))
+    with pytest.raises(DataError, match="overflowed"):
+        fit_ols(X, rng.normal(size=100))

@@ -27,9 +27,9 @@ taking it from the first block lets the first pass start without a pass of its o
   significand on x86) from the raw X and β (Björck 1967, "Iterative refinement of linear least
   squares solutions I", BIT 7; Golub & Van Loan §5.3.8).
 
-Blocks are split between ``THREADS`` threads, each taking a contiguous run of blocks: numpy's
-ufuncs and BLAS/LAPACK calls release the GIL, so the two threads run at once. Per-thread partial
-sums are added in a fixed order, so a result does not depend on scheduling.
+Blocks are shared out to ``THREADS`` threads, each taking the next block as it comes free: numpy's
+ufuncs and BLAS/LAPACK calls release the GIL, so the two threads run at once. Per-block results
+are added in block order, so a result does not depend on scheduling.
 """
 
 from __future__ import annotations
@@ -45,8 +45,8 @@ from typing import TypeVar
 import numpy as np
 
 # Rows per block. 16,384 rows x 14 columns is 1.8 MB: a block's buffer is written and read back
-# while it is still in cache (measured on the refit benchmark's design: blocks of 65,536 rows
-# were slower; see bench/refit.py).
+# while it is still in cache. (On the loaded two-core machine, blocks of 8,192 to 65,536 rows
+# timed within noise of each other; much smaller blocks pay Python overhead per block.)
 BLOCK_ROWS = 16_384
 # Threads for the passes (both cores of a small machine; more rarely pays off for a pass that
 # is bound by memory bandwidth).
@@ -139,15 +139,35 @@ class _SingleThreadedBLAS:
 single_threaded_blas = _SingleThreadedBLAS()
 
 
-def _run(n: int, work: Callable[[list[tuple[int, int]]], T]) -> list[T]:
-    """``work`` on contiguous runs of the row blocks, one run per thread; results in row order."""
+def _run(n: int, make_buffer: Callable[[], np.ndarray], one: Callable[[np.ndarray, int, int], T]) -> list[T]:
+    """``one(buffer, start, stop)`` on every row block, results in block order.
+
+    The threads take the next block from a shared counter as they come free, so a thread slowed
+    by other work on the machine does not hold the pass back; the callers add the per-block
+    results in block order, so the sums do not depend on which thread took which block."""
     blocks = _blocks(n)
     with single_threaded_blas:
         if THREADS == 1 or n < THREADED_MIN_ROWS:
-            return [work(blocks)]
-        share = -(-len(blocks) // THREADS)
-        runs = [blocks[i : i + share] for i in range(0, len(blocks), share)]
-        return list(_executor().map(work, runs))
+            buffer = make_buffer()
+            with np.errstate(over="ignore", invalid="ignore"):  # the caller checks for non-finite sums
+                return [one(buffer, start, stop) for start, stop in blocks]
+        results: list[T | None] = [None] * len(blocks)
+        counter = iter(range(len(blocks)))
+        lock = threading.Lock()
+
+        def worker() -> None:
+            buffer = make_buffer()
+            with np.errstate(over="ignore", invalid="ignore"):  # numpy's error state is per thread
+                while True:
+                    with lock:
+                        i = next(counter, None)
+                    if i is None:
+                        return
+                    results[i] = one(buffer, *blocks[i])
+
+        for future in [_executor().submit(worker) for _ in range(THREADS)]:
+            future.result()
+        return results  # type: ignore[return-value]
 
 
 @dataclass(frozen=True)
@@ -159,6 +179,7 @@ class Shift:
     root_w: np.ndarray | None
     c: np.ndarray  # shift per column of X, c[0] = 0 (the intercept is not shifted)
     c_y: float
+    w: np.ndarray | None = None  # the weights themselves (root_w² would round)
 
     @property
     def n(self) -> int:
@@ -198,31 +219,29 @@ def shift_for(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None) -> Shift
         c_y = float(y[head] @ w / w.sum())
     c = np.array(c, dtype=float)
     c[0] = 0.0
-    return Shift(X, y, None if weights is None else np.sqrt(weights), c, c_y)
+    return Shift(X, y, None if weights is None else np.sqrt(weights), c, c_y, weights)
 
 
 def gram_pass(shift: Shift) -> np.ndarray:
     """A = B'B, the (k+1) x (k+1) Gram matrix of the shifted, weighted design and outcome."""
 
-    def work(run: list[tuple[int, int]]) -> np.ndarray:
-        buffer = shift.buffer()
-        total = np.zeros((shift.k + 1, shift.k + 1))
-        for start, stop in run:
-            block = shift.fill(buffer, start, stop)
-            total += block.T @ block  # numpy hands B'B to BLAS syrk (one triangle, mirrored)
-        return total
+    def one(buffer: np.ndarray, start: int, stop: int) -> np.ndarray:
+        block = shift.fill(buffer, start, stop)
+        return block.T @ block  # numpy hands B'B to BLAS syrk (one triangle, mirrored)
 
-    return sum(_run(shift.n, work), start=np.zeros((shift.k + 1, shift.k + 1)))
+    total = np.zeros((shift.k + 1, shift.k + 1))
+    for part in _run(shift.n, shift.buffer, one):
+        total += part
+    return total
 
 
 def tsqr_pass(shift: Shift) -> np.ndarray:
     """R ((k+1) x (k+1), upper triangular) with B = QR, by the flat-tree TSQR."""
 
-    def work(run: list[tuple[int, int]]) -> list[np.ndarray]:
-        buffer = shift.buffer()
-        return [np.linalg.qr(shift.fill(buffer, start, stop), mode="r") for start, stop in run]
+    def one(buffer: np.ndarray, start: int, stop: int) -> np.ndarray:
+        return np.linalg.qr(shift.fill(buffer, start, stop), mode="r")
 
-    factors = [r for part in _run(shift.n, work) for r in part]
+    factors = _run(shift.n, shift.buffer, one)
     if len(factors) == 1:
         return _square(factors[0], shift.k + 1)
     return _square(np.linalg.qr(np.vstack(factors), mode="r"), shift.k + 1)
@@ -247,46 +266,48 @@ def residual_pass(
     from β in extended precision when ``extended``.
     """
     X, y, k = shift.X, shift.y, shift.k
-    weights = None if shift.root_w is None else shift.root_w * shift.root_w
+    weights = shift.w
     beta_ext = beta.astype(np.longdouble)
     slope = np.ascontiguousarray(gamma[1:])
     offset = shift.c_y + float(gamma[0])
 
-    def work(run: list[tuple[int, int]]) -> tuple[np.ndarray, float]:
-        z = np.empty((min(BLOCK_ROWS, shift.n), k - 1), order="F")
-        grad = np.zeros(k)
-        grad_ext = np.zeros(k, dtype=np.longdouble)
-        ssr = 0.0
-        for start, stop in run:
-            zc = z[: stop - start]
-            np.subtract(X[start:stop, 1:], shift.c[1:], out=zc)
-            e = resid[start:stop]
-            if extended:
-                # y - Xβ and X'We with a 64-bit significand: both are small differences of large
-                # terms near the solution, and working precision would bound the refinement at
-                # the κ²u·|e| level of a QR solution.
-                rows = X[start:stop].astype(np.longdouble)
-                e_ext = y[start:stop] - rows @ beta_ext
-                we_ext = e_ext if weights is None else weights[start:stop] * e_ext
-                grad_ext += rows.T @ we_ext
-                e[:] = e_ext
-                ssr += float(e_ext @ we_ext)
-                continue
-            np.subtract(y[start:stop], offset, out=e)
-            e -= zc @ slope
-            we = e if weights is None else weights[start:stop] * e
-            grad[0] += we.sum()
-            grad[1:] += zc.T @ we
-            ssr += float(e @ we)
-        if extended:
-            # X'We to Z'We = T⁻ᵀX'We: (Z'We)₂ = (X'We)₂ - c·(X'We)₀, still in extended precision.
-            grad[0] = grad_ext[0]
-            grad[1:] = grad_ext[1:] - shift.c[1:].astype(np.longdouble) * grad_ext[0]
-        return grad, ssr
+    def buffer() -> np.ndarray:
+        return np.empty((min(BLOCK_ROWS, shift.n), k - 1), order="F")
 
-    parts = _run(shift.n, work)
-    grad = np.zeros(k)
+    def one(z: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, float]:
+        zc = z[: stop - start]
+        e = resid[start:stop]
+        if extended:
+            # y - Xβ and X'We with a 64-bit significand: both are small differences of large
+            # terms near the solution, and working precision would bound the refinement at
+            # the κ²u·|e| level of a QR solution.
+            rows = X[start:stop].astype(np.longdouble)
+            e_ext = y[start:stop] - rows @ beta_ext
+            we_ext = e_ext if weights is None else weights[start:stop] * e_ext
+            e[:] = e_ext
+            return rows.T @ we_ext, float(e_ext @ we_ext)
+        np.subtract(X[start:stop, 1:], shift.c[1:], out=zc)
+        np.subtract(y[start:stop], offset, out=e)
+        e -= zc @ slope
+        we = e if weights is None else weights[start:stop] * e
+        grad = np.empty(k)
+        grad[0] = we.sum()
+        grad[1:] = zc.T @ we
+        return grad, float(e @ we)
+
+    parts = _run(shift.n, buffer, one)
     ssr = 0.0
+    if extended:
+        total = np.zeros(k, dtype=np.longdouble)
+        for g, s in parts:
+            total += g
+            ssr += s
+        # X'We to Z'We = T⁻ᵀX'We: (Z'We)₂ = (X'We)₂ - c·(X'We)₀, still in extended precision.
+        grad = np.empty(k)
+        grad[0] = total[0]
+        grad[1:] = total[1:] - shift.c[1:].astype(np.longdouble) * total[0]
+        return grad, ssr
+    grad = np.zeros(k)
     for g, s in parts:
         grad += g
         ssr += s
