@@ -327,6 +327,39 @@ def run_logs(work: Workload, repeats: int) -> dict[str, Timing]:
     return t
 
 
+def engine_threads(work: Workload, repeats: int) -> None:
+    """fit_ols on the workload's design with the passes on one thread and on two, interleaved:
+    whether the second core pays, measured rather than assumed."""
+    from core.model import engine
+    from core.model.design import build_design
+    from core.model.ols import fit_ols
+    from core.model.spec import parse_spec
+
+    design = build_design(work.data, parse_spec(work.spec, work.data))
+    saved = engine.THREADS
+
+    def with_threads(count: int):
+        def run():
+            engine.THREADS = count
+            try:
+                return fit_ols(design.X, design.y, design.weights)
+            finally:
+                engine.THREADS = saved
+
+        return run
+
+    jobs = {f"t{count}": (f"fit_ols, passes on {count} thread(s)", with_threads(count)) for count in (1, 2)}
+    t = round_robin(jobs, max(repeats, 7))
+    fit = t["t1"].result
+    print(
+        f"\nfit engine alone ({work.key}; X {design.X.shape[0]:,} x {design.X.shape[1]}; solver {fit.solver}, {fit.refinements} refinement step(s)):"
+    )
+    print_times(t)
+    print(
+        f"  one thread / two threads: wall {t['t1'].median / t['t2'].median:.2f}x, min {min(t['t1'].wall) / min(t['t2'].wall):.2f}x"
+    )
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     parser.add_argument("--rows", type=int, default=1_000_000)
@@ -386,6 +419,7 @@ def main() -> None:
         print(f"  floor HC1 std errors  {floor_se:.2e}")
         print(f"  core n_obs {result['n_obs']:,}, n_dropped {result['n_dropped']}, warnings: {result['warnings'] or 'none'}")
         summary.append((work.key, t["a"].median / t["c"].median, t["b"].median / t["a"].median, max(est, se)))
+        engine_threads(work, args.repeats)
     print(f"\nat end of timing: {load_line()}")
 
     print("\nsummary (wall medians)")
