@@ -7,6 +7,7 @@ import streamlit as st
 
 from app import charts, exports, tables
 from app.context import CHECK_PARTS, HALF_COLUMN, Context, chart
+from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
@@ -72,7 +73,7 @@ def checks_view(ctx: Context) -> None:
     distributions_section(ctx)
 
     st.markdown("##### Regressors that move together")
-    vif = tables.vif_table(result, spec)
+    vif = display.vif_table(result, spec)
     if vif.empty:
         st.caption("With a single regressor there is nothing to be entangled with.")
     else:
@@ -89,7 +90,7 @@ def checks_view(ctx: Context) -> None:
     st.markdown("##### Rows with the most pull on the fit")
     influence = (result.get("diagnostics") or {}).get("influence") or {}
     columns = [ctx.outcome] + [r["column"] for r in spec.get("regressors") or []]
-    table = tables.influence_table(result, ctx.frame, columns)
+    table = display.influence_table(result, ctx.frame, columns)
     if table.empty:
         st.caption("No row has a Cook's distance above 4/n.")
     else:

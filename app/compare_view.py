@@ -17,6 +17,7 @@ from core.inference.choices import (
 )
 from core.inference.compare import COMPARE_PARTS, best_by_aic, compare_row, unique_name
 from core.model.transforms import variable_label
+from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import compact, sig
@@ -88,7 +89,7 @@ def compare_view(ctx: Context) -> None:
         return
     best = best_by_aic(rows)
     st.markdown("##### Fit, on measures that compare across outcome transforms")
-    table = tables.compare_table(rows, best)
+    table = display.compare_table(rows, best)
     best_rows = [i for i, r in enumerate(rows) if r["name"] in best]
     st.table(tables.styled(table, best_rows), hide_index=True)
     notes = [
@@ -106,7 +107,7 @@ def compare_view(ctx: Context) -> None:
         st.caption(note)
     st.markdown("##### The same changes under each model (exact effects)")
     names = [r["name"] for r in rows]
-    st.table(tables.styled(tables.compare_effects_table(rows), numbers_in=names), hide_index=True)
+    st.table(tables.styled(display.compare_effects_table(rows), numbers_in=names), hide_index=True)
     st.caption("⚠ marks changes that reach beyond the observed data.")
     exports.table_downloads(core_tables.comparison_table(fitted), "comparison", "comparison")
 
@@ -175,7 +176,7 @@ def predict_view(ctx: Context) -> None:
     headline = sig(prediction.get("smearing"), 4)
     st.markdown(f"#### Expected {plain(ctx.outcome)}: {plain(headline)}" + (" ⚠" if outside else ""))
     st.table(
-        tables.styled(tables.prediction_table(prediction, ctx.outcome, ctx.ppml), numbers_in=[f"Predicted {ctx.outcome}"]),
+        tables.styled(display.prediction_table(prediction, ctx.outcome, ctx.ppml), numbers_in=[f"Predicted {ctx.outcome}"]),
         hide_index=True,
     )
     if outside:

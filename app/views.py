@@ -22,6 +22,7 @@ from core.inference.choices import (
     switch_transform,
 )
 from core.model.transforms import IDENTITY, lookup, phrase, variable_label
+from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
@@ -71,13 +72,13 @@ def show(ctx: Context) -> None:
 
 # --- coefficients and effects ------------------------------------------------------------------------
 def coefficients_view(ctx: Context) -> None:
-    st.table(tables.styled(tables.coefficient_table(ctx.result, ctx.spec)), hide_index=True)
+    st.table(tables.styled(display.coefficient_table(ctx.result, ctx.spec)), hide_index=True)
     exports.table_downloads(core_tables.coefficient_table(ctx.result), "estimates", "estimates")
 
 
 def effects_view(ctx: Context) -> None:
     result, spec = ctx.result, ctx.spec
-    table = tables.effects_table(result, spec)
+    table = display.effects_table(result, spec)
     if table.empty:
         st.info("Add a regressor to see the effect of changing it.")
         return
@@ -88,7 +89,7 @@ def effects_view(ctx: Context) -> None:
         "applies the change to every row and averages, where that differs from the effect at the reference."
         + (" The model is fitted by PPML, so effects read as % changes in the mean of the outcome." if ctx.ppml else "")
     )
-    st.table(tables.styled(table, tables.extrapolated_rows(result)), hide_index=True)
+    st.table(tables.styled(table, display.extrapolated_rows(result)), hide_index=True)
     exports.table_downloads(core_tables.effects_table(result), "effects", "effects")
     point = result.get("reference_point") or {}
     if point:
@@ -127,7 +128,7 @@ def units_view(ctx: Context) -> None:
             st.warning(plain(warning))
         words = [factor_words(r["factor"]) for r in check["rows"]]
         st.table(
-            tables.styled(tables.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
+            tables.styled(display.units_table(check, words), numbers_in=[f"Exact effect of {check['change']}"]),
             hide_index=True,
         )
         ticks = ["×1" if w[0] == "as recorded" else w[0] for w in words]

@@ -16,12 +16,13 @@ import pytest
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, tables
+from app import charts
 from app.gridspec import GridError, describe_column, grid_to_spec, resolve_outcome, spec_to_grid
 from core.inference.choices import suggest_cluster
 from core.intake.profile import profile_table
 from core.model.transforms import variable_label
-from core.output.numbers import interval, p_value, sig
+from core.output import display
+from core.output.numbers import DASH, interval, p_value, sig
 from core.output.text import fit_sentence, model_sentence, rows_sentence
 from tests.app_support import edit_grid, show, start
 from tests.helpers import shown, shown_table
@@ -131,7 +132,7 @@ def test_extrapolated_effects_are_marked() -> None:
     show(at, "Effects of changes")
     effects = table_with(at, "Note")
     row = effects.loc[effects["Variable"] == "log of drink_price"]
-    assert row["Note"].item() == tables.EXTRAPOLATED
+    assert row["Note"].item() == display.EXTRAPOLATED
 
 
 def test_standard_error_choice_reaches_the_model() -> None:
@@ -324,7 +325,7 @@ def test_numbers_read_well() -> None:
     assert sig(10360.97) == "10,361"
     assert sig(0.0000123) == "1.230e-05"
     assert sig(2.5, signed=True) == "+2.500"
-    assert sig(None) == tables.DASH
+    assert sig(None) == DASH
     assert p_value(8e-48) == "< 0.001" and p_value(0.0214) == "0.021"
     assert interval(-0.853, -0.656) == "\u22120.853 to \u22120.656"
 

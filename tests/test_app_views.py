@@ -18,13 +18,14 @@ import streamlit as st
 from streamlit.testing.v1 import AppTest
 
 import core
-from app import charts, context, tables, views
+from app import charts, context, views
 from app.gridspec import grid_to_spec, spec_to_grid
 from core.inference.choices import zero_note
 from core.inference.compare import best_by_aic
 from core.inference.residuals import MAX_POINTS, residual_sample, variable_distributions
 from core.model.fitted import fit_model
 from core.model.spec import parse_spec
+from core.output import display
 from core.output.numbers import p_text, sig
 from core.output.text import boxcox_sentence, check_sentences, factor_words, skew_words, units_warning
 from tests.app_support import edit_grid, start
@@ -324,7 +325,7 @@ def test_compare_ranks_the_log_model_above_the_level_model_by_aic() -> None:
     frame = at.session_state["data"]["frame"]
     log_fit = core.analyze(frame, DEMO_SPEC, parts={"fit"})["fit"]
     assert table.at["log outcome", "AIC (original scale)"] == sig(log_fit["aic_original_scale"], 6)
-    assert table.at["log outcome", tables.RAW_R2] == sig(log_fit["r2"], 3)
+    assert table.at["log outcome", display.RAW_R2] == sig(log_fit["r2"], 3)
     assert "not comparable across different outcome transforms" in texts(at)
     effects = table_with(at, "level outcome")
     assert effects.iloc[0].tolist() == [
@@ -359,9 +360,9 @@ def test_ppml_is_not_ranked_against_least_squares() -> None:
         }
         for r in rows
     ]
-    table = tables.compare_table(full, {"b"}).set_index("Model")
-    assert table.at["p", "AIC (original scale)"] == tables.NOT_COMPARABLE
-    assert table.at["p", "Log-likelihood (original scale)"] == tables.NOT_COMPARABLE
+    table = display.compare_table(full, {"b"}).set_index("Model")
+    assert table.at["p", "AIC (original scale)"] == display.NOT_COMPARABLE
+    assert table.at["p", "Log-likelihood (original scale)"] == display.NOT_COMPARABLE
     assert table.at["c", "AIC rank"] == "not ranked (other rows)"
     assert table.at["a", "AIC rank"] == "+2.000 worse"
 
