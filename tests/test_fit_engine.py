@@ -202,3 +202,20 @@ def test_values_too_large_to_square_are_refused():
     X = np.asfortranarray(np.column_stack([np.ones(100), rng.normal(size=100) * 1e160]))
     with pytest.raises(DataError, match="overflowed"):
         fit_ols(X, rng.normal(size=100))
+
+
+def test_a_forked_child_fits_with_threads(big):
+    """A child forked after the pool exists gets a pool of its own (the parent's threads are not
+    copied by fork)."""
+    import multiprocessing
+
+    X, y = big
+    expected = fit_ols(X, y).coef  # makes the pool in this process
+    context = multiprocessing.get_context("fork")
+    with context.Pool(1) as pool:
+        coef = pool.apply_async(_child_fit, (X, y)).get(timeout=60)
+    assert np.array_equal(coef, expected)
+
+
+def _child_fit(X: np.ndarray, y: np.ndarray) -> np.ndarray:
+    return fit_ols(X, y).coef

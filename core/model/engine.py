@@ -59,11 +59,17 @@ _pool: ThreadPoolExecutor | None = None
 _pool_lock = threading.Lock()
 
 
+_pool_pid = 0
+
+
 def _executor() -> ThreadPoolExecutor:
-    global _pool
+    """The passes' thread pool, made on first use; made afresh in a forked child, where the
+    parent's pool object survives but its threads do not."""
+    global _pool, _pool_pid
     with _pool_lock:
-        if _pool is None:
+        if _pool is None or _pool_pid != os.getpid() or _pool._max_workers < THREADS:
             _pool = ThreadPoolExecutor(max_workers=THREADS, thread_name_prefix="formwise-pass")
+            _pool_pid = os.getpid()
         return _pool
 
 
