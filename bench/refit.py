@@ -21,9 +21,10 @@ same DataFrame, interleaved round-robin after one untimed warm-up call of each, 
        report, the shift and the refinement, the collinearity screen, fit measures, p-values and
        intervals, effects, JSON conversion.
 
-and, on the bench workload only, where the time goes:
-
   (a1) core.analyze(..., parts={"terms"})                           design, fit, HC1, coefficient table
+
+and, on the bench workload only, where the rest of the time goes:
+
   (a2) core.analyze(..., parts={"fit"})                            the same plus original-scale fit
                                                                    measures, without the table
   (a3) core.analyze(..., parts={"terms", "fit"})                   the refit without effects
@@ -311,6 +312,7 @@ def run_logs(work: Workload, repeats: int) -> dict[str, Timing]:
     data, spec = work.data, work.spec
     jobs = {
         "a": ("(a)  core.analyze parts={terms,fit,effects}", lambda: core.analyze(data, spec, parts=REFIT_PARTS)),
+        "a1": ("(a1) core.analyze parts={terms}", lambda: core.analyze(data, spec, parts={"terms"})),
         "b": ("(b)  statsmodels ols(...).fit(HC1)", lambda: statsmodels_fit(data, work.formula)),
         "c": ("(c)  numpy floor (transforms+X+solve+HC1)", lambda: numpy_floor(work)),
     }
@@ -321,6 +323,8 @@ def run_logs(work: Workload, repeats: int) -> dict[str, Timing]:
         [
             ("(b)/(a)   statsmodels / core refit", "b", "a", 10.0, True),
             ("(a)/(c)   core refit / numpy floor", "a", "c", 1.0, False),
+            ("(b)/(a1)  statsmodels / core terms only", "b", "a1", 10.0, True),
+            ("(a1)/(c)  core terms only / numpy floor", "a1", "c", 1.0, False),
             ("(b)/(c)   statsmodels / numpy floor", "b", "c", None, True),
         ],
     )
