@@ -66,6 +66,7 @@ MAX_LAG = 2  # lags sought up to this order (longer ones are lags of lags in pra
 SCREEN_ROWS = 5_000  # relations are sought on this many first rows, then confirmed on all
 MIN_PRESENT = 0.5  # a regressor present in fewer of the outcome's rows than this share stays out
 MIN_DF = 2  # residual degrees of freedom a starting model keeps at least
+EXACT_FIT = 1e-9  # 1 - R² below this: the outcome is an exact function of the regressors
 # Smallest singular value of the centred, unit-length design relative to the largest at or below
 # which a column is an exact linear combination of others to the rounding of stored data (float32
 # files carry about 1e-7; the fit itself refuses only at about 2e-13, core.model.ols).
@@ -257,7 +258,7 @@ class Relation:
 
     derived: str
     source: str
-    how: str  # copy, rescaling, log, log10, log_affine, square, square_affine, sqrt, lag, difference, ...
+    how: str  # copy, rescaling, log, log10, log1p, log_affine, square, square_affine, sqrt, lag, difference, ...
     detail: str = ""
 
     def words(self) -> str:
@@ -267,11 +268,13 @@ class Relation:
             "rescaling": f"a linear rescaling of {s} ({self.detail})",
             "log": f"the log of {s}",
             "log10": f"the base-10 log of {s}",
+            "log1p": f"the log of 1 + {s}",
             "log_affine": f"a linear function of the log of {s} ({self.detail})",
             "square": f"the square of {s}",
             "square_affine": f"a linear function of the square of {s} ({self.detail})",
             "sqrt": f"the square root of {s}",
             "lag": f"the lag of {s}" if self.detail == "1" else f"the lag {self.detail} of {s}",
+            "lag_affine": f"a linear function of the lag of {s} ({self.detail})",
             "difference": f"the difference of {s} from the row before",
             "log_difference": f"the difference of the log of {s} from the row before",
             "relative_change": f"the relative change of {s} from the row before",
@@ -319,6 +322,9 @@ def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None
         from core.intake.profile import profile_table  # imported here: profile.py imports this module
 
         profile = profile_table(data, [], boxcox=False)  # the advice does not read the column Box-Cox
+    # Without attrs: pandas deep-copies them (the reader's notes) into every column taken.
+    data = data.copy(deep=False)
+    data.attrs = {}
     table = _read(data, profile)
     usable = _usable(table)
     candidates = [c for c in table.names if c in table.values and (table.entries[c].get("n_distinct") or 0) >= 3]
@@ -423,7 +429,7 @@ def find_relations(values: dict[str, np.ndarray], names: list[str], n: int) -> l
 
     A relation holds when, on the rows where both columns have values (at least 8, and nearly
     every row of the derived column), the derived column is a linear function of the
-    transformed source with 1 - R² below ``EXACT`` (lags: equal values within 1e-6 relative).
+    transformed (or shifted) source with 1 - R² below ``EXACT``.
     Long tables are searched on their first ``SCREEN_ROWS`` rows (contiguous, so lags stay
     lags) and each relation found there is confirmed on every row.
     """
@@ -447,11 +453,17 @@ def _relations_among(X: np.ndarray, names: list[str]) -> list[Relation]:
     present = np.isfinite(X).sum(axis=0)
     found: list[Relation] = []
     with np.errstate(all="ignore"):
+        every = _Against(X)
         for j, source in enumerate(names):
             x = X[:, j]
-            forms = [("identity", x), ("log", np.where(x > 0, np.log(x), np.nan)), ("square", x * x)]
+            forms = [
+                ("identity", x),
+                ("log", np.where(x > 0, np.log(x), np.nan)),
+                ("log1p", np.where(x >= 0, np.log1p(x), np.nan)),  # log(1 + x), a log that keeps zeros
+                ("square", x * x),
+            ]
             for form, v in forms:
-                r2, alpha, beta, count = _fit_against(v, X)
+                r2, alpha, beta, count = every.fit(np.where(np.isfinite(v), v, np.nan))
                 for i in np.flatnonzero((1.0 - r2 <= EXACT) & (count >= np.maximum(8, 0.9 * present))):
                     if i == j or (form == "identity" and i < j):
                         continue  # a copy or rescaling is named once, the later column derived
@@ -459,19 +471,18 @@ def _relations_among(X: np.ndarray, names: list[str]) -> list[Relation]:
         varied = [j for j, c in enumerate(names) if len(np.unique(X[np.isfinite(X[:, j]), j])) >= LAG_MIN_DISTINCT]
         if varied:
             Xv = X[:, varied]
+            against = _Against(Xv)
             wanted = np.maximum(8, 0.8 * present[varied])
             for j in varied:
                 x = X[:, j]
                 for k in range(1, min(MAX_LAG, n - 1) + 1):
                     shifted = np.full(n, np.nan)
                     shifted[k:] = x[:-k]
-                    ok = np.isfinite(Xv) & np.isfinite(shifted)[:, None]
-                    close = np.abs(Xv - shifted[:, None]) <= 1e-6 * (np.abs(Xv) + np.abs(shifted[:, None])) + 1e-300
-                    comparable = ok.sum(axis=0)
-                    matches = (close & ok).sum(axis=0)
-                    for i in np.flatnonzero((comparable >= wanted) & (matches >= 0.99 * comparable)):
+                    r2, alpha, beta, count = against.fit(shifted)
+                    for i in np.flatnonzero((1.0 - r2 <= EXACT) & (count >= wanted)):
                         if varied[i] != j:
-                            found.append(Relation(names[varied[i]], names[j], "lag", str(k)))
+                            lag = _name_relation(names[varied[i]], names[j], "lag", alpha[i], beta[i], Xv[:, i], shifted)
+                            found.append(Relation(lag.derived, lag.source, lag.how, str(k) if lag.how == "lag" else lag.detail))
                 before = np.concatenate([[np.nan], x[:-1]])
                 logs = np.where(x > 0, np.log(x), np.nan)
                 log_before = np.concatenate([[np.nan], logs[:-1]])
@@ -481,37 +492,60 @@ def _relations_among(X: np.ndarray, names: list[str]) -> list[Relation]:
                     ("relative_change", x / before - 1.0),
                 ):
                     d = np.where(np.isfinite(d), d, np.nan)
-                    r2, _, _, count = _fit_against(d, Xv)
+                    r2, _, _, count = against.fit(d)
                     for i in np.flatnonzero((1.0 - r2 <= EXACT) & (count >= wanted)):
                         if varied[i] != j:
                             found.append(Relation(names[varied[i]], names[j], how))
-    rank = {"copy": 0, "rescaling": 0, "log": 1, "log10": 1, "log_affine": 1, "square": 2, "square_affine": 2, "lag": 3}
+    rank = {
+        "copy": 0,
+        "rescaling": 0,
+        "log": 1,
+        "log10": 1,
+        "log1p": 1,
+        "log_affine": 1,
+        "square": 2,
+        "square_affine": 2,
+        "lag": 3,
+    }
     order = {c: i for i, c in enumerate(names)}
     return sorted(
         found, key=lambda r: (rank.get(r.how, 4), order[r.derived], r.detail if r.how == "lag" else "", order[r.source])
     )
 
 
-def _fit_against(v: np.ndarray, X: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """R², intercept and slope of each column of X on v over the rows where both have values,
-    and the number of those rows (centred sums, so large means lose no precision)."""
-    ok = np.isfinite(X) & np.isfinite(v)[:, None]
-    count = ok.sum(axis=0)
-    safe = np.maximum(count, 1)
-    vv = np.where(ok, v[:, None], 0.0)
-    xx = np.where(ok, X, 0.0)
-    mean_v = vv.sum(axis=0) / safe
-    mean_x = xx.sum(axis=0) / safe
-    dv = np.where(ok, vv - mean_v, 0.0)
-    dx = np.where(ok, xx - mean_x, 0.0)
-    svv = (dv * dv).sum(axis=0)
-    sxx = (dx * dx).sum(axis=0)
-    sxv = (dx * dv).sum(axis=0)
-    varies = (svv > 0) & (sxx > 0) & (count >= 3)
-    r2 = np.where(varies, sxv * sxv / np.where(varies, svv * sxx, 1.0), 0.0)
-    r2 = np.where(np.isfinite(r2), r2, 0.0)
-    beta = np.where(varies, sxv / np.where(svv > 0, svv, 1.0), 0.0)
-    return r2, mean_x - beta * mean_v, beta, count
+class _Against:
+    """Columns X prepared once for many ``fit`` calls: each is centred at its overall mean (so the
+    one-pass sums below lose no precision to a large mean) with missing cells as 0, its squares,
+    and where it has values."""
+
+    def __init__(self, X: np.ndarray) -> None:
+        self.present = np.isfinite(X).astype(float)
+        self.centre = np.nanmean(np.where(np.isfinite(X), X, np.nan), axis=0) if len(X) else np.zeros(X.shape[1])
+        self.centre = np.where(np.isfinite(self.centre), self.centre, 0.0)
+        self.X = np.where(np.isfinite(X), X - self.centre, 0.0)
+        self.X2 = self.X * self.X
+
+    def fit(self, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """R², intercept and slope of each column on v over the rows where both have values, and
+        the number of those rows; sums as vector-matrix products, no n x m temporaries."""
+        has = np.isfinite(v)
+        shift = float(v[has].mean()) if has.any() else 0.0
+        w = np.where(has, v - shift, 0.0)
+        ones = has.astype(float)
+        count = ones @ self.present
+        safe = np.maximum(count, 1.0)
+        sx, sxx = ones @ self.X, ones @ self.X2
+        sv, svv, sxv = w @ self.present, (w * w) @ self.present, w @ self.X
+        var_x = sxx - sx * sx / safe
+        var_v = svv - sv * sv / safe
+        cov = sxv - sx * sv / safe
+        # A column constant on the shared rows leaves only rounding noise in its variance.
+        varies = (var_x > 1e-12 * sxx) & (var_v > 1e-12 * svv) & (count >= 3)
+        r2 = np.where(varies, cov * cov / np.where(varies, var_x * var_v, 1.0), 0.0)
+        r2 = np.where(np.isfinite(r2), r2, 0.0)
+        beta = np.where(varies, cov / np.where(varies, var_v, 1.0), 0.0)
+        alpha = (sx / safe + self.centre) - beta * (sv / safe + shift)
+        return r2, alpha, beta, count
 
 
 def _name_relation(derived: str, source: str, form: str, alpha: float, beta: float, y: np.ndarray, v: np.ndarray) -> Relation:
@@ -519,11 +553,22 @@ def _name_relation(derived: str, source: str, form: str, alpha: float, beta: flo
     with np.errstate(all="ignore"):
         gap = np.abs(y - v)
         plain = bool(np.nanmax(gap) <= 1e-3 * max(1.0, float(np.nanmax(np.abs(y))))) if np.isfinite(gap).any() else False
-    formula = f"'{derived}' = {_coef(alpha)} + {_coef(beta)} × {{}}"
+    sign = "-" if beta < 0 else "+"
+    formula = f"'{derived}' = {_coef(alpha)} {sign} {_coef(abs(beta))} × {{}}"
     if form == "identity":
         return (
             Relation(derived, source, "copy") if plain else Relation(derived, source, "rescaling", formula.format(f"'{source}'"))
         )
+    if form == "lag":
+        return (
+            Relation(derived, source, "lag")
+            if plain
+            else Relation(derived, source, "lag_affine", formula.format(f"lag of '{source}'"))
+        )
+    if form == "log1p":
+        if plain:
+            return Relation(derived, source, "log1p")
+        return Relation(derived, source, "log_affine", formula.format(f"log(1 + '{source}')"))
     if form == "log":
         if plain:
             return Relation(derived, source, "log")
@@ -745,7 +790,7 @@ def _fit_or_trim(table: _Table, spec: dict[str, Any], pool: list[str], quadratic
             continue
         full = dict(spec, regressors=_entries(table, design))
         try:
-            analyze(data, full, parts={"terms", "fit"})
+            fit = analyze(data, full, parts={"terms", "fit"})["fit"]
         except FormwiseError as exc:
             if full["estimator"] == "ppml" and "PPML" in str(exc):
                 fallback = "ihs" if table.entries[outcome].get("suggested_transform") == "ihs" else "level"
@@ -758,6 +803,14 @@ def _fit_or_trim(table: _Table, spec: dict[str, Any], pool: list[str], quadratic
                 continue
             column = _offender(str(exc), active, order, table) or active[-1]
             remove(column, f"'{column}' removed from the starting model: {exc}", "removed")
+            continue
+        if full["estimator"] == "ols" and (fit.get("r2") or 0.0) > 1.0 - EXACT_FIT:
+            column = active[-1]
+            remove(
+                column,
+                f"'{column}' left out: with it the regressors reproduce '{outcome}' exactly (R² = 1 to rounding), so the "
+                "outcome is a function of them rather than something they explain.",
+            )
             continue
         rest = [c for c in pool if c not in removed and c not in active]
         if rest:
