@@ -550,13 +550,38 @@ def _damaged(name: str) -> DataError:
     )
 
 
+def _utf16(first: bytes) -> str | None:
+    """The UTF-16 codec a part is written in, judged by its first bytes (a byte-order mark, or
+    '<' as a 16-bit character), or None for UTF-8."""
+    if first.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+        return "utf-16"
+    if first.startswith(b"<\x00"):
+        return "utf-16-le"
+    if first.startswith(b"\x00<"):
+        return "utf-16-be"
+    return None
+
+
+def _chunks(package: zipfile.ZipFile, info: zipfile.ZipInfo, size: int = _SCAN_BYTES) -> Iterator[bytes]:
+    """A member's unpacked bytes a piece at a time, as UTF-8: XML parts may also be UTF-16
+    (ECMA-376 Part 2), and the counts below look for UTF-8 tags."""
+    with package.open(info) as member:
+        chunk = member.read(size)
+        codec = _utf16(chunk)
+        decoder = codecs.getincrementaldecoder(codec)("replace") if codec else None
+        while chunk:
+            yield decoder.decode(chunk).encode("utf-8", "replace") if decoder else chunk
+            chunk = member.read(size)
+
+
 def _scan(package: zipfile.ZipFile, info: zipfile.ZipInfo, count: Any, stop: int) -> int:
     """``count(chunk)`` summed over the member's unpacked bytes, a piece at a time; stops once past
     ``stop``. A token split across two pieces is missed: an estimate, the parse guards are exact."""
     total = 0
-    with package.open(info) as member:
-        while total <= stop and (chunk := member.read(_SCAN_BYTES)):
-            total += count(chunk)
+    for chunk in _chunks(package, info):
+        total += count(chunk)
+        if total > stop:
+            break
     return total
 
 
@@ -564,13 +589,12 @@ def _tally(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[tuple[in
     """Running counts of a worksheet part's tags, rows and cells, and the highest row number
     written, a piece at a time (estimates, as in ``_scan``)."""
     tags = rows = cells = top = 0
-    with package.open(info) as member:
-        while chunk := member.read(_SCAN_BYTES):
-            tags += chunk.count(b"<")
-            rows += len(_ROW_TAG.findall(chunk))
-            cells += len(_CELL_TAG.findall(chunk))
-            top = max([top, *(int(n) for n in _BIG_ROW_NUMBER.findall(chunk))])
-            yield tags, rows, cells, top
+    for chunk in _chunks(package, info):
+        tags += chunk.count(b"<")
+        rows += len(_ROW_TAG.findall(chunk))
+        cells += len(_CELL_TAG.findall(chunk))
+        top = max([top, *(int(n) for n in _BIG_ROW_NUMBER.findall(chunk))])
+        yield tags, rows, cells, top
 
 
 def _check_counts(where: str, counts: Iterator[tuple[int, int, int, int]], stop_tags: int | None = None) -> int:
@@ -592,8 +616,11 @@ def _check_counts(where: str, counts: Iterator[tuple[int, int, int, int]], stop_
 
 
 def _head(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> bytes:
-    with package.open(info) as member:
-        return member.read(_HEAD_BYTES)
+    chunks = _chunks(package, info, _HEAD_BYTES)
+    try:
+        return next(chunks, b"")
+    finally:
+        chunks.close()
 
 
 def _looks_xml(head: bytes) -> bool:
@@ -797,8 +824,19 @@ def _sheet_grid(worksheet: Any, name: str, chosen: str) -> pd.DataFrame:
             f"spans {len(rows):,} rows by {width:,} columns on sheet '{chosen}', more than the {XLSX_MAX_GRID:,} cells "
             "Formwise reads from a workbook (a stray value far to the right widens every row)",
         )
+    empty = 0
+    if width > MAX_COLUMNS:
+        # A wide, sparse sheet (one value far right): drop the columns with no value at all here,
+        # as the tidying would, since its per-column steps over 16,384 columns take seconds.
+        used = sorted({k for r in rows for k, v in enumerate(r) if not (isinstance(v, float) and math.isnan(v))})
+        empty = width - len(used)
+        if empty:
+            rows = [[r[k] if k < len(r) else np.nan for k in used] for r in rows]
+            width = len(used)
     padded = [r + [np.nan] * (width - len(r)) for r in rows]
-    return pd.DataFrame(padded, columns=range(width), dtype=object) if padded else pd.DataFrame(dtype=object)
+    frame = pd.DataFrame(padded, columns=range(width), dtype=object) if padded else pd.DataFrame(dtype=object)
+    frame.attrs["empty_columns"] = empty
+    return frame
 
 
 def _excel_cells(raw: bytes, name: str, sheet: str | None, notes: list[str]) -> tuple[list[str], pd.DataFrame, str]:
@@ -841,10 +879,13 @@ def _excel_cells(raw: bytes, name: str, sheet: str | None, notes: list[str]) -> 
         counted = path in dimensions and dimensions[path] is None
         _check_sheet(raw, name, chosen, path, dimensions.get(path), counted)
         grid = _sheet_grid(worksheet, name, chosen)
+        empty = int(grid.attrs.pop("empty_columns", 0))
     finally:
         book.close()
     listed = f" (sheets: {', '.join(sheets)})" if len(sheets) > 1 else ""
     notes.append(f"read sheet '{chosen}' of '{name}'{listed}.")
+    if empty:
+        notes.append(f"dropped {empty:,} empty column{'s' if empty > 1 else ''} with no name (blank cells).")
     grid = grid.dropna(how="all").reset_index(drop=True)
     if grid.empty:
         raise DataError(f"sheet '{chosen}' of '{name}' is empty; put a header row and data rows on it.")
@@ -892,7 +933,8 @@ def _tidy(
         notes.append(
             f"dropped {len(empty_cols)} empty column{'s' if len(empty_cols) > 1 else ''} with no name (trailing delimiters or blank cells)."
         )
-        header = [h for j, h in enumerate(header) if j not in set(empty_cols)]
+        dropped = set(empty_cols)  # once: a set per column made this quadratic on a 16,384-wide sheet
+        header = [h for j, h in enumerate(header) if j not in dropped]
     if body.shape[1] > MAX_COLUMNS:
         raise _too_wide(name, body.shape[1])
     empty_rows = blank.all(axis=1).to_numpy() if body.shape[1] else np.ones(len(body), dtype=bool)
