@@ -10,6 +10,7 @@ openpyxl needs to open a workbook.
 
 from __future__ import annotations
 
+import codecs
 import contextlib
 import io
 import itertools
@@ -263,6 +264,13 @@ def test_a_sheet_wider_than_formwise_reads_is_refused_at_its_first_wide_row(tmp_
     )
 
 
+def test_one_stray_value_in_the_last_column_reads_without_hanging(tmp_path: Path) -> None:
+    # Found by the fuzzing below: 16,383 empty columns to drop took minutes (a quadratic step).
+    rows = itertools.chain(table_rows(3), [b'<row r="5"><c r="XFD5"><v>1</v></c></row>'])
+    frame = read_file(tmp_path, workbook({"Data": sheet(rows, "A1:XFD5")}), "stray.xlsx")
+    assert frame.shape == (4, 3) and frame.iloc[-1, 2] == 1
+
+
 def test_a_stray_value_far_right_on_every_row_is_refused(tmp_path: Path) -> None:
     # Few cells, but every row padded out to column XFD: the grid guard stops it early.
     rows = (f'<row r="{i}"><c r="A{i}"><v>1</v></c><c r="XFD{i}"><v>2</v></c></row>'.encode() for i in range(1, 2_001))
@@ -289,6 +297,21 @@ def test_a_large_sheet_with_a_declared_size_is_not_parsed_unless_chosen(tmp_path
     assert read_file(tmp_path, raw, "two.xlsx").shape == (3, 2)
     with pytest.raises(DataError, match=f"sheet 'Big' of 'two.xlsx' has more than {reader.XLSX_MAX_CELLS:,} cells"):
         read_file(tmp_path, raw, "two.xlsx", sheet_name="Big")
+
+
+def _utf16(pieces: Iterable[bytes]) -> Iterator[bytes]:
+    """XML pieces re-encoded as UTF-16 with a byte-order mark (ECMA-376 Part 2 allows UTF-16 parts)."""
+    yield codecs.BOM_UTF16_LE
+    for piece in pieces:
+        yield piece.decode().replace('encoding="UTF-8"', 'encoding="UTF-16"').encode("utf-16-le")
+
+
+def test_a_utf16_sheet_reads_and_is_counted_like_a_utf8_one(tmp_path: Path) -> None:
+    assert read_file(tmp_path, workbook({"Data": _utf16(sheet(table_rows(5), "A1:B6"))}), "utf16.xlsx").shape == (5, 2)
+    big = _utf16(sheet(repeated(b"<row><c/><c/></row>", 600_000)))
+    refused(
+        tmp_path, workbook({"Data": sheet(table_rows(3), "A1:B4"), "Big": big}), "utf16.xlsx", "has more than 1,000,000 cells"
+    )
 
 
 def test_too_many_parts_are_refused(tmp_path: Path) -> None:
