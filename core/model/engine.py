@@ -1,11 +1,11 @@
-"""The passes over the rows that least squares needs, each streamed in row blocks on two threads.
+"""The passes over the rows that least squares needs, each streamed in row blocks on up to two threads.
 
 Every pass reads a block of rows of the design X (n x k, intercept first), forms the block of the
 shifted, weighted design
 
     B = sqrt(w) · [1, X₂ - c, y - c_y]                               ((k+1) columns, y last)
 
-in a per-thread buffer and folds it into a small k x k result before moving on, so no shifted or
+in a per-thread buffer and folds it into a small (k+1)-sized result before moving on, so no shifted or
 weighted copy of X is ever held. The shift (c, c_y) is the (weighted) mean of the first block: any
 shift is an exact reparametrisation of the model, and one close to the mean removes the offset
 that makes uncentred sums of squares lose digits (the "shifted data" method of Chan, Golub &
@@ -48,18 +48,19 @@ import numpy as np
 # while it is still in cache. (On the loaded two-core machine, blocks of 8,192 to 65,536 rows
 # timed within noise of each other; much smaller blocks pay Python overhead per block.)
 BLOCK_ROWS = 16_384
-# Threads for the passes (both cores of a small machine; more rarely pays off for a pass that
-# is bound by memory bandwidth).
+# Threads for the passes: both cores of a small machine. Measured by bench/refit.py on the
+# two-core machine while four other processes kept it busy (load average 4.2), fit_ols at
+# 1,000,000 rows took 0.053 s on one thread and 0.049 s on two (13 columns), 0.089 s and
+# 0.094 s (11 columns): no gain to claim there; the second thread is meant for a machine the app
+# has to itself, and the shared block counter keeps a slowed thread from holding a pass back.
 THREADS = max(1, min(2, os.cpu_count() or 1))
 # Below this many rows a pass runs on the calling thread: starting threads would cost more.
 THREADED_MIN_ROWS = 4 * BLOCK_ROWS
 
 T = TypeVar("T")
 _pool: ThreadPoolExecutor | None = None
-_pool_lock = threading.Lock()
-
-
 _pool_pid = 0
+_pool_lock = threading.Lock()
 
 
 def _executor() -> ThreadPoolExecutor:
