@@ -109,7 +109,8 @@ def compare_view(ctx: Context) -> None:
     names = [r["name"] for r in rows]
     st.table(tables.styled(display.compare_effects_table(rows), numbers_in=names), hide_index=True)
     st.caption("⚠ marks changes that reach beyond the observed data.")
-    exports.table_downloads(core_tables.comparison_table(fitted), "comparison", "comparison")
+    note = ["Original-scale measures compare models with different outcome transforms; AIC compares models on the same rows only."]
+    exports.table_downloads(core_tables.from_frame("Models compared", table, note), "comparison", "comparison")
 
 
 # --- predict ----------------------------------------------------------------------------------------------------

@@ -6,33 +6,9 @@ from __future__ import annotations
 import pandas as pd
 from pandas.io.formats.style import Styler
 
+from core.output.display import NUMBER_COLUMNS
 from core.output.escape import plain
 
-NUMBER_COLUMNS = {
-    "Estimate",
-    "Std. error",
-    "95 % interval",
-    "p-value",
-    "First-order approximation",
-    "Exact",
-    "95 % interval (exact)",
-    "Gap (approx. − exact)",
-    "Small-sample adjusted",
-    "Average over rows",
-    "Elasticity at the reference point",
-    "Variance inflation (VIF)",
-    "Sheet row",
-    "Leverage",
-    "Cook's distance",
-    "Residual",
-    "Rows used",
-    "R² (original scale)",
-    "Log-likelihood (original scale)",
-    "AIC (original scale)",
-    "BIC (original scale)",
-    "Breusch–Pagan p",
-    "R² as fitted ¹",
-}
 HIGHLIGHT = "background-color: #FFF4D6"
 
 

@@ -73,7 +73,7 @@ def show(ctx: Context) -> None:
 # --- coefficients and effects ------------------------------------------------------------------------
 def coefficients_view(ctx: Context) -> None:
     st.table(tables.styled(display.coefficient_table(ctx.result, ctx.spec)), hide_index=True)
-    exports.table_downloads(core_tables.coefficient_table(ctx.result), "estimates", "estimates")
+    exports.table_downloads(core_tables.coefficient_table(ctx.result, ctx.spec), "estimates", "estimates")
 
 
 def effects_view(ctx: Context) -> None:
@@ -90,7 +90,7 @@ def effects_view(ctx: Context) -> None:
         + (" The model is fitted by PPML, so effects read as % changes in the mean of the outcome." if ctx.ppml else "")
     )
     st.table(tables.styled(table, display.extrapolated_rows(result)), hide_index=True)
-    exports.table_downloads(core_tables.effects_table(result), "effects", "effects")
+    exports.table_downloads(core_tables.effects_table(result, spec), "effects", "effects")
     point = result.get("reference_point") or {}
     if point:
         st.caption(

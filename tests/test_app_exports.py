@@ -23,6 +23,7 @@ import core
 from app import charts, exports, keys
 from core.output import tables as core_tables
 from core.output.escape import csv_cell
+from core.output.tables import plain_number
 from core.output.numbers import sig
 from core.output.report import CAUTION_REVIEW
 from tests.app_support import cli_analyze, edit_grid, show, start
@@ -239,19 +240,21 @@ def test_table_files_neutralise_formula_cells_and_keep_numbers() -> None:
     for table in built:
         rows = list(csv.reader(io.StringIO(exports.table_file(table, "csv"))))
         assert rows[0] == [csv_cell(h) for h in table.header]
-        for written, original in zip(rows[1:], table.rows, strict=True):
-            for cell, value in zip(written, original, strict=True):
-                if isinstance(value, float):
-                    assert float(cell) == value  # numbers stay numbers, every digit kept
+        body = rows[1 : 1 + len(table.rows)]
+        for written, original in zip(body, table.rows, strict=True):
+            for header, cell, value in zip(table.header, written, original, strict=True):
+                if header in table.numeric and plain_number(value) != value:
+                    assert float(cell) == float(plain_number(value))  # the screen's number, as a number
                 elif isinstance(value, str) and value:
                     assert cell[0] not in "=+-@\t\r", cell
                     assert cell.lstrip("'") == value
+        assert rows[1 + len(table.rows) :][1:] == [[csv_cell(line)] for line in table.footer]  # the model footer
     coefficients_csv = exports.table_file(built[0], "csv")
     assert "'=HYPERLINK(" in coefficients_csv and "'@SUM(A1)" in coefficients_csv
     markdown = exports.table_file(built[0], "markdown")
     assert markdown.startswith("**Coefficients") and "| Term |" in markdown
     latex = exports.table_file(built[0], "latex")
-    assert r"\begin{tabular}" in latex and r"\toprule" in latex
+    assert r"\begin{tabularx}" in latex and r"\toprule" in latex
 
 
 def test_each_view_offers_its_table_in_three_formats() -> None:

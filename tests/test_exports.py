@@ -9,11 +9,12 @@ import re
 
 import numpy as np
 import pandas as pd
+import pytest
 
 import core
 from core.output.escape import csv_cell as neutralise
 from core.output.report import build_report
-from core.output.tables import coefficient_table, comparison_table, effects_table, render, to_csv, to_latex
+from core.output.tables import coefficient_table, comparison_table, effects_table, plain_number, render, to_csv, to_latex
 
 HOSTILE_Y = '=HYPERLINK("http://example.invalid","x")'
 HOSTILE_X = "<script>alert(1)</script>"
@@ -58,16 +59,18 @@ def test_csv_tables_cannot_run_formulas_and_numbers_stay_numbers() -> None:
                 if cell and cell[0] in "=+-@\t\r":
                     float(cell)  # only plain numbers may start with a sign
     effects = list(csv.reader(io.StringIO(to_csv(effects_table(result)))))
-    exact = float(effects[1][4])  # a number, written as a number
-    assert exact == next(e["exact"] for e in result["effects"] if e["change"] == "+10%")
+    column = effects[0].index("Exact")
+    exact = float(effects[1][column])  # a number, written as a number: the screen's, as printed
+    assert exact == pytest.approx(next(e["exact"] for e in result["effects"] if e["change"] == "+10%"), rel=5e-3)
+    assert effects[1][column] == plain_number(effects_table(result).rows[0][3])
 
 
 def test_latex_escapes_special_characters() -> None:
     result = core.analyze(_hostile_frame(), _hostile_spec())
     text = to_latex(coefficient_table(result))
-    assert r"\begin{tabular}" in text and r"\toprule" in text and r"\bottomrule" in text
+    assert r"\begin{tabularx}" in text and r"\toprule" in text and r"\bottomrule" in text
     assert "SUM(A1:A9)" in text and "@SUM" in text
-    assert r"95 \% low" in text
+    assert r"95 \% interval" in text
     assert re.search(r"(?<!\\)[%#$]", text) is None  # special characters escaped (& is the column separator)
 
 
@@ -90,8 +93,9 @@ def test_comparison_table_renders_in_every_format() -> None:
     level = dict(spec, outcome={"column": HOSTILE_Y, "transform": "level"})
     results = {"log": core.analyze(data, spec), "level": core.analyze(data, level)}
     table = comparison_table(results)
-    for fmt in ("csv", "markdown", "latex"):
+    for fmt in ("csv", "markdown"):
         assert "R² on the original scale" in render([table], fmt)
+    assert r"R\textsuperscript{2} on the original scale" in render([table], "latex")
 
 
 def test_markdown_tables_keep_user_text_literal() -> None:

@@ -333,3 +333,30 @@ def prediction_table(prediction: dict[str, Any], outcome: str, ppml: bool = Fals
         },
     ]
     return pd.DataFrame(rows)
+
+
+NUMBER_COLUMNS = {
+    "Estimate",
+    "Std. error",
+    "95 % interval",
+    "p-value",
+    "First-order approximation",
+    "Exact",
+    "95 % interval (exact)",
+    "Gap (approx. − exact)",
+    "Small-sample adjusted",
+    "Average over rows",
+    "Elasticity at the reference point",
+    "Variance inflation (VIF)",
+    "Sheet row",
+    "Leverage",
+    "Cook's distance",
+    "Residual",
+    "Rows used",
+    "R² (original scale)",
+    "Log-likelihood (original scale)",
+    "AIC (original scale)",
+    "BIC (original scale)",
+    "Breusch–Pagan p",
+    "R² as fitted ¹",
+}

@@ -75,8 +75,24 @@ def markdown(text: str) -> str:
     return escaped.replace("://", ":\u2060//").replace("www", "w\u2060ww").replace("@", "@\u2060")
 
 
+# Characters the screen uses that plain LaTeX (no unicode engine) cannot set.
+_LATEX_UNICODE = {
+    "\u2212": r"\textminus{}",
+    "\u00a0": "~",
+    "≈": r"\ensuremath{\approx}",
+    "²": r"\textsuperscript{2}",
+    "¹": r"\textsuperscript{1}",
+    "⚠": "(!)",
+    "→": r"\ensuremath{\to}",
+    "★": r"\ensuremath{\star}",
+    "λ": r"\ensuremath{\lambda}",
+    "—": "---",
+}
+
+
 def latex(text: str) -> str:
-    return "".join(_LATEX_SPECIAL.get(ch, ch) for ch in text)
+    """Text as literal LaTeX: special characters escaped, the screen's symbols set in math."""
+    return "".join(_LATEX_SPECIAL.get(ch) or _LATEX_UNICODE.get(ch, ch) for ch in text)
 
 
 def html(text: Any) -> str:

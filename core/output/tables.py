@@ -1,21 +1,27 @@
-"""Result tables for memos and appendices: built once, rendered as CSV, Markdown or LaTeX.
+"""Result tables as files: the screen's tables (``core.output.display``) written as CSV,
+Markdown or LaTeX, each with a model footer, so a table pasted into a memo keeps its model.
 
-A table is a title, a header and rows of cells; a cell is a number (kept as a number in every
-format) or text. CSV text cells that a spreadsheet would run as a formula (starting with =, +,
--, @, a tab or a carriage return) are prefixed with an apostrophe, as the OWASP guidance on CSV
-injection recommends; numbers are written as numbers. LaTeX output uses booktabs rules and
-escapes the characters LaTeX treats specially.
+Every number is the screen's number as printed. In CSV a number column holds that number as a
+plain number (ASCII minus, no separators or units; its unit is in the header or the
+"Measured as" column) so a spreadsheet reads it; text cells a spreadsheet would run as a
+formula get a leading apostrophe (OWASP, "CSV Injection"). LaTeX uses booktabs rules and a
+tabularx column that wraps the longest text column; it needs
+``\\usepackage{booktabs,tabularx}``.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-from dataclasses import dataclass
+import re
+from dataclasses import dataclass, field
 from typing import Any
 
-from core.output import escape
-from core.output.numbers import format_cell
+import pandas as pd
+
+from core.output import display, escape
+from core.output.numbers import format_cell, p_value, sig
+from core.output.text import model_footer
 
 Cell = float | int | str | None
 
@@ -25,52 +31,26 @@ class Table:
     title: str
     header: list[str]
     rows: list[list[Cell]]
+    numeric: set[str] = field(default_factory=set)  # columns that hold numbers (printed)
+    footer: list[str] = field(default_factory=list)  # the model the table belongs to
 
 
-# --- building tables from a result ------------------------------------------------------------
+def from_frame(title: str, frame: pd.DataFrame, footer: list[str] | None = None, numeric: set[str] | None = None) -> Table:
+    """A display table (strings as printed on screen) as an exportable table."""
+    header = [str(c) for c in frame.columns]
+    numbers = {c for c in header if c in display.NUMBER_COLUMNS} | set(numeric or ())
+    return Table(title, header, frame.astype(object).where(frame.notna(), None).values.tolist(), numbers, list(footer or []))
 
 
-def coefficient_table(result: dict[str, Any]) -> Table:
-    rows: list[list[Cell]] = [
-        [t["name"], t["estimate"], t["std_error"], t["ci_low"], t["ci_high"], t["p_value"], t.get("reading", "")]
-        for t in result.get("terms", [])
-    ]
-    header = ["Term", "Estimate", "Std. error", "95 % low", "95 % high", "p-value", "What it means"]
-    return Table(f"Coefficients ({result['covariance']} standard errors)", header, rows)
+# --- the result's tables ----------------------------------------------------------------------
+def coefficient_table(result: dict[str, Any], spec: dict[str, Any] | None = None) -> Table:
+    title = f"Coefficients ({result['covariance']} standard errors)"
+    return from_frame(title, display.coefficient_table(result, spec), model_footer(result))
 
 
-def effects_table(result: dict[str, Any]) -> Table:
-    y = result["outcome"]["column"]
-    rows: list[list[Cell]] = []
-    for e in result.get("effects", []):
-        units = f"% change in {y}" if e["units"] == "percent" else f"change in {y}"
-        rows.append(
-            [
-                e["column"],
-                e["change"],
-                units,
-                e["approximate"],
-                e["exact"],
-                e["ci_low"],
-                e["ci_high"],
-                e.get("adjusted"),
-                e.get("average"),
-                "yes" if e.get("extrapolated") else "no",
-            ]
-        )
-    header = [
-        "Variable",
-        "Change",
-        "Measured as",
-        "First-order approximation",
-        "Exact",
-        "95 % low (exact)",
-        "95 % high (exact)",
-        "Small-sample adjusted",
-        "Average over rows",
-        "Beyond observed data",
-    ]
-    return Table("Effects of changes (other regressors at the reference point)", header, rows)
+def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) -> Table:
+    title = "Effects of changes (other regressors at the reference point)"
+    return from_frame(title, display.effects_table(result, spec), model_footer(result))
 
 
 def diagnostics_table(result: dict[str, Any]) -> Table:
@@ -82,9 +62,9 @@ def diagnostics_table(result: dict[str, Any]) -> Table:
         "reset": "RESET, missing curvature (fitted^2, fitted^3)",
     }
     rows: list[list[Cell]] = [
-        [label, checks[key]["statistic"], checks[key]["p_value"]] for key, label in names.items() if key in checks
+        [label, sig(checks[key]["statistic"], 4), p_value(checks[key]["p_value"])] for key, label in names.items() if key in checks
     ]
-    return Table("Residual checks", ["Check", "Statistic", "p-value"], rows)
+    return Table("Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, model_footer(result))
 
 
 def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
@@ -92,28 +72,26 @@ def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
     names = list(results)
     measures = [
         ("Outcome", lambda r: f"{r['outcome']['transform']} of {r['outcome']['column']}"),
-        ("Rows used", lambda r: r["n_obs"]),
-        ("R² on the original scale", lambda r: r["fit"]["r2_original_scale"]),
-        ("Log-likelihood, original scale", lambda r: r["fit"]["loglik_original_scale"]),
-        ("AIC, original scale", lambda r: r["fit"]["aic_original_scale"]),
-        ("BIC, original scale", lambda r: r["fit"]["bic_original_scale"]),
-        ("Breusch-Pagan p", lambda r: (r.get("diagnostics") or {}).get("breusch_pagan", {}).get("p_value")),
-        ("R² of the model's own outcome (not comparable across outcomes)", lambda r: r["fit"]["r2"]),
+        ("Rows used", lambda r: f"{r['n_obs']:,}"),
+        ("R² on the original scale", lambda r: sig(r["fit"]["r2_original_scale"], 3)),
+        ("Log-likelihood, original scale", lambda r: sig(r["fit"]["loglik_original_scale"], 6)),
+        ("AIC, original scale", lambda r: sig(r["fit"]["aic_original_scale"], 6)),
+        ("BIC, original scale", lambda r: sig(r["fit"]["bic_original_scale"], 6)),
+        ("Breusch-Pagan p", lambda r: p_value((r.get("diagnostics") or {}).get("breusch_pagan", {}).get("p_value"))),
+        ("R² of the model's own outcome (not comparable across outcomes)", lambda r: sig(r["fit"]["r2"], 3)),
     ]
     rows: list[list[Cell]] = [[label] + [pick(results[n]) for n in names] for label, pick in measures]
     seen: list[tuple[str, str]] = []
     for n in names:
         for e in results[n].get("effects", []):
-            key = (e["column"], e["change"])
-            if key not in seen:
-                seen.append(key)
+            if (e["column"], e["change"]) not in seen:
+                seen.append((e["column"], e["change"]))
     for column, change in seen:
         row: list[Cell] = [f"Effect of {column} {change}"]
         for n in names:
             found = next((e for e in results[n].get("effects", []) if e["column"] == column and e["change"] == change), None)
-            row.append(
-                None if found is None else f"{format_cell(found['exact'])} {'%' if found['units'] == 'percent' else 'units'}"
-            )
+            unit = "%" if found and found["units"] == "percent" else "units"
+            row.append(None if found is None else f"{sig(found['exact'], 4, signed=True)} {unit}")
         rows.append(row)
     return Table("Models compared", ["Measure", *names], rows)
 
@@ -126,48 +104,84 @@ def result_tables(result: dict[str, Any]) -> list[Table]:
 
 
 # --- rendering ---------------------------------------------------------------------------------
+_NUMBER = re.compile(r"^[+−-]?[\d,]*\.?\d+(?:e[+−-]?\d+)?$")
+
+
+def plain_number(text: Cell) -> Cell:
+    """A printed number as a plain number string ('−1,234.5 %' -> '-1234.5'); other text as it is."""
+    if not isinstance(text, str):
+        return text
+    core_text = text.replace(display.NBSP, " ").replace("% pts", "").replace("%", "").strip()
+    if _NUMBER.match(core_text):
+        return core_text.replace("−", "-").replace(",", "").lstrip("+")
+    return text
 
 
 def to_csv(table: Table) -> str:
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow([escape.csv_cell(h) for h in table.header])
+    numeric = [h in table.numeric for h in table.header]
     for row in table.rows:
-        writer.writerow(["" if c is None else (repr(c) if isinstance(c, float) else escape.csv_cell(c)) for c in row])
+        cells = []
+        for cell, is_number in zip(row, numeric, strict=True):
+            if cell is None:
+                cells.append("")
+            elif is_number and plain_number(cell) != cell:
+                cells.append(float(plain_number(cell)))  # written as a number, so a spreadsheet reads it
+            else:
+                cells.append(escape.csv_cell(cell if isinstance(cell, str) else format_cell(cell)))
+        writer.writerow(cells)
+    if table.footer:
+        writer.writerow([])
+        for line in table.footer:
+            writer.writerow([escape.csv_cell(line)])
     return buffer.getvalue()
 
 
-def to_markdown(table: Table) -> str:
-    def clean(cell: Cell) -> str:
-        text = format_cell(cell)
-        return text if isinstance(cell, (int, float)) else escape.markdown(text)
+def _text(cell: Cell) -> str:
+    return cell if isinstance(cell, str) else format_cell(cell)
 
-    lines = [f"**{escape.markdown(table.title)}**", "", "| " + " | ".join(clean(h) for h in table.header) + " |"]
-    lines.append("|" + "|".join("---:" if _numeric_column(table, i) else "---" for i in range(len(table.header))) + "|")
-    lines += ["| " + " | ".join(clean(c) for c in row) + " |" for row in table.rows]
+
+def to_markdown(table: Table) -> str:
+    lines = [f"**{escape.markdown(table.title)}**", "", "| " + " | ".join(escape.markdown(h) for h in table.header) + " |"]
+    lines.append("|" + "|".join("---:" if h in table.numeric else "---" for h in table.header) + "|")
+    lines += ["| " + " | ".join(escape.markdown(_text(c)) for c in row) + " |" for row in table.rows]
+    if table.footer:
+        lines += [""] + [f"*{escape.markdown(line)}*  " for line in table.footer]
     return "\n".join(lines) + "\n"
 
 
+def _latex_cell(cell: Cell) -> str:
+    return escape.latex(_text(cell))
+
+
+def latex_columns(table: Table) -> str:
+    """Column types: numbers right-aligned, the longest text column wrapping (X), other text left."""
+    lengths = {h: max([len(_text(r[i])) for r in table.rows] + [0]) for i, h in enumerate(table.header)}
+    texts = [h for h in table.header if h not in table.numeric]
+    wide = max(texts, key=lambda h: lengths[h]) if texts else None
+    wrap = wide if wide is not None and lengths[wide] > 30 else None
+    return "".join("r" if h in table.numeric else (r">{\raggedright\arraybackslash}X" if h == wrap else "l") for h in table.header)
+
+
 def to_latex(table: Table) -> str:
-    align = "".join("r" if _numeric_column(table, i) else "l" for i in range(len(table.header)))
     lines = [
         r"\begin{table}[htbp]",
         r"\centering",
+        r"\small",
         rf"\caption{{{escape.latex(table.title)}}}",
-        rf"\begin{{tabular}}{{{align}}}",
+        rf"\begin{{tabularx}}{{\linewidth}}{{{latex_columns(table)}}}",
         r"\toprule",
         " & ".join(escape.latex(h) for h in table.header) + r" \\",
         r"\midrule",
     ]
-    for row in table.rows:
-        lines.append(" & ".join(escape.latex(format_cell(c)) for c in row) + r" \\")
-    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}"]
+    lines += [" & ".join(_latex_cell(c) for c in row) + r" \\" for row in table.rows]
+    lines += [r"\bottomrule", r"\end{tabularx}"]
+    if table.footer:
+        lines.append(r"\par\smallskip\footnotesize " + r" \\ ".join(escape.latex(line) for line in table.footer))
+    lines.append(r"\end{table}")
     return "\n".join(lines) + "\n"
-
-
-def _numeric_column(table: Table, index: int) -> bool:
-    cells = [row[index] for row in table.rows if row[index] is not None]
-    return bool(cells) and all(isinstance(c, (int, float)) and not isinstance(c, bool) for c in cells)
 
 
 RENDERERS = {"csv": to_csv, "markdown": to_markdown, "latex": to_latex}

@@ -6,11 +6,13 @@ Plain data in, plain text out (no Markdown, no HTML): each caller escapes for it
 
 from __future__ import annotations
 
+import datetime
 import math
 from typing import Any
 
 import numpy as np
 
+from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import variable_label
 from core.output.numbers import compact, p_text, signed
 
@@ -312,3 +314,24 @@ def curve_sentence(curve: dict[str, Any], outcome: str, show_naive: bool) -> str
                 f"something closer to the median of {outcome}, not its mean."
             )
     return text
+
+
+def model_footer(result: dict[str, Any], today: str | None = None) -> list[str]:
+    """The model a table belongs to, for the footer of every exported table: the model in
+    words, rows used and dropped, R² as fitted and on the original scale, the standard errors,
+    and the date."""
+    fit = result.get("fit") or {}
+    outcome = result["outcome"]
+    estimator = "Poisson pseudo-maximum likelihood" if result.get("estimator") == "ppml" else "least squares"
+    kind = COVARIANCE_KINDS.get(result.get("covariance") or "")
+    lines = [f"Model: {model_sentence(result)} ({estimator}).", f"Rows: {rows_sentence(result)}."]
+    r2, original = fit.get("r2"), fit.get("r2_original_scale")
+    if r2 is not None:
+        scale = variable_label(outcome["column"], outcome["transform"], "outcome")
+        text = f"R² {signed(r2, 3).lstrip('+')} as fitted ({scale})"
+        if original is not None and outcome["transform"] != "level":
+            text += f"; {signed(original, 3).lstrip('+')} on the original scale of {outcome['column']}"
+        lines.append(text + ".")
+    lines.append(f"Standard errors: {kind.short if kind else result.get('covariance')}.")
+    lines.append(f"Formwise, {today or datetime.date.today().isoformat()}. Effects are associations in this data.")
+    return lines
