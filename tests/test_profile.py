@@ -295,3 +295,22 @@ def test_profile_command_errors_are_one_line(args: tuple[str, ...], needle: str)
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("error: ") and needle in lines[0]
     assert "Traceback" not in done.stderr
+
+
+def test_profile_without_boxcox_differs_only_there(demo_profile: dict) -> None:
+    frame, notes = read_table_with_notes(DEMO_CSV)
+    quick = profile_table(frame, notes, boxcox=False)
+    assert all(e["boxcox"] is None for e in quick["columns"])
+    for full, fast in zip(demo_profile["columns"], quick["columns"], strict=True):
+        assert {k: v for k, v in full.items() if k != "boxcox"} == {k: v for k, v in fast.items() if k != "boxcox"}
+
+
+def test_column_boxcox_is_scipys(demo_profile: dict) -> None:
+    from scipy import stats  # general-purpose reference library (docs/contract.md §3.13)
+
+    values = pd.read_csv(DEMO_CSV)["weekly_revenue"].to_numpy(dtype=float)
+    _, lam, (low, high) = stats.boxcox(values, alpha=0.05)
+    found = entry(demo_profile, "weekly_revenue")["boxcox"]
+    # The profile divides by the geometric mean first (λ̂ is scale-free); the rest is rounding.
+    assert found["lambda"] == pytest.approx(lam, abs=1e-6)
+    assert (found["ci_low"], found["ci_high"]) == pytest.approx((low, high), abs=1e-6)

@@ -207,6 +207,15 @@ def test_a_column_constant_on_the_rows_used_is_left_out(corpus: dict[str, Path])
     assert spec["outcome"] == {"column": "wage", "transform": "log"}
     assert "inlf" not in _regressors(spec)
     assert "same value (1) in every row the model uses" in _said(notes, "inlf")
+    # expersq in the file: experience takes one of the twelve places, as a quadratic.
+    assert _regressors(spec)["exper"] == "quadratic" and len(spec["regressors"]) == 12
+
+
+def test_a_table_with_one_usable_column_gets_one_clear_message() -> None:
+    frame = read_table(Path(__file__).resolve().parent / "corpus" / "utf8_bom.csv")  # a name and a value
+    with pytest.raises(core.DataError, match=CLEAR) as caught:
+        core.suggest(frame)
+    assert "'name' left out: an identifier" in str(caught.value) and "\n" not in str(caught.value)
 
 
 def test_lags_and_differences_are_named_with_their_source(corpus: dict[str, Path]) -> None:
@@ -304,7 +313,7 @@ _SCALES = st.sampled_from([1e-300, 1e-12, 1e-3, 1.0, 1e3, 1e12, 1e150, 1e300])
 EVERY_READING = {"terms", "fit", "effects", "gap_curves", "curves", "units_check", "retransform", "predictions"}
 
 
-@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(
     st.integers(min_value=0, max_value=2**32 - 1),
     st.integers(min_value=4, max_value=60),

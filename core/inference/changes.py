@@ -5,7 +5,8 @@ Rules of thumb (common practice, no source), in this order:
 - a duration in years: +1 (one more year);
 - a money amount on a relative scale (log, IHS, ...): +10 %;
 - whole numbers (counts, integer scales, square feet): +1, or a round step near the typical
-  spread when that is larger (10, 100, ...), never a fraction of a whole unit;
+  spread when that is larger (10, 100, ...), never a fraction of a whole unit; on a relative
+  scale the step is at most about a tenth of the median, so it reads like a 10 % change;
 - other values on a relative scale: +10 %;
 - other values in levels: a round step near the typical spread (a power of ten at or below
   it: 0.1 for shares, 1, 10, ...).
@@ -49,6 +50,10 @@ def default_change_text(values: np.ndarray, relative: bool, kind: str | None = N
     with np.errstate(all="ignore"):
         spread = _typical_spread(x)
         whole = bool(len(x)) and bool(np.all(x == np.round(x)))
+    if whole and relative and len(x):
+        # On a log-type scale a step reads against the level: at most about a tenth of a typical
+        # value, like the +10 % of an amount (100 square feet for houses of 1,800).
+        spread = min(spread, 0.1 * abs(float(np.median(x)))) or spread
     step = _round_step(spread)
     if whole:
         return _units(max(1.0, step))

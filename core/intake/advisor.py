@@ -735,7 +735,11 @@ def _fit_or_trim(table: _Table, spec: dict[str, Any], pool: list[str], quadratic
         table.note(column, about, text)
 
     for _ in range(2 * len(pool) + 5):
-        active = [c for c in pool if c not in removed][:MAX_REGRESSORS]
+        # A column whose square the file carries was modelled as a quadratic by whoever made the
+        # file: it takes a place first; the rest go in file order.
+        kept = [c for c in pool if c not in removed]
+        first = set(sorted(kept, key=lambda c: (c not in quadratic, order[c]))[:MAX_REGRESSORS])
+        active = [c for c in kept if c in first]
         if not active:
             raise DataError(_too_few(table, outcome))
         y = table.values[outcome]
@@ -909,8 +913,20 @@ def _dependent(design: Any, order: dict[str, int]) -> tuple[str, str] | None:
             )
     column = max(names, key=lambda c: (not design.encoder.block(c).is_category, order[c]))
     others = [f"'{c}'" for c in names if c != column]
-    with_what = f"of {', '.join(others)} and the constant" if others else "of its own other design columns and the constant"
-    return column, f"'{column}' left out: on the rows the model uses it is an exact linear combination {with_what}."
+    if not others and design.encoder.block(column).stop - design.encoder.block(column).start > 1:
+        return (
+            column,
+            f"'{column}' left out: on the rows the model uses its design columns are collinear (too few distinct values).",
+        )
+    if not others:
+        return column, (
+            f"'{column}' left out: on the rows the model uses its values cannot be told apart from a constant "
+            "(their spread is below the rounding of the numbers)."
+        )
+    return (
+        column,
+        f"'{column}' left out: on the rows the model uses it is an exact linear combination of {', '.join(others)} and the constant.",
+    )
 
 
 def _cluster_hint(table: _Table) -> None:
