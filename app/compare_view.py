@@ -31,6 +31,11 @@ def _save_model(spec: dict[str, Any], data_id: str, suggestion: str) -> None:
     ss = st.session_state
     saved = ss.setdefault(keys.SAVED_MODELS, [])
     name = (ss.get(keys.SAVE_NAME) or "").strip() or suggestion
+    same = next((m for m in saved if m["data_id"] == data_id and spec_json(m["spec"]) == spec_json(spec)), None)
+    if same is not None:
+        ss[keys.SAVE_MESSAGE] = f"This model is already saved as “{same['name']}”; nothing was added."
+        ss[keys.SAVE_NAME] = ""
+        return
     replaced = [m for m in saved if m["name"] == name and m["data_id"] == data_id]
     for old in replaced:
         saved.remove(old)
@@ -109,7 +114,9 @@ def compare_view(ctx: Context) -> None:
     names = [r["name"] for r in rows]
     st.table(tables.styled(display.compare_effects_table(rows), numbers_in=names), hide_index=True)
     st.caption("⚠ marks changes that reach beyond the observed data.")
-    note = ["Original-scale measures compare models with different outcome transforms; AIC compares models on the same rows only."]
+    note = [
+        "Original-scale measures compare models with different outcome transforms; AIC compares models on the same rows only."
+    ]
     exports.table_downloads(core_tables.from_frame("Models compared", table, note), "comparison", "comparison")
 
 

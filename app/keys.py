@@ -38,3 +38,6 @@ EXPORT_CAPTION = "export_caption"
 CHART_CAPTION = "_chart_caption"
 # Identifier and date columns may enter the model when ticked.
 UNLOCK_LOCKED = "unlock_locked"
+# Undo and redo of model edits: earlier and later grids (bounded).
+UNDO = "undo_history"
+REDO = "redo_history"

@@ -21,7 +21,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import cautions, context, exports, intake, keys, views
+from app import cautions, context, exports, history, intake, keys, views
 from app.gridspec import (
     ROLES,
     GridError,
@@ -64,6 +64,7 @@ def use_data(
     # A new table starts with its identifier and date columns locked out again.
     ss.pop(keys.UNLOCK_LOCKED, None)
     ss[keys.PREVIOUS_GRID] = ss[keys.GRID_BASE]
+    history.forget()
     # A fresh editor key discards the old grid's pending edits.
     ss[keys.GRID_VERSION] = ss.get(keys.GRID_VERSION, 0) + 1
     ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
@@ -202,12 +203,11 @@ def variables_grid() -> pd.DataFrame:
     resolved = resolve_outcome(grid, ss[keys.PREVIOUS_GRID])
     if resolved is not grid:
         # A second outcome was picked: restart the editor on the resolved grid.
-        ss[keys.GRID_BASE] = resolved
-        ss[keys.GRID_VERSION] += 1
-        ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
-        ss[keys.PREVIOUS_GRID] = resolved
+        restart_grid(resolved)
         st.rerun()
+    history.record(ss[keys.PREVIOUS_GRID], grid)
     ss[keys.PREVIOUS_GRID] = grid
+    history.buttons(show_grid)
     intake.keep_locked_out(grid, restart_grid)
     intake.advice_notes(ss[keys.DATA])
     levels = category_levels(ss[keys.DATA]["frame"], grid)
@@ -221,7 +221,14 @@ def variables_grid() -> pd.DataFrame:
 
 # --- the PPML offer -------------------------------------------------------------------------------
 def restart_grid(grid: pd.DataFrame) -> None:
-    """Show ``grid`` in a fresh editor (pending edits are already part of it)."""
+    """Show ``grid`` in a fresh editor (pending edits are already part of it), as an edit that
+    Undo can take back."""
+    history.record(st.session_state.get(keys.PREVIOUS_GRID), grid)
+    show_grid(grid)
+
+
+def show_grid(grid: pd.DataFrame) -> None:
+    """Show ``grid`` in a fresh editor, without touching the undo history."""
     ss = st.session_state
     ss[keys.GRID_BASE] = grid
     ss[keys.GRID_VERSION] += 1

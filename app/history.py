@@ -1,0 +1,74 @@
+"""Undo and redo of model edits: a bounded history of the variables grid.
+
+Every accepted change of the grid (a cell edited, suggestions applied, a second outcome
+resolved) pushes the grid it replaced; Undo brings it back and keeps the undone grid for Redo.
+A new edit after an undo clears what could be redone, as text editors do.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import pandas as pd
+import streamlit as st
+
+from app import keys
+
+LIMIT = 50
+
+
+def record(before: pd.DataFrame, after: pd.DataFrame) -> None:
+    """Remember ``before`` when the grid changed to ``after``."""
+    if before is None or before.equals(after):
+        return
+    ss = st.session_state
+    history = ss.setdefault(keys.UNDO, [])
+    history.append(before)
+    del history[:-LIMIT]
+    ss[keys.REDO] = []
+
+
+def forget() -> None:
+    """A new table starts with no history (its grid has other rows)."""
+    st.session_state[keys.UNDO] = []
+    st.session_state[keys.REDO] = []
+
+
+def _step(source: str, target: str, show: Callable[[pd.DataFrame], None]) -> None:
+    ss = st.session_state
+    stack = ss.get(source) or []
+    if not stack:
+        return
+    grid = stack.pop()
+    ss.setdefault(target, []).append(ss[keys.PREVIOUS_GRID])
+    show(grid)
+
+
+def buttons(show: Callable[[pd.DataFrame], None]) -> None:
+    """Undo and Redo beside the grid; Ctrl/Cmd+Z and Ctrl/Cmd+Shift+Z do the same."""
+    ss = st.session_state
+    undo, redo, _ = st.columns([1, 1, 5])
+    with undo:
+        st.button(
+            "Undo",
+            key="undo_edit",
+            icon=":material/undo:",
+            disabled=not ss.get(keys.UNDO),
+            on_click=_step,
+            args=(keys.UNDO, keys.REDO, show),
+            shortcut="Mod+Z",
+            help="Take back the last change to the model (Ctrl/Cmd+Z).",
+            width="stretch",
+        )
+    with redo:
+        st.button(
+            "Redo",
+            key="redo_edit",
+            icon=":material/redo:",
+            disabled=not ss.get(keys.REDO),
+            on_click=_step,
+            args=(keys.REDO, keys.UNDO, show),
+            shortcut="Mod+Shift+Z",
+            help="Make the change taken back again (Ctrl/Cmd+Shift+Z).",
+            width="stretch",
+        )
