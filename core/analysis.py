@@ -101,7 +101,9 @@ def analyze(
         "covariance": model_spec.covariance,
         "estimator": model_spec.estimator,
         "reference_point": design.reference,
+        "time_series": model.time_series,
     }
+    run.warnings.extend(_time_series_warnings(model.time_series, model_spec.covariance))
     if small_sample(fit.n, fit.k):
         run.warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
     if fit.condition_number > NEAR_COLLINEAR:
@@ -116,6 +118,19 @@ def analyze(
     result["warnings"] = list(dict.fromkeys(run.warnings))
     result["cautions"] = CAUTIONS
     return json_safe(result)
+
+
+def _time_series_warnings(notes: dict[str, Any] | None, kind: str) -> list[str]:
+    """How the time-series errors treat periods without rows (core.model.covariance: lags are
+    distances in time, a missing period counts as a zero score)."""
+    if not notes or not notes["periods_without_rows"]:
+        return []
+    missing, span = notes["periods_without_rows"], notes["periods"]
+    return [
+        f"{missing} of the {span} periods of '{notes['time']}' from the first to the last used have no row in the fit "
+        f"(absent from the data, or dropped); the {kind} standard errors pair rows by their distance in time, so rows on "
+        "either side of a gap are never treated as neighbours, and a missing period counts as a zero contribution."
+    ]
 
 
 def _fit_section(run: _Run) -> dict[str, Any]:

@@ -12,7 +12,30 @@ leverage):
 - cluster    M = Σ_g (X̃_g'u_g)(X̃_g'u_g)' · G/(G-1) · (n-1)/(n-k) (Liang & Zeger 1986; small-sample
              factor as in Cameron & Miller 2015, J. Human Resources 50(2), §VI.B)
 
-Degrees of freedom for t-based intervals: n-k, and G-1 for cluster (Cameron & Miller 2015, §VI.C).
+- HAC        M = Σ_{|j|≤L} w_j Σ_t s_t s_{t-j}', w_j = 1 - j/(L+1) (Bartlett), s_t = x̃_t·u_t, times
+             n/(n-k)                                           (Newey & West 1987, Econometrica 55)
+- driscoll_kraay  the same on the per-period sums of the scores, S_t = Σ_{i in t} x̃ᵢuᵢ, times
+             T/(T-1) · (n-1)/(n-k), T the periods with rows     (Driscoll & Kraay 1998, REStat 80)
+
+Degrees of freedom for t-based intervals: n-k, and G-1 for cluster (Cameron & Miller 2015, §VI.C);
+n-k for HAC and T-1 for driscoll_kraay.
+
+Time and gaps. The two time-series kinds read the rows' period numbers (``Rows.time``: integers,
+0 for the first period of the time column; ``core.model.design`` makes them). Lags are distances
+in time, not in row position: the lag-j partner of a row is the row exactly j periods earlier,
+if that period has a row in the fit. A period with no row (absent from the data, or its row
+dropped for a missing cell or a transform's domain) contributes nothing, exactly as if its
+score were zero; rows on either side of a gap are paired at their true distance, never as
+neighbours. With no gap this is the textbook estimator on the rows sorted by time (statsmodels'
+``cov_type="HAC"`` with ``use_correction=True``, and ``"hac-groupsum"`` with
+``use_correction="cluster"``, as reference library).
+
+Lags: given in the spec, or chosen from the data by the Newey & West (1994, REStud 61) plug-in
+rule for the Bartlett kernel without prewhitening: on the series h_t = Σ_j s_tj over the
+non-intercept columns (zero in periods without rows), n₀ = ⌊4(T/100)^{2/9}⌋, σ_j = Σ_t h_t
+h_{t-j}/T, s⁽⁰⁾ = σ_0 + 2Σ_{j=1..n₀} σ_j, s⁽¹⁾ = 2Σ_{j=1..n₀} j·σ_j, L = ⌊1.1447·(s⁽¹⁾/s⁽⁰⁾)^{2/3}·T^{1/3}⌋,
+at most T-1 (T the periods spanned; NW 1994 Tables I B and II C, as R's sandwich package
+implements them in ``bwNeweyWest`` with ``prewhite = 0`` and ``NeweyWest``'s floor).
 
 Every meat is a sum over rows, so it is accumulated over row chunks (``core.model.ols.CHUNK_ROWS``):
 for a chunk, the scores x̃ᵢ·uᵢ (divided by (1-hᵢ)^{1/2} or (1-hᵢ) for HC2/HC3) are formed
@@ -23,7 +46,7 @@ or of weighted rows is held. The rows x̃ᵢ = rᵢ·xᵢ are passed as X and th
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -54,6 +77,7 @@ class CovarianceKind:
     words: str
     short: str
     needs_groups: bool = False
+    needs_time: bool = False
 
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
         """V and the degrees of freedom for t intervals."""
@@ -63,7 +87,9 @@ class CovarianceKind:
 @dataclass(frozen=True)
 class Rows:
     """What every meat reads: the bread B, rows x̃ᵢ = rᵢ·Xᵢ (``row_scale`` r, 1 when None),
-    residuals u, the groups and s² for the classical type."""
+    residuals u, the groups and s² for the classical type; for the time-series kinds the period
+    of each row and the lags (None: chosen from the data), and ``notes`` they fill in (lags
+    used, periods spanned and without rows) for the result's header."""
 
     bread: np.ndarray
     X: np.ndarray
@@ -71,6 +97,9 @@ class Rows:
     groups: np.ndarray | None
     scale: float
     row_scale: np.ndarray | None
+    time: np.ndarray | None = None
+    lags: int | None = None
+    notes: dict = field(default_factory=dict)
 
     @property
     def factor(self) -> np.ndarray:
@@ -136,6 +165,131 @@ class Clustered(CovarianceKind):
         return small_sample * (rows.bread @ (summed.T @ summed) @ rows.bread), n_groups - 1
 
 
+def _scores(rows: Rows, positions: np.ndarray) -> np.ndarray:
+    """The scores x̃ᵢ·uᵢ of the rows at ``positions`` (one chunk)."""
+    return rows.X[positions] * rows.factor[positions, None]
+
+
+def _bartlett(lags: int) -> np.ndarray:
+    """Bartlett weights w_j = 1 - j/(L+1), j = 0..L (Newey & West 1987)."""
+    return 1.0 - np.arange(lags + 1) / (lags + 1.0)
+
+
+def newey_west_lags(h: np.ndarray) -> int:
+    """Lags by the Newey & West (1994) plug-in rule for the Bartlett kernel (module docstring);
+    ``h`` the scalar score series on the full period grid."""
+    periods = len(h)
+    first = int(np.floor(4.0 * (periods / 100.0) ** (2.0 / 9.0)))
+    sigma = np.array([float(h[j:] @ h[: periods - j]) / periods for j in range(first + 1)])
+    s0 = sigma[0] + 2.0 * sigma[1:].sum()
+    s1 = 2.0 * float(np.arange(1, first + 1) @ sigma[1:])
+    if first == 0 or not s0 > 0:
+        return min(first, periods - 1)
+    gamma = 1.1447 * ((s1 / s0) ** 2) ** (1.0 / 3.0)
+    return int(min(np.floor(gamma * periods ** (1.0 / 3.0)), periods - 1))
+
+
+def _lag_weights(rows: Rows) -> np.ndarray:
+    """Columns summed into the scalar series of the lag rule: all but the intercept (all when
+    the intercept is the only one)."""
+    k = rows.X.shape[1]
+    weights = np.ones(k)
+    if k > 1:
+        weights[0] = 0.0
+    return weights
+
+
+@dataclass(frozen=True)
+class TimeSeriesRobust(CovarianceKind):
+    """HAC (one row per period) and, with ``per_period`` set, Driscoll-Kraay (scores summed per
+    period first); Bartlett kernel, lags by time distance (module docstring)."""
+
+    per_period: bool = False
+
+    def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
+        n, k = rows.X.shape
+        if rows.time is None:
+            raise DataError(f"{self.name} standard errors need a time column; name one in 'time'.")
+        time = np.asarray(rows.time, dtype=np.int64)
+        span = int(time.max()) + 1
+        if self.per_period:
+            meat, lags, with_rows = self._per_period(rows, time, span)
+            if with_rows < 2:
+                raise DataError("driscoll_kraay needs rows in at least two periods of the time column.")
+            correction, df = with_rows / (with_rows - 1) * (n - 1) / (n - k), with_rows - 1
+        else:
+            meat, lags, with_rows = self._one_series(rows, time, span)
+            correction, df = n / (n - k), n - k
+        rows.notes.update(
+            lags=lags,
+            lag_rule="given" if rows.lags is not None else "automatic",
+            periods=span,
+            periods_without_rows=span - with_rows,
+        )
+        return correction * (rows.bread @ meat @ rows.bread), df
+
+    def _choose(self, rows: Rows, h: np.ndarray, span: int) -> int:
+        if rows.lags is None:
+            return newey_west_lags(h)
+        if rows.lags >= span:
+            raise DataError(
+                f"{rows.lags} lags are as many as the {span} periods of the time column allow or more; use fewer lags."
+            )
+        return rows.lags
+
+    def _per_period(self, rows: Rows, time: np.ndarray, span: int) -> tuple[np.ndarray, int, int]:
+        """Driscoll-Kraay: the scores summed per period on the full grid (empty periods zero)."""
+        n, k = rows.X.shape
+        sums = np.zeros((span, k))
+        for start in row_chunks(n):
+            part = np.arange(start, min(start + CHUNK_ROWS, n))
+            scores = _scores(rows, part)
+            for j in range(k):
+                sums[:, j] += np.bincount(time[part], weights=scores[:, j], minlength=span)
+        lags = self._choose(rows, sums @ _lag_weights(rows), span)
+        weights = _bartlett(lags)
+        meat = sums.T @ sums
+        for lag in range(1, lags + 1):
+            cross = sums[lag:].T @ sums[:-lag]
+            meat += weights[lag] * (cross + cross.T)
+        return meat, lags, int(np.count_nonzero(np.bincount(time, minlength=span)))
+
+    def _one_series(self, rows: Rows, time: np.ndarray, span: int) -> tuple[np.ndarray, int, int]:
+        """HAC over one series: rows sorted by period, each paired with the row exactly j periods
+        earlier (found by binary search), in row chunks that overlap by the lags."""
+        n, k = rows.X.shape
+        order = np.argsort(time, kind="stable")
+        periods = time[order]
+        repeated = np.flatnonzero(np.diff(periods) == 0)
+        if len(repeated):
+            raise DataError(
+                f"the time column has several rows in one period ({len(repeated) + 1} or more rows share a period); "
+                "HAC needs one row per period. For a panel use driscoll_kraay, or cluster by the panel unit."
+            )
+        h = np.zeros(span)
+        for start in row_chunks(n):
+            part = order[start : start + CHUNK_ROWS]
+            h[periods[start : start + CHUNK_ROWS]] = _scores(rows, part) @ _lag_weights(rows)
+        lags = self._choose(rows, h, span)
+        weights = _bartlett(lags)
+        meat = np.zeros((k, k))
+        for start in row_chunks(n):
+            stop = min(start + CHUNK_ROWS, n)
+            first = max(0, start - lags)  # a partner is at most ``lags`` positions earlier
+            scores = _scores(rows, order[first:stop])
+            own = scores[start - first :]
+            meat += own.T @ own
+            for lag in range(1, lags + 1):
+                wanted = periods[start:stop] - lag
+                found = np.searchsorted(periods, wanted)
+                hit = found < n
+                hit[hit] = periods[found[hit]] == wanted[hit]
+                if hit.any():
+                    cross = own[hit].T @ scores[found[hit] - first]
+                    meat += weights[lag] * (cross + cross.T)
+        return meat, lags, n
+
+
 # The registry, in menu order: spec validation, the app's menu and the tables read it.
 COVARIANCE_KINDS: dict[str, CovarianceKind] = {
     kind.name: kind
@@ -146,15 +300,32 @@ COVARIANCE_KINDS: dict[str, CovarianceKind] = {
         HeteroskedasticityRobust("HC2", "Robust, HC2", "robust (HC2)", power=1.0),
         HeteroskedasticityRobust("HC3", "Robust, HC3 (cautious in small samples)", "robust (HC3)", power=2.0),
         Clustered("cluster", "Clustered by a grouping column", "clustered", needs_groups=True),
+        TimeSeriesRobust("HAC", "Time series: Newey-West (HAC)", "Newey-West (HAC)", needs_time=True),
+        TimeSeriesRobust(
+            "driscoll_kraay",
+            "Panel over time: Driscoll-Kraay",
+            "Driscoll-Kraay",
+            needs_time=True,
+            per_period=True,
+        ),
     )
 }
 
 
-def covariance(fit: OLSFit, X: np.ndarray, kind: str, groups: np.ndarray | None = None) -> tuple[np.ndarray, int]:
-    """Covariance of least-squares coefficients and the degrees of freedom for t intervals."""
+def covariance(
+    fit: OLSFit,
+    X: np.ndarray,
+    kind: str,
+    groups: np.ndarray | None = None,
+    time: np.ndarray | None = None,
+    lags: int | None = None,
+    notes: dict | None = None,
+) -> tuple[np.ndarray, int]:
+    """Covariance of least-squares coefficients and the degrees of freedom for t intervals;
+    ``time``, ``lags`` and ``notes`` as in ``Rows``."""
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid if root_w is None else fit.resid * root_w
-    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, row_scale=root_w)
+    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, row_scale=root_w, time=time, lags=lags, notes=notes)
 
 
 def sandwich(
@@ -165,13 +336,16 @@ def sandwich(
     groups: np.ndarray | None,
     scale: float,
     row_scale: np.ndarray | None = None,
+    time: np.ndarray | None = None,
+    lags: int | None = None,
+    notes: dict | None = None,
 ) -> tuple[np.ndarray, int]:
     """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
-    ``scale`` is s² for the classical type."""
+    ``scale`` is s² for the classical type; ``time``, ``lags`` and ``notes`` as in ``Rows``."""
     found = COVARIANCE_KINDS.get(kind)
     if found is None:
         raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
-    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale))
+    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale, time, lags, {} if notes is None else notes))
 
 
 def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -140,6 +140,8 @@ class Design:
     dropped: list[dict[str, Any]]
     warnings: list[str]
     reference: dict[str, Any]
+    time: np.ndarray | None = None  # period number of each used row (0 = the first used), see ``periods``
+    resample_groups: np.ndarray | None = None  # the bootstrap's cluster labels, used rows
 
 
 def _numeric(series: pd.Series, column: str) -> np.ndarray:
@@ -317,6 +319,7 @@ class _Columns:
     finite: dict[str, np.ndarray] = field(default_factory=dict)
     coded: dict[str, Coded] = field(default_factory=dict)
     groups: np.ndarray | None = None
+    resample_groups: np.ndarray | None = None
 
 
 def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Callable[..., Any]) -> _Columns:
@@ -327,10 +330,16 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         clusters = data[spec.cluster]
         found.groups = clusters.astype(str).to_numpy()
         drops.drop(clusters.isna().to_numpy(), spec.cluster, "missing value")
-    others = {spec.outcome_column, spec.weights, *(r.column for r in spec.regressors)}
+    resample = spec.bootstrap.cluster if spec.bootstrap is not None else None
+    if resample:
+        labels = data[resample]
+        found.resample_groups = found.groups if resample == spec.cluster else labels.astype(str).to_numpy()
+        if resample != spec.cluster:
+            drops.drop(labels.isna().to_numpy(), resample, "missing value")
+    others = {spec.outcome_column, spec.weights, spec.time, *(r.column for r in spec.regressors)}
     for column in spec.columns:
         series = data[column]
-        if column == spec.cluster and column not in others:
+        if column in (spec.cluster, resample) and column not in others:
             continue
         if column in categories:
             found.coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
@@ -498,12 +507,39 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
         values=values,
         weights=used(raw[spec.weights]) if spec.weights else None,
         groups=used(found.groups) if found.groups is not None else None,
+        time=periods(raw[spec.time], rows, spec.time) if spec.time else None,
+        resample_groups=used(found.resample_groups) if found.resample_groups is not None else None,
         rows=rows,
         n_total=n_total,
         dropped=drops.dropped,
         warnings=drops.warnings(spec.weights),
         reference=reference_point(spec, blocks, values, modes),
     )
+
+
+def periods(values: np.ndarray, rows: np.ndarray, column: str) -> np.ndarray:
+    """Period numbers of the used rows for the time-series covariances: (t - t₀)/d with d the
+    smallest step between distinct finite values of the whole time column (so a row dropped
+    for a missing cell or a transform leaves a gap, not a shorter step), 0 for the first used
+    period. Lags are then distances in periods (``core.model.covariance``)."""
+    distinct = np.unique(values[np.isfinite(values)])
+    if len(distinct) < 2:
+        raise DataError(
+            f"the time column '{column}' has fewer than two distinct periods; name a column that orders the rows in time."
+        )
+    step = float(np.min(np.diff(distinct)))
+    position = (values[rows] - distinct[0]) / step
+    number = np.round(position)
+    if np.max(np.abs(position - number)) > 1e-6:
+        raise DataError(
+            f"the time column '{column}' is not evenly spaced: its values are not whole multiples of its smallest step "
+            f"({step:g}). Use a period number (1, 2, 3, ...) that counts the periods."
+        )
+    number = number.astype(np.int64)
+    number -= number.min()
+    if number.max() > 100 * max(len(rows), 1_000):
+        raise DataError(f"the time column '{column}' spans far more periods than there are rows; use a period number instead.")
+    return number
 
 
 def match_level(given: Any, levels: list[str]) -> str | None:

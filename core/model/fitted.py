@@ -37,6 +37,7 @@ class Model:
     outcome: Transform
     resid: np.ndarray
     confidence: float = 0.95
+    time_series: dict[str, Any] | None = None  # lags and periods of the HAC / Driscoll-Kraay errors
 
     @property
     def kind(self) -> str:
@@ -90,8 +91,17 @@ def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, M
         fit = fit_ols(design.X, design.y, design.weights, names)  # also screens for collinearity
         if model_spec.estimator == "ppml":
             return _fit_ppml(design, model_spec, fit)
-        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups)
-    model = Model(design=design, coef=fit.coef, cov=cov, df=df, outcome=model_spec.outcome_transform, resid=fit.resid)
+        notes: dict[str, Any] = {}
+        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups, design.time, model_spec.lags, notes)
+    model = Model(
+        design=design,
+        coef=fit.coef,
+        cov=cov,
+        df=df,
+        outcome=model_spec.outcome_transform,
+        resid=fit.resid,
+        time_series=_time_series(model_spec, notes),
+    )
     return design, fit, model
 
 
@@ -100,7 +110,10 @@ def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[De
     w = design.weights if design.weights is not None else 1.0
     root_mu = np.sqrt(w * ppml.mu)
     u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
-    cov, df = sandwich(ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, row_scale=root_mu)
+    notes: dict[str, Any] = {}
+    cov, df = sandwich(
+        ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, root_mu, design.time, model_spec.lags, notes
+    )
     r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
     fit = replace(
         screen,
@@ -114,5 +127,18 @@ def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[De
         loglik=ppml.loglik,
         ssr=float("nan"),
     )
-    model = Model(design=design, coef=ppml.coef, cov=cov, df=df, outcome=Log(), resid=np.zeros(1))
+    model = Model(
+        design=design,
+        coef=ppml.coef,
+        cov=cov,
+        df=df,
+        outcome=Log(),
+        resid=np.zeros(1),
+        time_series=_time_series(model_spec, notes),
+    )
     return design, fit, model
+
+
+def _time_series(model_spec: ModelSpec, notes: dict[str, Any]) -> dict[str, Any] | None:
+    """The header's ``time_series`` (docs/contract.md §3.1): None unless HAC or Driscoll-Kraay."""
+    return {"time": model_spec.time, **notes} if notes else None

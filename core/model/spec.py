@@ -17,10 +17,28 @@ from core.errors import SpecError
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import Category, Transform, parse_transform
 
-TOP_KEYS = {"outcome", "regressors", "estimator", "covariance", "cluster", "weights", "at", "name", "predict"}
+TOP_KEYS = {
+    "outcome",
+    "regressors",
+    "estimator",
+    "covariance",
+    "cluster",
+    "weights",
+    "at",
+    "name",
+    "predict",
+    "time",
+    "lags",
+    "scenarios",
+    "bootstrap",
+}
 OUTCOME_KEYS = {"column", "transform"}
 REGRESSOR_KEYS = {"column", "transform", "change", "reference"}
 ESTIMATORS = ("ols", "ppml")
+SCENARIO_KEYS = {"name", "changes"}
+BOOTSTRAP_KEYS = {"draws", "seed", "cluster"}
+# Bounds on the bootstrap draws (BCa needs about a thousand; each draw is one small solve).
+MIN_DRAWS, MAX_DRAWS = 50, 100_000
 
 _PERCENT = re.compile(r"^([+-])\s*(\d+(?:\.\d*)?|\.\d+)\s*%$")
 _UNITS = re.compile(r"^([+-])\s*(\d+(?:\.\d*)?(?:e[+-]?\d+)?|\.\d+)$", re.IGNORECASE)
@@ -65,6 +83,23 @@ class RegressorSpec:
 
 
 @dataclass(frozen=True)
+class Scenario:
+    """Several regressor changes at once, named (docs/contract.md §2.11)."""
+
+    name: str
+    changes: tuple[tuple[str, Change], ...]
+
+
+@dataclass(frozen=True)
+class Bootstrap:
+    """A pairs bootstrap (whole groups when ``cluster`` names a column), docs/contract.md §2.12."""
+
+    draws: int = 999
+    seed: int = 0
+    cluster: str | None = None
+
+
+@dataclass(frozen=True)
 class ModelSpec:
     outcome_column: str
     outcome_transform: Transform
@@ -76,12 +111,18 @@ class ModelSpec:
     at: dict[str, Any] = field(default_factory=dict)
     name: str | None = None
     predict: tuple[dict[str, Any], ...] = ()
+    time: str | None = None
+    lags: int | None = None
+    scenarios: tuple[Scenario, ...] = ()
+    bootstrap: Bootstrap | None = None
 
     @property
     def columns(self) -> list[str]:
         """Every data column the model reads, outcome first, without repeats."""
         cols = [self.outcome_column] + [r.column for r in self.regressors]
-        cols += [c for c in (self.weights, self.cluster) if c]
+        cols += [c for c in (self.weights, self.cluster, self.time) if c]
+        if self.bootstrap is not None and self.bootstrap.cluster:
+            cols.append(self.bootstrap.cluster)
         return list(dict.fromkeys(cols))
 
 
@@ -173,8 +214,11 @@ def _parse_regressors(spec: dict, data: pd.DataFrame, outcome_column: str) -> li
     return regressors
 
 
-def _parse_estimation(spec: dict, data: pd.DataFrame, outcome_transform: Transform) -> tuple[str, str, str | None]:
-    """The estimator, the covariance kind and the cluster column it needs."""
+def _parse_estimation(
+    spec: dict, data: pd.DataFrame, outcome_transform: Transform
+) -> tuple[str, str, str | None, str | None, int | None]:
+    """The estimator, the covariance kind, the cluster column it needs, and for the time-series
+    kinds the time column and the lags (None: chosen from the data)."""
     estimator = spec.get("estimator") or "ols"
     if estimator not in ESTIMATORS:
         raise SpecError(f"spec.estimator: unknown estimator '{estimator}'; use one of: {', '.join(ESTIMATORS)}.")
@@ -202,7 +246,30 @@ def _parse_estimation(spec: dict, data: pd.DataFrame, outcome_transform: Transfo
     else:
         cluster = None
 
-    return estimator, covariance, cluster
+    time, lags = _parse_time(spec, data, covariance)
+    return estimator, covariance, cluster, time, lags
+
+
+def _parse_time(spec: dict, data: pd.DataFrame, covariance: str) -> tuple[str | None, int | None]:
+    """The time column ordering the rows and the lags, for the kinds that need them."""
+    time, lags = spec.get("time"), spec.get("lags")
+    if not COVARIANCE_KINDS[covariance].needs_time:
+        if time or lags is not None:
+            key = "time" if time else "lags"
+            raise SpecError(
+                f"spec.{key}: '{key}' applies to the time-series covariances only "
+                f"({', '.join(k for k, v in COVARIANCE_KINDS.items() if v.needs_time)}); set one of those or remove it."
+            )
+        return None, None
+    if not time:
+        raise SpecError(f"spec.time: covariance '{covariance}' needs 'time' naming the column that orders the rows in time.")
+    time = _require_column(time, data, "spec.time")
+    if lags is not None:
+        integral = isinstance(lags, int) or (isinstance(lags, float) and math.isfinite(lags) and lags == int(lags))
+        if isinstance(lags, bool) or not integral or lags < 0 or lags > 10_000:
+            raise SpecError("spec.lags: must be a whole number of periods from 0 to 10000, or null to choose it from the data.")
+        lags = int(lags)
+    return time, lags
 
 
 def _parse_points(spec: dict, regressors: list[RegressorSpec]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
@@ -246,7 +313,7 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
     outcome_transform = parse_transform(outcome.get("transform", "level"), "outcome", "spec.outcome")
 
     regressors = _parse_regressors(spec, data, outcome_column)
-    estimator, covariance, cluster = _parse_estimation(spec, data, outcome_transform)
+    estimator, covariance, cluster, time, lags = _parse_estimation(spec, data, outcome_transform)
     weights = spec.get("weights")
     if weights:
         weights = _require_column(weights, data, "spec.weights")
@@ -269,4 +336,65 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         at=dict(at),
         name=name,
         predict=tuple(dict(p) for p in predict),
+        time=time,
+        lags=lags,
+        scenarios=_parse_scenarios(spec, regressors),
+        bootstrap=_parse_bootstrap(spec, data, estimator),
     )
+
+
+def _parse_scenarios(spec: dict, regressors: list[RegressorSpec]) -> tuple[Scenario, ...]:
+    """Named sets of changes, each naming regressors of the model (docs/contract.md §2.11)."""
+    entries = spec.get("scenarios") or []
+    if not isinstance(entries, list):
+        raise SpecError('spec.scenarios: must be a list like [{"name": "price up", "changes": {"drink_price": "+10%"}}].')
+    by_column = {r.column: r for r in regressors}
+    out: list[Scenario] = []
+    for i, entry in enumerate(entries):
+        where = f"spec.scenarios[{i}]"
+        if not isinstance(entry, dict):
+            raise SpecError(f'{where}: must be an object like {{"name": "price up", "changes": {{"drink_price": "+10%"}}}}.')
+        _check_keys(entry, SCENARIO_KEYS, where)
+        name = entry.get("name")
+        if not isinstance(name, str) or not name.strip():
+            raise SpecError(f"{where}: 'name' must be a non-empty text naming the scenario.")
+        if name.strip() in {s.name for s in out}:
+            raise SpecError(f"{where}: the name '{name.strip()}' is used by another scenario; give each its own name.")
+        changes = entry.get("changes")
+        if not isinstance(changes, dict) or not changes:
+            raise SpecError(f'{where}.changes: must name at least one regressor and its change, e.g. {{"promo": "0->1"}}.')
+        parsed = []
+        for column, text in changes.items():
+            if column not in by_column:
+                raise SpecError(f"{where}.changes: '{column}' is not a regressor of this model; remove it or add the regressor.")
+            change = parse_change(text, f"{where}.changes.{column}")
+            if isinstance(by_column[column].transform, Category) and change.kind != "switch":
+                raise SpecError(f"{where}.changes.{column}: a category changes from one level to another, e.g. 'Coast->Inland'.")
+            parsed.append((column, change))
+        out.append(Scenario(name.strip(), tuple(parsed)))
+    return tuple(out)
+
+
+def _whole(value: object, low: int, high: int) -> bool:
+    return not isinstance(value, bool) and isinstance(value, int) and low <= value <= high
+
+
+def _parse_bootstrap(spec: dict, data: pd.DataFrame, estimator: str) -> Bootstrap | None:
+    """Draws, seed and the resampling groups of the bootstrap (docs/contract.md §2.12)."""
+    entry = spec.get("bootstrap")
+    if entry is None:
+        return None
+    if not isinstance(entry, dict):
+        raise SpecError('spec.bootstrap: must be an object like {"draws": 999, "seed": 1, "cluster": null}.')
+    _check_keys(entry, BOOTSTRAP_KEYS, "spec.bootstrap")
+    if estimator == "ppml":
+        raise SpecError("spec.bootstrap: the bootstrap refits least squares; it is not available with estimator 'ppml'.")
+    draws = entry.get("draws", 999)
+    if not _whole(draws, MIN_DRAWS, MAX_DRAWS):
+        raise SpecError(f"spec.bootstrap.draws: must be a whole number from {MIN_DRAWS} to {MAX_DRAWS:,} (999 is usual).")
+    seed = entry.get("seed", 0)
+    if not _whole(seed, 0, 2**63 - 1):
+        raise SpecError("spec.bootstrap.seed: must be a whole number of zero or more; the same seed gives the same draws.")
+    cluster = entry.get("cluster")
+    cluster = _require_column(cluster, data, "spec.bootstrap.cluster") if cluster else None
+    return Bootstrap(draws, seed, cluster)
