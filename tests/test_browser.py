@@ -111,6 +111,26 @@ def test_changing_a_transform_in_the_grid_changes_the_coefficients(page) -> None
     assert page.problems == []
 
 
+def test_undo_and_redo_a_transform_edit(page) -> None:
+    """A transform edited in the grid, then Undo (the button) and Redo (Ctrl+Shift+Z): the
+    coefficient table returns to the log model and back."""
+    _set_grid_cell(page, row=1, column=3, text="level")  # drink_price's transform
+    _wait_for_rerun(page)
+    page.wait_for_function("() => !document.body.innerText.includes('log of drink_price')", timeout=120_000)
+    page.get_by_role("button", name="Undo").click()
+    _wait_for_rerun(page)
+    page.wait_for_function("() => document.body.innerText.includes('log of drink_price')", timeout=120_000)
+    page.get_by_role("button", name="Redo").click()
+    _wait_for_rerun(page)
+    page.wait_for_function("() => !document.body.innerText.includes('log of drink_price')", timeout=120_000)
+    page.get_by_text("Try a transform per variable").first.click()  # the shortcut acts outside the grid
+    page.keyboard.press("Control+Z")
+    _wait_for_rerun(page)
+    page.wait_for_function("() => document.body.innerText.includes('log of drink_price')", timeout=120_000)
+    _no_error_text(page)
+    assert page.problems == []
+
+
 def test_upload_through_the_file_chooser(page, tmp_path: Path) -> None:
     data = tmp_path / "shop_sales.csv"
     lines = ["units,price,shelf_days"] + [f"{50 + 3 * i % 17},{2 + (i % 7) * 0.25},{i % 11 + 1}" for i in range(60)]
