@@ -719,21 +719,15 @@ def _too_few(table: _Table, outcome: str | None = None) -> str:
 
 
 # --- regressors, on the rows the model uses -------------------------------------------------------
+Removal = tuple[str, str, str]  # (column, note text, note about)
+
+
 def _fit_or_trim(table: _Table, spec: dict[str, Any], pool: list[str], quadratic: set[str]) -> dict[str, Any]:
     """The regressors from ``pool`` (file order, at most ``MAX_REGRESSORS``) that the model can
     use on its rows, with changes and references, and a fit by ``analyze`` that succeeds."""
-    data = table.data
     outcome = spec["outcome"]["column"]
     order = {c: i for i, c in enumerate(table.names)}
     removed: set[str] = set()
-
-    def transform_of(column: str) -> str:
-        return "quadratic" if column in quadratic else str(table.entries[column]["suggested_transform"])
-
-    def remove(column: str, text: str, about: str = "left_out") -> None:
-        removed.add(column)
-        table.note(column, about, text)
-
     for _ in range(2 * len(pool) + 5):
         # A column whose square the file carries was modelled as a quadratic by whoever made the
         # file: it takes a place first; the rest go in file order.
@@ -741,91 +735,109 @@ def _fit_or_trim(table: _Table, spec: dict[str, Any], pool: list[str], quadratic
         first = set(sorted(kept, key=lambda c: (c not in quadratic, order[c]))[:MAX_REGRESSORS])
         active = [c for c in kept if c in first]
         if not active:
-            raise DataError(_too_few(table, outcome))
-        y = table.values[outcome]
-        y_rows = np.isfinite(y) & ((y > 0) if spec["outcome"]["transform"] == "log" else True)
-        n_y = int(y_rows.sum())
-        present = {c: data[c].notna().to_numpy() if c not in table.values else np.isfinite(table.values[c]) for c in active}
-        sparse = [c for c in active if present[c][y_rows].mean() < MIN_PRESENT]
-        for column in sparse:
-            share = float(present[column][y_rows].mean())
-            remove(
-                column,
-                f"'{column}' left out: it has a value in only {share:.0%} of the rows where '{outcome}' has one; "
-                "using it would drop the others.",
-            )
-        if sparse:
-            continue
-        complete = y_rows & np.logical_and.reduce([present[c] for c in active])
-        if complete.sum() < MIN_PRESENT * n_y:
-            worst = max(active, key=lambda c: (int((~present[c] & y_rows).sum()), order[c]))
-            missing = int((~present[worst] & y_rows).sum())
-            remove(
-                worst,
-                f"'{worst}' left out: rows with a missing cell would leave only {int(complete.sum()):,} of the {n_y:,} rows "
-                f"where '{outcome}' has a value; '{worst}' is missing in {missing:,} of them, more than any other regressor.",
-            )
-            continue
-        constant = [c for c in active if _levels(table, c, complete) < 2]
-        for column in constant:
-            remove(
-                column,
-                f"'{column}' left out: it has the same value{_value(table, column, complete)} in every row the model uses "
-                "(rows with a missing cell in the model's columns left out), so it cannot explain anything there.",
-            )
-        if constant:
-            continue
-        trial = dict(spec, regressors=[{"column": c, "transform": transform_of(c)} for c in active])
-        try:
-            design = build_design(data, parse_spec(trial, data))
-        except FormwiseError as exc:
-            column = _offender(str(exc), active, order, table) or active[-1]
-            remove(column, f"'{column}' removed from the starting model: {exc}", "removed")
-            continue
-        dependent = _dependent(design, order)
-        if dependent:
-            remove(*dependent)
-            continue
-        n, k = design.X.shape
-        if n - k < MIN_DF:
-            widest = max(design.encoder.blocks, key=lambda b: (b.stop - b.start, order[b.spec.column]))
-            column = widest.spec.column if widest.stop - widest.start > 1 else active[-1]
-            remove(column, f"'{column}' left out: the model would have {k} coefficients for {n} rows, too few to estimate them.")
-            continue
-        full = dict(spec, regressors=_entries(table, design))
-        try:
-            fit = analyze(data, full, parts={"terms", "fit"})["fit"]
-        except FormwiseError as exc:
-            if full["estimator"] == "ppml" and "PPML" in str(exc):
-                fallback = "ihs" if table.entries[outcome].get("suggested_transform") == "ihs" else "level"
-                spec = dict(spec, estimator="ols", outcome={"column": outcome, "transform": fallback})
-                table.note(
-                    outcome,
-                    "estimator",
-                    f"PPML could not be fitted ({exc}); the model uses least squares with '{outcome}' in {fallback} instead.",
-                )
-                continue
-            column = _offender(str(exc), active, order, table) or active[-1]
-            remove(column, f"'{column}' removed from the starting model: {exc}", "removed")
-            continue
-        if full["estimator"] == "ols" and (fit.get("r2") or 0.0) > 1.0 - EXACT_FIT:
-            column = active[-1]
-            remove(
-                column,
-                f"'{column}' left out: with it the regressors reproduce '{outcome}' exactly (R² = 1 to rounding), so the "
-                "outcome is a function of them rather than something they explain.",
-            )
-            continue
-        rest = [c for c in pool if c not in removed and c not in active]
-        if rest:
-            shown = ", ".join(f"'{c}'" for c in rest[:8]) + (", ..." if len(rest) > 8 else "")
-            table.note(
-                None,
-                "limit",
-                f"a first model takes at most {MAX_REGRESSORS} regressors; also usable: {shown}; add them in the grid.",
-            )
-        return full
-    raise DataError(_too_few(table, outcome))  # not reached: every pass removes a regressor or returns
+            break
+        problems = _row_problems(table, spec, active, order)
+        if not problems:
+            spec, full, problems = _fit_problems(table, spec, active, quadratic, order)
+            if full is not None:
+                rest = [c for c in kept if c not in first]
+                if rest:
+                    shown = ", ".join(f"'{c}'" for c in rest[:8]) + (", ..." if len(rest) > 8 else "")
+                    text = f"a first model takes at most {MAX_REGRESSORS} regressors; also usable: {shown}; add them in the grid."
+                    table.note(None, "limit", text)
+                return full
+        for column, text, about in problems:
+            removed.add(column)
+            table.note(column, about, text)
+    raise DataError(_too_few(table, outcome))
+
+
+def _row_problems(table: _Table, spec: dict[str, Any], active: list[str], order: dict[str, int]) -> list[Removal]:
+    """Regressors to leave out for the rows the model would use: those missing in most of the
+    outcome's rows, the one missing most when together they leave too few, constants there."""
+    data, outcome = table.data, spec["outcome"]["column"]
+    y = table.values[outcome]
+    y_rows = np.isfinite(y) & ((y > 0) if spec["outcome"]["transform"] == "log" else True)
+    n_y = int(y_rows.sum())
+    present = {c: data[c].notna().to_numpy() if c not in table.values else np.isfinite(table.values[c]) for c in active}
+    sparse = [
+        (
+            c,
+            f"'{c}' left out: it has a value in only {float(present[c][y_rows].mean()):.0%} of the rows where '{outcome}' "
+            "has one; using it would drop the others.",
+            "left_out",
+        )
+        for c in active
+        if present[c][y_rows].mean() < MIN_PRESENT
+    ]
+    if sparse:
+        return sparse
+    complete = y_rows & np.logical_and.reduce([present[c] for c in active])
+    if complete.sum() < MIN_PRESENT * n_y:
+        worst = max(active, key=lambda c: (int((~present[c] & y_rows).sum()), order[c]))
+        missing = int((~present[worst] & y_rows).sum())
+        text = (
+            f"'{worst}' left out: rows with a missing cell would leave only {int(complete.sum()):,} of the {n_y:,} rows "
+            f"where '{outcome}' has a value; '{worst}' is missing in {missing:,} of them, more than any other regressor."
+        )
+        return [(worst, text, "left_out")]
+    return [
+        (
+            c,
+            f"'{c}' left out: it has the same value{_value(table, c, complete)} in every row the model uses "
+            "(rows with a missing cell in the model's columns left out), so it cannot explain anything there.",
+            "left_out",
+        )
+        for c in active
+        if _levels(table, c, complete) < 2
+    ]
+
+
+def _fit_problems(
+    table: _Table, spec: dict[str, Any], active: list[str], quadratic: set[str], order: dict[str, int]
+) -> tuple[dict[str, Any], dict[str, Any] | None, list[Removal]]:
+    """Build the design and fit it: ``(spec, full spec, [])`` when the fit succeeds, else the
+    regressor to remove, or (PPML failing) the spec switched to least squares and no removal."""
+    data, outcome = table.data, spec["outcome"]["column"]
+
+    def transform_of(column: str) -> str:
+        return "quadratic" if column in quadratic else str(table.entries[column]["suggested_transform"])
+
+    def named(exc: FormwiseError) -> list[Removal]:
+        column = _offender(str(exc), active, order, table) or active[-1]
+        return [(column, f"'{column}' removed from the starting model: {exc}", "removed")]
+
+    trial = dict(spec, regressors=[{"column": c, "transform": transform_of(c)} for c in active])
+    try:
+        design = build_design(data, parse_spec(trial, data))
+    except FormwiseError as exc:
+        return spec, None, named(exc)
+    dependent = _dependent(design, order)
+    if dependent:
+        return spec, None, [(*dependent, "left_out")]
+    n, k = design.X.shape
+    if n - k < MIN_DF:
+        widest = max(design.encoder.blocks, key=lambda b: (b.stop - b.start, order[b.spec.column]))
+        column = widest.spec.column if widest.stop - widest.start > 1 else active[-1]
+        text = f"'{column}' left out: the model would have {k} coefficients for {n} rows, too few to estimate them."
+        return spec, None, [(column, text, "left_out")]
+    full = dict(spec, regressors=_entries(table, design))
+    try:
+        fit = analyze(data, full, parts={"terms", "fit"})["fit"]
+    except FormwiseError as exc:
+        if full["estimator"] == "ppml" and "PPML" in str(exc):
+            fallback = "ihs" if table.entries[outcome].get("suggested_transform") == "ihs" else "level"
+            text = f"PPML could not be fitted ({exc}); the model uses least squares with '{outcome}' in {fallback} instead."
+            table.note(outcome, "estimator", text)
+            return dict(spec, estimator="ols", outcome={"column": outcome, "transform": fallback}), None, []
+        return spec, None, named(exc)
+    if full["estimator"] == "ols" and (fit.get("r2") or 0.0) > 1.0 - EXACT_FIT:
+        text = (
+            f"'{active[-1]}' left out: with it the regressors reproduce '{outcome}' exactly (R² = 1 to rounding), so the "
+            "outcome is a function of them rather than something they explain."
+        )
+        return spec, None, [(active[-1], text, "left_out")]
+    return spec, full, []
 
 
 def _levels(table: _Table, column: str, rows: np.ndarray) -> int:
