@@ -508,8 +508,9 @@ _CELL_TAG = re.compile(rb"<" + _PREFIX + rb"c[\s/>]")
 _ROW_TAG = re.compile(rb"<" + _PREFIX + rb"row[\s/>]")
 _SST_ITEM = re.compile(rb"<" + _PREFIX + rb"si[\s/>]")
 _DIMENSION = re.compile(rb"<" + _PREFIX + rb'dimension\b[^>]*?\bref\s*=\s*["\']([^"\']*)["\']')
-# A row number of seven digits or more in an r attribute (rows and cells): checked against the limit.
-_BIG_ROW_NUMBER = re.compile(rb"\br\s*=\s*[\"']\+?0*([1-9][0-9]{6,18})[\"'.eE]")
+# A row number of seven digits or more (r="..." is a row's number; a cell's starts with letters).
+# Literal first, so the search skips ahead fast; other spellings are left to the parse's guards.
+_BIG_ROW_NUMBER = re.compile(rb'r="\+?0*([1-9][0-9]{6,18})')
 _SHEET_DATA = re.compile(rb"<" + _PREFIX + rb"sheetData[\s/>]")
 _CELL_REF = re.compile(r"\$?([A-Za-z]{1,7})\$?([0-9]{1,12})")
 _SHARED_STRINGS_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"
@@ -592,8 +593,12 @@ def _tally(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[tuple[in
     tags = rows = cells = top = 0
     for chunk in _chunks(package, info):
         tags += chunk.count(b"<")
-        rows += len(_ROW_TAG.findall(chunk))
-        cells += len(_CELL_TAG.findall(chunk))
+        if b":c" in chunk or b":row" in chunk:  # perhaps prefixed tags (<x:c>): the slower regexes
+            rows += len(_ROW_TAG.findall(chunk))
+            cells += len(_CELL_TAG.findall(chunk))
+        else:
+            rows += chunk.count(b"<row ") + chunk.count(b"<row>") + chunk.count(b"<row/")
+            cells += chunk.count(b"<c ") + chunk.count(b"<c>") + chunk.count(b"<c/")
         top = max([top, *(int(n) for n in _BIG_ROW_NUMBER.findall(chunk))])
         yield tags, rows, cells, top
 
@@ -601,12 +606,14 @@ def _tally(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[tuple[in
 def _check_counts(where: str, counts: Iterator[tuple[int, int, int, int]], stop_tags: int | None = None) -> int:
     """Refuse a worksheet part whose running counts pass the worksheet's limits or the cell budget;
     returns the tags counted (stopping early once well past ``stop_tags``). Counting goes on past
-    the budgets, up to twice, so that a sheet of too many one-cell rows is named for its rows."""
+    the cell budget for a sheet of many short rows, so that it is named for its rows."""
     tags = cells = 0
     for tags, rows, cells, top in counts:
         if rows > XLSX_ROWS or top > XLSX_ROWS:
             raise _too_many_rows(where)
-        if cells > 2 * XLSX_MAX_CELLS or (stop_tags is not None and tags > max(stop_tags, 0) + XLSX_MAX_OPEN_TAGS):
+        if cells > XLSX_MAX_CELLS and (rows < XLSX_ROWS // 2 or cells > 2 * XLSX_MAX_CELLS):
+            break  # over the cell budget, and not a sheet of so many rows that they pass the limit first
+        if stop_tags is not None and tags > max(stop_tags, 0) + XLSX_MAX_OPEN_TAGS:
             break
     if cells > XLSX_MAX_CELLS:
         raise DataError(
