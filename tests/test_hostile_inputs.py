@@ -314,6 +314,21 @@ def test_a_utf16_sheet_reads_and_is_counted_like_a_utf8_one(tmp_path: Path) -> N
     )
 
 
+def _prefixed(rows: Iterable[bytes]) -> Iterator[bytes]:
+    """A worksheet whose tags carry a namespace prefix (<x:row>, <x:c>), as some writers emit."""
+    yield f'<?xml version="1.0" encoding="UTF-8"?><x:worksheet xmlns:x="{MAIN}"><x:sheetData>'.encode()
+    yield from rows
+    yield b"</x:sheetData></x:worksheet>"
+
+
+def test_a_sheet_with_prefixed_tags_reads_and_is_counted(tmp_path: Path) -> None:
+    small = [b'<x:row r="1"><x:c r="A1" t="inlineStr"><x:is><x:t>y</x:t></x:is></x:c></x:row>']
+    small += [f'<x:row r="{i}"><x:c r="A{i}"><x:v>{i}</x:v></x:c></x:row>'.encode() for i in range(2, 6)]
+    assert read_file(tmp_path, workbook({"Data": _prefixed(small)}), "prefixed.xlsx")["y"].tolist() == [2, 3, 4, 5]
+    big = _prefixed(repeated(b"<x:row><x:c><x:v>1</x:v></x:c></x:row>", 1_100_000))
+    refused(tmp_path, workbook({"Data": big}), "prefixed.xlsx", "more rows than a worksheet can hold")
+
+
 def test_too_many_parts_are_refused(tmp_path: Path) -> None:
     extra = {f"xl/media/p{i}.bin": b"" for i in range(reader.XLSX_MAX_MEMBERS + 1)}
     refused(tmp_path, workbook({"Data": sheet(table_rows(3), "A1:B4")}, extra=extra), "parts.xlsx", "parts")
