@@ -79,7 +79,7 @@ _EVENT_STEMS = (
 # Traits of people that are usually regressors, not outcomes: schooling and age, also of a mother,
 # father or husband ('meduc', 'fatheduc', 'husage', 'age75').
 _TRAIT = re.compile(r"^(m|f|mom|dad|moth|mother|fath|father|hus|wife|sp)?(educ|age)\d*$")
-_NOT_BY_DEFAULT = {"time_index": "a time index", "calendar_year": "calendar years", "constant": "constant", "empty": "empty"}
+_NOT_BY_DEFAULT = {"time_index", "calendar_year", "constant", "empty"}  # flags of columns left out
 _OUTCOME_NAMES = {1: "money amount", 2: "count or measurement", 3: "numeric column", 4: "0/1 column"}
 
 
@@ -404,8 +404,7 @@ def _usable(table: _Table) -> list[str]:
         if e.get("suggested_transform") is None:
             table.note(column, "left_out", f"'{column}' left out: {reason}.")
             continue
-        blocked = [word for flag, word in _NOT_BY_DEFAULT.items() if flag in flags]
-        if blocked:
+        if flags & _NOT_BY_DEFAULT:
             table.note(column, "left_out", f"'{column}' left out: {reason}.")
             continue
         if e.get("suggested_transform") == "category":
@@ -671,7 +670,9 @@ def _outcome_spec(table: _Table, outcome: str, tier: int) -> dict[str, Any]:
         estimator = "ppml"
     reason = (e.get("reasons") or [""])[0]
     how = {"log": "in logs", "level": "in levels"}[transform]
-    table.note(outcome, "outcome", f"'{outcome}' is the outcome: {why}; {how} — {reason}.")
+    missing = int(e.get("n_missing") or 0)
+    gaps = f" It is missing in {missing:,} rows, which the model leaves out." if missing else ""
+    table.note(outcome, "outcome", f"'{outcome}' is the outcome: {why}; {how} — {reason}.{gaps}")
     if estimator == "ppml":
         zeros = int(e.get("n_zero") or 0)
         share = zeros / max(1, len(y))
