@@ -17,6 +17,7 @@ from core.inference.diagnostics import diagnostics
 from core.inference.effects import compute_effects, gap_curve
 from core.inference.residuals import residual_sample, variable_distributions
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
+from core.inference.scenarios import compute_scenarios
 from core.inference.units import needs_units_check, units_check
 from core.model.design import ColumnCache, Design
 from core.model.fitted import Model, fit_model
@@ -38,6 +39,7 @@ ALL_PARTS = frozenset(
         "boxcox",
         "retransform",
         "predictions",
+        "scenarios",
         "residuals",
         "distributions",
     }
@@ -183,6 +185,12 @@ def _units_section(run: _Run) -> dict[str, Any]:
     return {"units_check": checks}
 
 
+def _scenarios_section(run: _Run) -> dict[str, Any]:
+    scenarios, warnings = compute_scenarios(run.model, run.model_spec.scenarios)
+    run.warnings.extend(warnings)
+    return {"scenarios": scenarios}
+
+
 def _predictions_section(run: _Run) -> dict[str, Any]:
     points = run.model_spec.predict
     return {"predictions": predict(run.model, points, 0.0 if run.ppml else run.fit.sigma) if points else []}
@@ -205,6 +213,7 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     ),
     (frozenset({"predictions"}), _predictions_section),
     (frozenset({"effects"}), _effects_section),
+    (frozenset({"scenarios"}), _scenarios_section),
     (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curve)}),
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
     (frozenset({"units_check"}), _units_section),

@@ -70,14 +70,24 @@ def effect_arrays(
     X0 = model.encode(point0, m)
     X1 = model.encode(point1, m)
     b = model.coef
-    c = X1 - X0
-    eta0, eta1 = X0 @ b, X1 @ b
-    delta = eta1 - eta0
     if block.is_category or block.binary:
-        first_order = delta
+        first_order = X1 @ b - X0 @ b  # the index change itself, as outcome_change computes it
     else:
         cols, d_basis = model.design.encoder.basis_derivative(column, np.asarray(x0, dtype=float))
         first_order = (d_basis @ b[cols]) * (np.asarray(x1, dtype=float) - np.asarray(x0, dtype=float))
+    return outcome_change(model, X0, X1, first_order, resid)
+
+
+def outcome_change(
+    model: Model, X0: np.ndarray, X1: np.ndarray, first_order: np.ndarray, resid: np.ndarray | None = None
+) -> EffectArrays:
+    """The exact and approximate effect on y of moving the design rows from X0 to X1 (any number
+    of regressors at once), given the first-order index change ``first_order``: the outcome
+    transform maps Δη to y as the module docstring says."""
+    b = model.coef
+    c = X1 - X0
+    eta0, eta1 = X0 @ b, X1 @ b
+    delta = eta1 - eta0
     if model.kind == "level":
         return EffectArrays(delta, first_order, delta, c, c)
     if model.kind == "log":
@@ -180,7 +190,7 @@ def _one_effect(
     exact = float(arrays.exact[0])
     approximate = float(arrays.approximate[0])
     var_delta = float(arrays.c[0] @ model.cov @ arrays.c[0])
-    low, high, method = _interval(model, arrays, exact)
+    low, high, method = exact_interval(model, arrays, exact)
     adjusted = None
     if (
         model.kind == "log"
@@ -207,7 +217,7 @@ def _one_effect(
     return entry
 
 
-def _interval(model: Model, arrays: EffectArrays, exact: float) -> tuple[float, float, str]:
+def exact_interval(model: Model, arrays: EffectArrays, exact: float) -> tuple[float, float, str]:
     """The exact effect's interval and how it was found: the t interval of the index change
     carried through the monotone map for level and log outcomes, the delta method otherwise."""
     c = arrays.c[0]
