@@ -510,7 +510,8 @@ _SST_ITEM = re.compile(rb"<" + _PREFIX + rb"si[\s/>]")
 _DIMENSION = re.compile(rb"<" + _PREFIX + rb'dimension\b[^>]*?\bref\s*=\s*["\']([^"\']*)["\']')
 # A row number of seven digits or more (r="..." is a row's number; a cell's starts with letters).
 # Literal first, so the search skips ahead fast; other spellings are left to the parse's guards.
-_BIG_ROW_NUMBER = re.compile(rb'r="\+?0*([1-9][0-9]{6,18})')
+_BIG_ROW_NUMBER = re.compile(rb' r="\+?0*([1-9][0-9]{6,18})')
+_WORKSHEET = re.compile(rb"<" + _PREFIX + rb"worksheet[\s>]")
 _SHEET_DATA = re.compile(rb"<" + _PREFIX + rb"sheetData[\s/>]")
 _CELL_REF = re.compile(r"\$?([A-Za-z]{1,7})\$?([0-9]{1,12})")
 _SHARED_STRINGS_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sharedStrings+xml"
@@ -603,13 +604,18 @@ def _tally(package: zipfile.ZipFile, info: zipfile.ZipInfo) -> Iterator[tuple[in
         yield tags, rows, cells, top
 
 
-def _check_counts(where: str, counts: Iterator[tuple[int, int, int, int]], stop_tags: int | None = None) -> int:
+def _check_counts(
+    where: str, counts: Iterator[tuple[int, int, int, int]], stop_tags: int | None = None, sheet: bool = True
+) -> int:
     """Refuse a worksheet part whose running counts pass the worksheet's limits or the cell budget;
     returns the tags counted (stopping early once well past ``stop_tags``). Counting goes on past
-    the cell budget for a sheet of many short rows, so that it is named for its rows."""
+    the cell budget for a sheet of many short rows, so that it is named for its rows. A part that
+    is not a worksheet (``sheet`` False: a theme, the shared strings) is judged on its tags only."""
     tags = cells = 0
     for tags, rows, cells, top in counts:
-        if rows > XLSX_ROWS or top > XLSX_ROWS:
+        if not sheet:
+            cells = 0
+        elif rows > XLSX_ROWS or top > XLSX_ROWS:
             raise _too_many_rows(where)
         if cells > XLSX_MAX_CELLS and (rows < XLSX_ROWS // 2 or cells > 2 * XLSX_MAX_CELLS):
             break  # over the cell budget, and not a sheet of so many rows that they pass the limit first
@@ -691,7 +697,8 @@ def _check_package(raw: bytes, name: str) -> dict[str, bytes | None]:
                 if dimension is None:
                     # openpyxl parses this part through when the workbook opens (to find its size).
                     where = f"a sheet of '{name}' ({info.filename})"
-                    open_tags += _check_counts(where, _tally(package, info), XLSX_MAX_OPEN_TAGS - open_tags)
+                    sheet = _WORKSHEET.search(head) is not None
+                    open_tags += _check_counts(where, _tally(package, info), XLSX_MAX_OPEN_TAGS - open_tags, sheet)
                     if open_tags > XLSX_MAX_OPEN_TAGS:
                         raise _too_big(
                             name,
