@@ -329,6 +329,14 @@ def test_a_sheet_with_prefixed_tags_reads_and_is_counted(tmp_path: Path) -> None
     refused(tmp_path, workbook({"Data": big}), "prefixed.xlsx", "more rows than a worksheet can hold")
 
 
+def test_large_numbers_in_parts_that_are_not_sheets_are_not_row_numbers(tmp_path: Path) -> None:
+    # A theme's DrawingML holds dir="5400000" and r="..." percentages; neither is a row.
+    theme = b'<a:theme xmlns:a="http://schemas.openxmlformats.org/drawingml/2006/main"><a:lin ang="5400000" dir="5400000"/>'
+    theme += b'<a:fillToRect l="50000" r="5000000"/></a:theme>'
+    raw = workbook({"Data": sheet(table_rows(3), "A1:B4")}, extra={"xl/theme/theme1.xml": theme})
+    assert read_file(tmp_path, raw, "theme.xlsx").shape == (3, 2)
+
+
 def test_too_many_parts_are_refused(tmp_path: Path) -> None:
     extra = {f"xl/media/p{i}.bin": b"" for i in range(reader.XLSX_MAX_MEMBERS + 1)}
     refused(tmp_path, workbook({"Data": sheet(table_rows(3), "A1:B4")}, extra=extra), "parts.xlsx", "parts")
