@@ -18,6 +18,7 @@ from core.inference.effects import compute_effects, gap_curve
 from core.inference.residuals import residual_sample, variable_distributions
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
 from core.inference.scenarios import compute_scenarios
+from core.inference.sweep import sweep_section
 from core.inference.units import needs_units_check, units_check
 from core.model.design import ColumnCache, Design
 from core.model.fitted import Model, fit_model
@@ -42,11 +43,12 @@ ALL_PARTS = frozenset(
         "scenarios",
         "residuals",
         "distributions",
+        "sweep",
     }
 )
 # The display samples (residual points, histograms of the variables) are for the app's charts
 # and are computed only when asked for by name.
-DEFAULT_PARTS = ALL_PARTS - {"residuals", "distributions"}
+DEFAULT_PARTS = ALL_PARTS - {"residuals", "distributions", "sweep"}
 
 CAUTIONS = [
     "Effects are associations in this data with the other regressors held fixed; they are not causal effects by themselves.",
@@ -87,7 +89,9 @@ def analyze(
     """
     if not isinstance(data, pd.DataFrame):
         raise DataError("the data must be a table (a pandas DataFrame).")
-    wanted = DEFAULT_PARTS if parts is None else frozenset(parts)
+    # The sweep (many models) only when the spec asks for one or its part is named.
+    asked = {"sweep"} if isinstance(spec, dict) and "sweep" in spec else set()
+    wanted = DEFAULT_PARTS | asked if parts is None else frozenset(parts)
     unknown = wanted - ALL_PARTS
     if unknown:
         raise FormwiseError(f"unknown result part(s): {', '.join(sorted(unknown))}; use some of {', '.join(sorted(ALL_PARTS))}.")
@@ -105,6 +109,7 @@ def analyze(
         "reference_point": design.reference,
         "time_series": model.time_series,
     }
+    run.warnings.extend(fit.warnings)
     run.warnings.extend(_time_series_warnings(model.time_series, model_spec.covariance))
     if small_sample(fit.n, fit.k):
         run.warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
@@ -217,6 +222,7 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curve)}),
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
     (frozenset({"units_check"}), _units_section),
+    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec)}),
 ]
 
 

@@ -100,8 +100,10 @@ def _orthonormal_basis(X: np.ndarray, root: np.ndarray | None) -> np.ndarray:
     communication-avoiding algorithm for computing a tall-skinny QR factorization", ScalA):
     Q₁ = Z·R₁⁻¹ with R₁'R₁ = Z'Z, then once more on Q₁, which leaves Q orthonormal to rounding
     error for any Z with condition number below about 1e7. Z is sqrt(w)·[1, x - x̄], the same
-    span as the design with the columns shifted by their means (better conditioned); the fit has
-    already refused designs nearer to collinear. Householder QR stands in if Q is not orthonormal.
+    span as the design with the columns shifted by their means (better conditioned). The fit
+    refuses only designs collinear up to rounding (``core.model.ols.RANK_TOLERANCE``) and fits
+    ill-conditioned ones, so Z may be beyond that bound: then Householder QR stands in (as it
+    does whenever Q is not orthonormal).
     """
     n, k = X.shape
     Q = np.empty((n, k), order="F")

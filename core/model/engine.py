@@ -319,3 +319,14 @@ def residual_pass(
         grad += g
         ssr += s
     return grad, ssr
+
+
+def map_blocks(shift: Shift, one: Callable[[np.ndarray, int, int], T]) -> list[T]:
+    """``one(block, start, stop)`` on every row block of the shifted design B (see ``Shift.fill``),
+    on the passes' threads; the results in block order (for passes of other modules, such as the
+    sweep's one pass over all its models)."""
+
+    def filled(buffer: np.ndarray, start: int, stop: int) -> T:
+        return one(shift.fill(buffer, start, stop), start, stop)
+
+    return _run(shift.n, shift.buffer, filled)

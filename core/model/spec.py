@@ -31,6 +31,7 @@ TOP_KEYS = {
     "lags",
     "scenarios",
     "bootstrap",
+    "sweep",  # validated by core.inference.sweep (docs/contract.md §2.13)
 }
 OUTCOME_KEYS = {"column", "transform"}
 REGRESSOR_KEYS = {"column", "transform", "change", "reference"}

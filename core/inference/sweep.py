@@ -1,0 +1,491 @@
+"""Every functional form at once: the sweep of docs/contract.md §2.13 and §3.16.
+
+A sweep fits every combination of candidate transforms (outcome and regressors) on one set of
+rows, the rows every candidate can take, and states each model's focus effect on one common
+scale (percent change of the expected outcome at the reference point) beside its
+original-scale fit measures. The work is one system, not a loop of fits (the multiverse or
+specification-curve idea: Simonsohn, Simmons & Nelson 2020, Nature Human Behaviour 4; Steegen,
+Tuerlinckx, Gelman & Vanpaemel 2016, Perspectives on Psychological Science 11):
+
+1. The columns of every candidate of every variable (each regressor's basis columns, each
+   candidate outcome's g(y)) form one wide table S; one pass of the fit engine
+   (``core.model.engine.gram_pass``, shifted and weighted blocks) accumulates its Gram matrix.
+2. A model is a set of columns of S and one outcome column: its normal equations are a
+   sub-block of that Gram matrix, solved by the same Cholesky factor as ``core.model.ols``
+   (coefficients, SSR, condition number), so log-likelihood, AIC and BIC on the original scale
+   (with the outcome's Jacobian, ``core.inference.retransform.fit_on_original_scale``) need no
+   pass of their own.
+3. One further pass handles every model together: per block the residuals of all models and the
+   focus effect's projected scores are two matrix products, and the HC0/HC1 variance of the
+   focus effect, Σᵢ(ũᵢ·z̃ᵢ'a)² with a = (Z'WZ)⁻¹c, and the sums behind the original-scale R² are
+   added up for all models at once.
+
+Models whose outcome needs the smearing estimate (IHS, square root, shifted log, Box-Cox: S(η)
+averages over every residual), covariance kinds other than classical, HC0 and HC1, and designs
+whose condition number exceeds ``core.model.ols.NORMAL_EQUATIONS_MAX_CONDITION`` are fitted one
+by one through the fit engine and the covariance registry on the same rows, so every model's
+numbers are what ``core.analyze`` gives for its spec on those rows.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import scipy.linalg as sla
+
+from core.errors import DataError, SpecError
+from core.inference.effects import default_change, effect_arrays, exact_interval
+from core.inference.retransform import fit_on_original_scale
+from core.model import engine
+from core.model.design import Block, ColumnCache, Design, Encoder, Term, build_design
+from core.model.fitted import Model, fit_design
+from core.model.ols import NORMAL_EQUATIONS_MAX_CONDITION, _normal_equations_factor
+from core.model.spec import ModelSpec, RegressorSpec, parse_change
+from core.model.transforms import Category, Transform, menu_codes, parse_transform
+
+MAX_MODELS = 1_024
+SWEEP_KEYS = {"focus", "candidates"}
+# The plausible forms a sweep tries when the spec names none (the advisor's rules of the trade,
+# core.intake.advisor): level, and one log-type form (log where every value is above zero, else
+# IHS where none is negative); 0/1 indicators in levels only. Quadratics, square roots and
+# shifted logs are tried when named in ``candidates``.
+_LOG_FAMILY = ("log", "ihs")
+# Covariance kinds the one-pass system computes; others go model by model.
+_ONE_PASS = {"classical": 0.0, "HC0": 0.0, "HC1": 1.0}
+
+
+@dataclass
+class _Choice:
+    """One candidate of one variable: its transform and its columns in S."""
+
+    column: str
+    transform: Transform
+    cols: list[int]
+
+
+@dataclass
+class _Setup:
+    spec: ModelSpec
+    design: Design  # the base model on the common rows
+    focus: str
+    change_text: str
+    choices: dict[str, list[_Choice]]  # per variable (outcome first), in candidate order
+    S: np.ndarray  # every candidate column, intercept first
+    outcomes: list[_Choice]
+    left_out: list[dict[str, Any]]
+    n_left_out: int
+
+
+def sweep_section(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None = None) -> dict:
+    """The ``sweep`` result (docs/contract.md §3.16) for the spec's ``sweep`` entry."""
+    setup = _setup(data, raw_spec, model_spec, columns)
+    models = _fit_all(setup)
+    return _summary(setup, models)
+
+
+def sweep_rows(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec) -> np.ndarray:
+    """Positions in ``data`` of the rows the sweep fits every model on."""
+    return _setup(data, raw_spec, model_spec, None).design.rows
+
+
+# --- the spec entry and the common rows ---------------------------------------------------------
+def _parse(raw_spec: dict, model_spec: ModelSpec) -> tuple[str, dict[str, list[Transform]]]:
+    entry = raw_spec.get("sweep")
+    entry = {} if entry is None else entry
+    if not isinstance(entry, dict):
+        raise SpecError('spec.sweep: must be an object like {"focus": "price", "candidates": {"price": ["level", "log"]}}.')
+    unknown = set(entry) - SWEEP_KEYS
+    if unknown:
+        raise SpecError(f"spec.sweep: unknown key(s) {', '.join(sorted(unknown))}; use focus and candidates.")
+    if model_spec.estimator != "ppml" and not model_spec.regressors:
+        raise SpecError("spec.sweep: the model has no regressor, so there is no effect to compare across forms.")
+    if model_spec.estimator == "ppml":
+        raise SpecError("spec.sweep: the sweep compares least-squares forms; it is not available with estimator 'ppml'.")
+    names = [r.column for r in model_spec.regressors]
+    focus = entry.get("focus")
+    if focus is None:
+        focus = next((r.column for r in model_spec.regressors if r.change is not None), names[0])
+    if focus not in names:
+        raise SpecError(f"spec.sweep.focus: '{focus}' is not a regressor of this model; use one of: {', '.join(names)}.")
+    given = entry.get("candidates") or {}
+    if not isinstance(given, dict):
+        raise SpecError('spec.sweep.candidates: must be an object like {"price": ["level", "log"]}.')
+    candidates: dict[str, list[Transform]] = {}
+    categories = {r.column for r in model_spec.regressors if isinstance(r.transform, Category)}
+    for column, codes in given.items():
+        where = f"spec.sweep.candidates.{column}"
+        role = "outcome" if column == model_spec.outcome_column else "regressor"
+        if role == "regressor" and column not in names:
+            raise SpecError(f"{where}: '{column}' is neither the outcome nor a regressor of this model.")
+        if not isinstance(codes, list) or not codes:
+            raise SpecError(f'{where}: must be a list of transforms like ["level", "log"].')
+        found = list({t.code: t for t in (parse_transform(c, role, where) for c in codes)}.values())
+        if (column in categories) != all(isinstance(t, Category) for t in found):
+            raise SpecError(f"{where}: a category stays a category and a numeric regressor cannot become one in a sweep.")
+        candidates[column] = found
+    return focus, candidates
+
+
+def _default(values: np.ndarray, role: str, binary: bool) -> list[Transform]:
+    if binary:
+        return [parse_transform("level", role, "sweep")]
+    log_type = next((c for c in _LOG_FAMILY if not parse_transform(c, role, "sweep").invalid(values)[0].any()), None)
+    wanted = {"level", log_type}
+    return [parse_transform(c, role, "sweep") for c in menu_codes(role) if c in wanted]
+
+
+def _setup(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None) -> _Setup:
+    focus, given = _parse(raw_spec, model_spec)
+    base = build_design(data, model_spec, columns)
+    blocks = {b.spec.column: b for b in base.encoder.blocks}
+    own = {model_spec.outcome_column: model_spec.outcome_transform, **{r.column: r.transform for r in model_spec.regressors}}
+    lists: dict[str, list[Transform]] = {}
+    for column, transform in own.items():
+        is_outcome = column == model_spec.outcome_column
+        values = base.y_raw if is_outcome else base.values[column]
+        if isinstance(transform, Category):
+            found = [transform]
+        elif column in given:
+            found = given[column]
+        else:
+            found = _default(values, "outcome" if is_outcome else "regressor", not is_outcome and blocks[column].binary)
+        if transform.code not in {t.code for t in found}:
+            found = [transform, *found]
+        lists[column] = found
+    n_models = int(np.prod([len(v) for v in lists.values()]))
+    if n_models > MAX_MODELS:
+        sizes = " x ".join(f"{len(v)} ({c})" for c, v in lists.items() if len(v) > 1)
+        raise SpecError(
+            f"spec.sweep: {sizes} make {n_models:,} models; a sweep fits at most {MAX_MODELS:,}. "
+            "Name fewer candidates in spec.sweep.candidates."
+        )
+    keep = np.ones(len(base.rows), dtype=bool)
+    left_out = []
+    for column, found in lists.items():
+        if isinstance(own[column], Category):
+            continue
+        values = base.y_raw if column == model_spec.outcome_column else base.values[column]
+        for transform in found:
+            bad, reason = transform.invalid(values)
+            if bad.any():
+                left_out.append({"column": column, "transform": transform.code, "reason": reason, "count": int(bad.sum())})
+                keep &= ~bad
+    design = base
+    if not keep.all():
+        design = build_design(data.iloc[base.rows[keep]], model_spec)
+        design = replace(design, rows=base.rows[keep], n_total=len(data))
+    change = _focus_change(design, focus)
+    return _columns(model_spec, design, focus, change, lists, left_out, int((~keep).sum()))
+
+
+def _focus_change(design: Design, focus: str) -> str:
+    block = design.encoder.block(focus)
+    if block.spec.change is not None:
+        return block.spec.change.text
+    if block.is_category:
+        return f"{block.reference_level}->{block.levels[0]}"
+    return default_change(block, design.values[focus]).text
+
+
+def _columns(model_spec, design, focus, change, lists, left_out, n_left_out) -> _Setup:
+    """The wide table S: intercept, every regressor candidate's basis columns (a column two
+    candidates share, such as x in level and in quadratic, once), every outcome candidate."""
+    cols: list[np.ndarray] = [np.ones(len(design.y))]
+    choices: dict[str, list[_Choice]] = {}
+    outcome = model_spec.outcome_column
+    for block in design.encoder.blocks:
+        column = block.spec.column
+        found: list[_Choice] = []
+        mine: list[int] = []
+        for transform in lists[column]:
+            if block.is_category:
+                basis = design.X[:, block.start : block.stop]
+            else:
+                basis = transform.basis(design.values[column])
+            where = []
+            for j in range(basis.shape[1]):
+                same = next((i for i in mine if np.array_equal(cols[i], basis[:, j])), None)
+                if same is None:
+                    cols.append(np.ascontiguousarray(basis[:, j]))
+                    same = len(cols) - 1
+                    mine.append(same)
+                where.append(same)
+            found.append(_Choice(column, transform, where))
+        choices[column] = found
+    outcomes = []
+    for transform in lists[outcome]:
+        with np.errstate(all="ignore"):
+            cols.append(np.asarray(transform.forward(design.y_raw), dtype=float))
+        outcomes.append(_Choice(outcome, transform, [len(cols) - 1]))
+    S = np.empty((len(design.y), len(cols)), order="F")
+    for j, col in enumerate(cols):
+        S[:, j] = col
+    return _Setup(model_spec, design, focus, change, {outcome: outcomes, **choices}, S, outcomes, left_out, n_left_out)
+
+
+# --- the models ---------------------------------------------------------------------------------
+@dataclass
+class _Fit:
+    transforms: dict[str, str]
+    outcome: _Choice
+    picks: list[_Choice]
+    cols: list[int]
+    model: Model | None = None
+    gamma: np.ndarray | None = None
+    R: np.ndarray | None = None
+    ssr: float = 0.0
+    measures: dict[str, Any] | None = None
+    effect: dict[str, Any] | None = None
+    projection: np.ndarray | None = None  # (Z'WZ)⁻¹c over the model's columns
+    arrays: Any = None
+    eta0: float = np.nan
+    error: str | None = None
+
+
+def _fit_all(setup: _Setup) -> list[_Fit]:
+    with engine.single_threaded_blas, np.errstate(all="ignore"):
+        shift = engine.shift_for(setup.S, setup.S[:, -1], setup.design.weights)
+        gram = engine.gram_pass(shift)[:-1, :-1]
+        if not np.all(np.isfinite(gram)):
+            raise DataError("the sweep overflowed: some values are too large to work with; rescale the data.")
+        jacobians = {o.transform.code: float(np.sum(o.transform.log_jacobian(setup.design.y_raw))) for o in setup.outcomes}
+        regressors = [c for c in setup.choices if c != setup.spec.outcome_column]
+        fits = []
+        for combo in itertools.product(setup.outcomes, *(setup.choices[c] for c in regressors)):
+            outcome, picks = combo[0], list(combo[1:])
+            fit = _Fit({c.column: c.transform.code for c in combo}, outcome, picks, [0] + [j for p in picks for j in p.cols])
+            fits.append(fit)
+        one_pass = setup.spec.covariance in _ONE_PASS
+        pending = []
+        for fit in fits:
+            closed = fit.outcome.transform.code == "level" or fit.outcome.transform.is_log_like
+            try:
+                if one_pass and closed and _solve(setup, shift, gram, fit, jacobians):
+                    pending.append(fit)
+                else:
+                    _exact(setup, fit)
+            except DataError as exc:
+                fit.error = str(exc)
+        if pending:
+            _second_pass(setup, shift, pending)
+    return fits
+
+
+def _model_spec(setup: _Setup, fit: _Fit) -> ModelSpec:
+    regs = []
+    for reg, pick in zip(setup.spec.regressors, fit.picks, strict=True):
+        change = parse_change(setup.change_text, "sweep") if reg.column == setup.focus else reg.change
+        regs.append(RegressorSpec(reg.column, pick.transform, change, reg.reference))
+    return replace(setup.spec, outcome_transform=fit.outcome.transform, regressors=tuple(regs))
+
+
+def _encoder(setup: _Setup, spec: ModelSpec) -> tuple[Encoder, list[Term]]:
+    blocks, terms, start = [], [Term("intercept", None, None)], 1
+    for reg, base in zip(spec.regressors, setup.design.encoder.blocks, strict=True):
+        width = len(base.levels) if base.is_category else reg.transform.width
+        blocks.append(Block(reg, start, start + width, list(base.levels), base.reference_level, base.binary))
+        terms.extend(Term(f"{reg.transform.code}({reg.column})", reg.column, reg.transform.code) for _ in range(width))
+        start += width
+    return Encoder(blocks, start), terms
+
+
+def _solve(setup: _Setup, shift: engine.Shift, gram: np.ndarray, fit: _Fit, jacobians: dict[str, float]) -> bool:
+    """Coefficients and fit measures from the model's sub-block of the Gram matrix; False when
+    the design is too ill-conditioned for the normal equations (then it is fitted on its own)."""
+    J, o = fit.cols, fit.outcome.cols[0]
+    k, n = len(J), len(setup.design.y)
+    if n <= k:
+        raise DataError(f"the model has {k} coefficients but only {n} rows.")
+    sub = gram[np.ix_(J + [o], J + [o])]
+    R, q, rho, kappa = _normal_equations_factor(sub, k)
+    if R is None or kappa > NORMAL_EQUATIONS_MAX_CONDITION:
+        return False
+    gamma = sla.solve_triangular(R, q, check_finite=False)
+    beta = gamma.copy()
+    beta[0] = gamma[0] + shift.c[o] - float(shift.c[J[1:]] @ gamma[1:])
+    spec = _model_spec(setup, fit)
+    encoder, terms = _encoder(setup, spec)
+    design = replace(setup.design, encoder=encoder, terms=terms)
+    df = n - k
+    fit.model = Model(design=design, coef=beta, cov=np.full((k, k), np.nan), df=df, outcome=spec.outcome_transform, resid=np.zeros(1))
+    fit.gamma, fit.R, fit.ssr = gamma, R, rho * rho
+    w = setup.design.weights
+    log_w = 0.5 * float(np.log(w).sum()) if w is not None else 0.0
+    loglik = -0.5 * n * (np.log(2 * np.pi) + np.log(fit.ssr / n) + 1.0) + log_w
+    ll = loglik + jacobians[fit.outcome.transform.code]
+    fit.measures = {
+        "loglik_original_scale": ll,
+        "aic_original_scale": -2.0 * ll + 2.0 * k,
+        "bic_original_scale": -2.0 * ll + np.log(n) * k,
+    }
+    fit.arrays, fit.eta0 = _focus_arrays(setup, fit.model)
+    if fit.arrays is not None:
+        # a = (Z'WZ)⁻¹c in the shifted parametrisation (c has no intercept entry, so c_z = c).
+        fit.projection = sla.cho_solve((R, False), fit.arrays.c[0], check_finite=False)
+    return True
+
+
+def _focus_arrays(setup: _Setup, model: Model) -> tuple[Any, float]:
+    """The focus effect's arrays (``effect_arrays``) and the index at its start point; arrays
+    None when the change leaves a transform's domain."""
+    block = model.design.encoder.block(setup.focus)
+    change = parse_change(setup.change_text, "sweep")
+    base = dict(model.design.reference)
+    x_ref = base[setup.focus]
+    x0, x1 = (change.start, change.end) if change.kind == "switch" else (x_ref, change.apply(x_ref))
+    point = base | {setup.focus: x0}
+    if block.is_category:
+        arrays = effect_arrays(model, block, np.array([x0], dtype=object), np.array([x1], dtype=object), point, 1)
+        return arrays, float((model.encode(point, 1) @ model.coef)[0])
+    x0, x1 = float(x0), float(x1)
+    t = block.spec.transform
+    if t.invalid(np.array([x0]))[0][0] or t.invalid(np.array([x1]))[0][0]:
+        return None, np.nan
+    arrays = effect_arrays(model, block, np.array([x0]), np.array([x1]), point, 1)
+    return arrays, float((model.encode(point, 1) @ model.coef)[0])
+
+
+def _exact(setup: _Setup, fit: _Fit) -> None:
+    """One model through the fit engine and the covariance registry (as core.analyze)."""
+    spec = _model_spec(setup, fit)
+    encoder, terms = _encoder(setup, spec)
+    S = setup.S
+    design = replace(
+        setup.design,
+        X=np.asfortranarray(S[:, fit.cols]),
+        y=S[:, fit.outcome.cols[0]].copy(),
+        encoder=encoder,
+        terms=terms,
+    )
+    _, ols, model = fit_design(design, spec)
+    fit.model = model
+    fit.measures = fit_on_original_scale(model, design.y_raw, ols.fitted, ols.loglik, ols.k)
+    arrays, eta0 = _focus_arrays(setup, model)
+    interval = None if arrays is None else exact_interval(model, arrays, float(arrays.exact[0]))
+    fit.effect = _effect(model, arrays, interval, eta0)
+
+
+def _effect(model: Model, arrays: Any, interval: tuple[float, float] | None, eta0: float) -> dict[str, Any]:
+    """The focus effect's entries; ``percent`` on the common scale (docs/contract.md §3.16)."""
+    if arrays is None:
+        return dict.fromkeys(("exact", "ci_low", "ci_high", "approximate", "percent", "percent_ci_low", "percent_ci_high"))
+    exact = float(arrays.exact[0])
+    low, high = sorted(interval[:2]) if interval else (np.nan, np.nan)
+    out = {"exact": exact, "ci_low": low, "ci_high": high, "approximate": float(arrays.approximate[0])}
+    if model.kind == "level":
+        # 100·Δŷ/ŷ₀ at the start point; the interval scaled by the same ŷ₀.
+        scale = 100.0 / eta0 if eta0 else np.nan
+        bounds = sorted((low * scale, high * scale))
+        out.update(percent=exact * scale, percent_ci_low=bounds[0], percent_ci_high=bounds[1])
+    else:
+        out.update(percent=exact, percent_ci_low=low, percent_ci_high=high)
+    return out
+
+
+def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
+    """One pass over the rows for every model solved from the Gram matrix: residuals, the focus
+    effect's robust variance and the sums behind the original-scale R²."""
+    q, m = setup.S.shape[1], len(fits)
+    resid_map = np.zeros((q + 1, m))
+    proj_map = np.zeros((q + 1, m))
+    log_kind = np.array([f.model.kind == "log" for f in fits])
+    for i, fit in enumerate(fits):
+        resid_map[fit.outcome.cols[0], i] = 1.0
+        resid_map[fit.cols, i] -= fit.gamma
+        if fit.projection is not None:
+            proj_map[fit.cols, i] = fit.projection
+    root_w = shift.root_w
+    y_raw = setup.design.y_raw
+
+    def one(block: np.ndarray, start: int, stop: int) -> np.ndarray:
+        u = block @ resid_map  # sqrt(w)·e
+        s = block @ proj_map
+        e = u if root_w is None else u / root_w[start:stop, None]
+        y = y_raw[start:stop]
+        fitted = y[:, None] - e
+        fitted[:, log_kind] = y[:, None] * np.exp(-e[:, log_kind])
+        us = u * s
+        return np.stack([(us * us).sum(0), fitted.sum(0), (fitted * fitted).sum(0), y @ fitted])
+
+    sums = sum(engine.map_blocks(shift, one))
+    n = len(y_raw)
+    ya, yy = float(y_raw.sum()), float(y_raw @ y_raw)
+    for i, fit in enumerate(fits):
+        k = len(fit.cols)
+        sv, svv, syv = sums[1:, i]
+        cov_yv = syv - ya * sv / n
+        var_y, var_v = yy - ya * ya / n, svv - sv * sv / n
+        fit.measures["r2_original_scale"] = float(np.clip(cov_yv / np.sqrt(var_y) / np.sqrt(var_v), -1, 1) ** 2)
+        if fit.arrays is None:
+            fit.effect = _effect(fit.model, None, None, np.nan)
+            continue
+        kind = setup.spec.covariance
+        if kind == "classical":
+            var = fit.ssr / (n - k) * float(fit.arrays.c[0] @ fit.projection)
+        else:
+            var = float(sums[0, i]) * (n / (n - k) if _ONE_PASS[kind] else 1.0)
+        fit.effect = _effect_from_var(fit.model, fit.arrays, var, fit.eta0)
+
+
+def _effect_from_var(model: Model, arrays: Any, var: float, eta0: float) -> dict[str, Any]:
+    """The interval of ``core.inference.effects.exact_interval`` for level and log outcomes, from
+    the variance of the index change."""
+    t = model.t_crit
+    d = float(arrays.delta_index[0])
+    se = float(np.sqrt(max(var, 0.0)))
+    low, high = d - t * se, d + t * se
+    if model.kind == "log":
+        low, high = 100.0 * np.expm1(low), 100.0 * np.expm1(high)
+    return _effect(model, arrays, (low, high), eta0)
+
+
+# --- the summary --------------------------------------------------------------------------------
+def _summary(setup: _Setup, fits: list[_Fit]) -> dict[str, Any]:
+    good = [f for f in fits if f.error is None]
+    if not good:
+        raise DataError(f"no model of the sweep could be fitted: {fits[0].error}")
+    best = min(f.measures["aic_original_scale"] for f in good)
+    models = []
+    for f in sorted(good, key=lambda f: f.measures["aic_original_scale"]):
+        models.append(
+            {
+                "transforms": f.transforms,
+                **{k: f.effect[k] for k in ("exact", "ci_low", "ci_high", "approximate")},
+                "units": f.model.units,
+                **{k: f.effect[k] for k in ("percent", "percent_ci_low", "percent_ci_high")},
+                **{
+                    k: f.measures[k]
+                    for k in ("aic_original_scale", "bic_original_scale", "r2_original_scale", "loglik_original_scale")
+                },
+                "delta_aic": f.measures["aic_original_scale"] - best,
+            }
+        )
+    by_choice = []
+    for column, choices in setup.choices.items():
+        for choice in choices:
+            found = [m["percent"] for m in models if m["transforms"][column] == choice.transform.code]
+            values = [v for v in found if v is not None and np.isfinite(v)]
+            by_choice.append(
+                {
+                    "column": column,
+                    "transform": choice.transform.code,
+                    "median_percent": float(np.median(values)) if values else None,
+                    "min_percent": min(values) if values else None,
+                    "max_percent": max(values) if values else None,
+                    "n_models": len(found),
+                }
+            )
+    return {
+        "focus": {"column": setup.focus, "change": setup.change_text},
+        "n_obs": len(setup.design.y),
+        "n_left_out": setup.n_left_out,
+        "left_out": setup.left_out,
+        "n_models": len(models),
+        "not_fitted": [{"transforms": f.transforms, "reason": f.error} for f in fits if f.error is not None],
+        "models": models,
+        "by_choice": by_choice,
+    }

