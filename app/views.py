@@ -16,6 +16,7 @@ from app import charts, exports, keys, profiles_view, tables
 from app.checks_view import checks_view
 from app.compare_view import compare_view, predict_view
 from app.context import Context, chart, failed, point_sample
+from app.sweep_view import sweep_view
 from core.inference.choices import (
     overlay_options,
     retransforms_differ,
@@ -43,6 +44,7 @@ VIEWS = [
     "Compare models",
     "Predict",
     "Column profiles",
+    "Forms",
 ]
 # Above this many rows the units check (six refits per IHS or shifted-log variable) runs on request.
 UNITS_CHECK_AUTO_ROWS = 200_000
@@ -65,6 +67,7 @@ def show(ctx: Context) -> None:
             "Compare models": compare_view,
             "Predict": predict_view,
             "Column profiles": profiles_view.profiles_view,
+            "Forms": sweep_view,
         }[view or VIEWS[0]](ctx)
     except Exception as exc:  # a core bug must not become a traceback on screen
         failed(exc)

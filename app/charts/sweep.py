@@ -1,0 +1,98 @@
+"""The sweep's figure: the focus effect of every model, smallest to largest, with its interval,
+and beneath it the form each variable took in that model (one row of dots per variable)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import plotly.graph_objects as go
+from plotly.subplots import make_subplots
+
+from app.charts.base import style
+from core.output.theme import BLUE, GREEN, GREY, INK, ORANGE, PURPLE, SKY, VERMILLION
+
+# One colour per transform code in the strip beneath (Okabe-Ito, core.output.theme).
+FORM_COLOURS = {"level": GREY, "log": BLUE, "ihs": SKY, "sqrt": GREEN, "quadratic": PURPLE, "shifted_log:1": ORANGE}
+
+
+def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[str]) -> go.Figure:
+    models = sorted(sweep["models"], key=lambda m: (m["percent"] is None, m["percent"] or 0.0))
+    rank = {id(m): i + 1 for i, m in enumerate(sweep["models"])}  # 1 = best by AIC
+    x = list(range(1, len(models) + 1))
+    rows = max(1, len(varying))
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, row_heights=[0.62, 0.38], vertical_spacing=0.04)
+    pct = [m["percent"] for m in models]
+    fig.add_trace(
+        go.Scatter(
+            x=x,
+            y=pct,
+            mode="markers",
+            marker={"color": INK, "size": 6},
+            error_y={
+                "type": "data",
+                "symmetric": False,
+                "array": [(m["percent_ci_high"] or p) - p if p is not None else None for m, p in zip(models, pct, strict=True)],
+                "arrayminus": [
+                    p - (m["percent_ci_low"] or p) if p is not None else None for m, p in zip(models, pct, strict=True)
+                ],
+                "color": SKY,
+                "thickness": 1.5,
+                "width": 0,
+            },
+            name="Effect with 95 % interval",
+            customdata=[rank[id(m)] for m in models],
+            hovertemplate="AIC rank %{customdata}<br>%{y:.2f} %<extra></extra>",
+        ),
+        row=1,
+        col=1,
+    )
+    for label, colour, pick in (
+        ("Best by AIC", VERMILLION, lambda m: rank[id(m)] == 1),
+        ("Model on screen", ORANGE, lambda m: m["transforms"] == current),
+    ):
+        found = [(i + 1, m["percent"]) for i, m in enumerate(models) if pick(m)]
+        if found:
+            fig.add_trace(
+                go.Scatter(
+                    x=[f[0] for f in found],
+                    y=[f[1] for f in found],
+                    mode="markers",
+                    marker={"color": colour, "size": 15, "symbol": "diamond-open", "line": {"width": 3}},
+                    name=label,
+                ),
+                row=1,
+                col=1,
+            )
+    seen: set[str] = set()
+    for code, colour in FORM_COLOURS.items():
+        xs, ys = [], []
+        for i, m in enumerate(models):
+            for column in varying:
+                if m["transforms"][column] == code:
+                    xs.append(i + 1)
+                    ys.append(column)
+        if xs:
+            fig.add_trace(
+                go.Scatter(
+                    x=xs,
+                    y=ys,
+                    mode="markers",
+                    marker={"color": colour, "size": 8, "symbol": "square"},
+                    name=code,
+                    showlegend=code not in seen,
+                ),
+                row=2,
+                col=1,
+            )
+            seen.add(code)
+    fig.update_yaxes(categoryorder="array", categoryarray=list(reversed(varying)), row=2, col=1)
+    focus = sweep["focus"]
+    fig.add_hline(y=0, line={"color": GREY, "width": 1}, row=1, col=1)
+    return style(
+        fig,
+        f"How much does the effect of {focus['change']} in {focus['column']} depend on the forms?",
+        f"{len(models)} models on the same {sweep['n_obs']:,} rows, sorted by the effect; below, the form each variable took",
+        "Models, smallest effect to largest",
+        "Change of expected outcome, %",
+        height=520 + 18 * rows,
+    )
