@@ -56,6 +56,7 @@ SWEEP_KEYS = {"focus", "candidates"}
 _LOG_FAMILY = ("log", "ihs")
 # Covariance kinds the one-pass system computes; others go model by model.
 _ONE_PASS = {"classical": 0.0, "HC0": 0.0, "HC1": 1.0}
+_SUB_ROWS = 2_048
 
 
 @dataclass
@@ -311,7 +312,9 @@ def _solve(setup: _Setup, shift: engine.Shift, gram: np.ndarray, fit: _Fit, jaco
     encoder, terms = _encoder(setup, spec)
     design = replace(setup.design, encoder=encoder, terms=terms)
     df = n - k
-    fit.model = Model(design=design, coef=beta, cov=np.full((k, k), np.nan), df=df, outcome=spec.outcome_transform, resid=np.zeros(1))
+    fit.model = Model(
+        design=design, coef=beta, cov=np.full((k, k), np.nan), df=df, outcome=spec.outcome_transform, resid=np.zeros(1)
+    )
     fit.gamma, fit.R, fit.ssr = gamma, R, rho * rho
     w = setup.design.weights
     log_w = 0.5 * float(np.log(w).sum()) if w is not None else 0.0
@@ -389,10 +392,11 @@ def _effect(model: Model, arrays: Any, interval: tuple[float, float] | None, eta
 def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
     """One pass over the rows for every model solved from the Gram matrix: residuals, the focus
     effect's robust variance and the sums behind the original-scale R²."""
+    fits = sorted(fits, key=lambda f: f.model.kind == "log")  # level kinds first, then log kinds
     q, m = setup.S.shape[1], len(fits)
+    n_level = sum(f.model.kind == "level" for f in fits)
     resid_map = np.zeros((q + 1, m))
     proj_map = np.zeros((q + 1, m))
-    log_kind = np.array([f.model.kind == "log" for f in fits])
     for i, fit in enumerate(fits):
         resid_map[fit.outcome.cols[0], i] = 1.0
         resid_map[fit.cols, i] -= fit.gamma
@@ -402,14 +406,27 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
     y_raw = setup.design.y_raw
 
     def one(block: np.ndarray, start: int, stop: int) -> np.ndarray:
-        u = block @ resid_map  # sqrt(w)·e
-        s = block @ proj_map
-        e = u if root_w is None else u / root_w[start:stop, None]
-        y = y_raw[start:stop]
-        fitted = y[:, None] - e
-        fitted[:, log_kind] = y[:, None] * np.exp(-e[:, log_kind])
-        us = u * s
-        return np.stack([(us * us).sum(0), fitted.sum(0), (fitted * fitted).sum(0), y @ fitted])
+        # Rows a few thousand at a time: the (rows x models) arrays then stay in cache.
+        out = np.zeros((4, m))
+        for lo in range(0, stop - start, _SUB_ROWS):
+            rows = block[lo : lo + _SUB_ROWS]
+            u = rows @ resid_map  # sqrt(w)·e, every model
+            s = rows @ proj_map
+            np.multiply(s, u, out=s)
+            out[0] += np.einsum("ij,ij->j", s, s)
+            e = u if root_w is None else u / root_w[start + lo : start + lo + len(rows), None]
+            y = y_raw[start + lo : start + lo + len(rows)]
+            # Level kinds: the prediction is y - e; log kinds: proportional to y·exp(-e).
+            fitted = e[:, :n_level]
+            np.subtract(y[:, None], fitted, out=fitted)
+            logs = e[:, n_level:]
+            np.negative(logs, out=logs)
+            np.exp(logs, out=logs)
+            logs *= y[:, None]
+            out[1] += e.sum(0)
+            out[2] += np.einsum("ij,ij->j", e, e)
+            out[3] += y @ e
+        return out
 
     sums = sum(engine.map_blocks(shift, one))
     n = len(y_raw)
