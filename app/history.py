@@ -44,31 +44,31 @@ def _step(source: str, target: str, show: Callable[[pd.DataFrame], None]) -> Non
     show(grid)
 
 
-def buttons(show: Callable[[pd.DataFrame], None]) -> None:
-    """Undo and Redo beside the grid; Ctrl/Cmd+Z and Ctrl/Cmd+Shift+Z do the same."""
-    ss = st.session_state
-    undo, redo, _ = st.columns([1, 1, 5])
-    with undo:
-        st.button(
-            "Undo",
-            key="undo_edit",
-            icon=":material/undo:",
-            disabled=not ss.get(keys.UNDO),
-            on_click=_step,
-            args=(keys.UNDO, keys.REDO, show),
-            shortcut="Mod+Z",
-            help="Take back the last change to the model (Ctrl/Cmd+Z).",
-            width="stretch",
-        )
-    with redo:
-        st.button(
-            "Redo",
-            key="redo_edit",
-            icon=":material/redo:",
-            disabled=not ss.get(keys.REDO),
-            on_click=_step,
-            args=(keys.REDO, keys.UNDO, show),
-            shortcut="Mod+Shift+Z",
-            help="Make the change taken back again (Ctrl/Cmd+Shift+Z).",
-            width="stretch",
-        )
+def undo_button(show: Callable[[pd.DataFrame], None]) -> None:
+    """Undo: the grid before the last change (Ctrl/Cmd+Z)."""
+    st.button(
+        "Undo",
+        key="undo_edit",
+        icon=":material/undo:",
+        disabled=not st.session_state.get(keys.UNDO),
+        on_click=_step,
+        args=(keys.UNDO, keys.REDO, show),
+        shortcut="Mod+Z",
+        help="Take back the last change to the model (Ctrl/Cmd+Z).",
+        width="stretch",
+    )
+
+
+def redo_button(show: Callable[[pd.DataFrame], None]) -> None:
+    """Redo: the change taken back (Ctrl/Cmd+Shift+Z)."""
+    st.button(
+        "Redo",
+        key="redo_edit",
+        icon=":material/redo:",
+        disabled=not st.session_state.get(keys.REDO),
+        on_click=_step,
+        args=(keys.REDO, keys.UNDO, show),
+        shortcut="Mod+Shift+Z",
+        help="Make the change taken back again (Ctrl/Cmd+Shift+Z).",
+        width="stretch",
+    )

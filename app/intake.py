@@ -272,22 +272,22 @@ def suggestion_button(restart: Callable[[pd.DataFrame], None]) -> None:
         else:
             ss[keys.ADVICE_MESSAGE] = "Every transform in the grid already follows the suggestions."
 
-    left, right = st.columns([1, 3], vertical_alignment="center")
-    with left:
-        st.button(
-            "Apply every suggestion",
-            key="apply_suggestions",
-            on_click=apply,
-            icon=":material/auto_fix_high:",
-            help="Sets each variable's transform to the one the advisor suggests (see the Column profiles view); "
-            "roles stay as they are, and any transform can be changed again in the grid.",
-        )
-    with right:
-        message = ss.pop(keys.ADVICE_MESSAGE, None)
-        if message:
-            st.caption(plain(message))
-        else:
-            st.caption("The advisor's transform for each column, with its reasons, is in the Column profiles view below.")
+    st.button(
+        "Apply every suggestion",
+        key="apply_suggestions",
+        on_click=apply,
+        icon=":material/auto_fix_high:",
+        help="Sets each variable's transform to the one the advisor suggests (its reasons are in the Column profiles "
+        "view); roles stay as they are, and any transform can be changed again in the grid.",
+        width="stretch",
+    )
+
+
+def advice_message() -> None:
+    """What the last click on 'Apply every suggestion' changed, once."""
+    message = st.session_state.pop(keys.ADVICE_MESSAGE, None)
+    if message:
+        st.caption(plain(message))
 
 
 def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) -> None:
@@ -303,7 +303,7 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
                 f"{join_words(moved)} {'holds' if len(moved) == 1 else 'hold'} "
                 f"{join_words(sorted({_LOCKED_PLURAL[locked[c]] for c in moved}))}, so "
                 f"{'it stays' if len(moved) == 1 else 'they stay'} out of the model. Tick "
-                "“Let me use identifier and date columns anyway” to use "
+                "“Use identifier and date columns” to use "
                 f"{'it' if len(moved) == 1 else 'them'}."
             )
             restart(fixed)
@@ -311,9 +311,16 @@ def keep_locked_out(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None])
     message = ss.pop(keys.LOCK_MESSAGE, None)
     if message:
         st.info(plain(message), icon=":material/lock:")
+
+
+def unlock_checkbox() -> None:
+    """The box that lets identifier and date columns into the model."""
+    locked = locked_columns((st.session_state.get(keys.DATA) or {}).get("profile"))
+    if not locked:
+        return
     names = plain(join_words(list(locked)))
     st.checkbox(
-        "Let me use identifier and date columns anyway",
+        "Use identifier and date columns",
         key=keys.UNLOCK_LOCKED,
         help=f"{names}: labels of rows rather than variables, so the grid keeps them 'not used'. An identifier can "
         "still group rows for clustered standard errors (sidebar).",

@@ -43,6 +43,7 @@ from core.output.text import dropped_lines, fit_sentence, model_sentence, rows_s
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
 DEMO_ID = "demo:kiosks.csv"
+GRID_ROWS_SHOWN = 5
 
 
 # --- data and grid state ------------------------------------------------------------------------
@@ -117,6 +118,10 @@ def sidebar() -> None:
     ss = st.session_state
     frame: pd.DataFrame = ss[keys.DATA]["frame"]
     with st.sidebar:
+        st.markdown(
+            "## Formwise\n:gray[Try a transform per variable and see at once how the estimates, effects and "
+            "their approximations change.]"
+        )
         st.markdown("### Data")
         st.markdown(f"**{plain(ss[keys.DATA]['name'])}**  \n{len(frame):,} rows × {frame.shape[1]} columns")
         intake.intake_notes(ss[keys.DATA])
@@ -162,16 +167,16 @@ def sidebar() -> None:
 # --- the variables grid -----------------------------------------------------------------------------
 def variables_grid() -> pd.DataFrame:
     ss = st.session_state
-    st.markdown("#### Variables")
     st.caption(
-        "Pick one outcome, the regressors, and a transform for each. **Change** is the move the effects are "
-        "worked out for: `+10%` (relative), `+1` (in the variable's units), `0->1` or `Coast->Inland` "
-        "(from one value to another). Leave it blank for a sensible default."
+        "**Variables**: one outcome, its regressors and a transform for each; **Change** is the move the effects "
+        "are worked out for (blank: a sensible default)"
     )
-    intake.suggestion_button(restart_grid)
+    # The controls above the grid are filled in after it, so Undo knows of the edit just made.
+    bar = st.container()
     options = transform_options(ss[keys.GRID_BASE])
     # Tall enough to show every row of a typical file without an inner scrollbar.
-    height = min(38 + 35 * len(ss[keys.GRID_BASE]), 620)
+    # Five rows at most before the grid scrolls, so the results start on the first screen.
+    height = min(38 + 35 * len(ss[keys.GRID_BASE]), 38 + 35 * GRID_ROWS_SHOWN)
     grid = st.data_editor(
         ss[keys.GRID_BASE],
         height=height,
@@ -181,22 +186,22 @@ def variables_grid() -> pd.DataFrame:
         disabled=["column", "about"],
         width="stretch",
         column_config={
-            "column": st.column_config.TextColumn("Column", width=170, pinned=True),
-            "about": st.column_config.TextColumn("What it holds", width=200),
+            "column": st.column_config.TextColumn("Column", width=140, pinned=True),
+            "about": st.column_config.TextColumn("What it holds", width=150),
             "role": st.column_config.SelectboxColumn(
-                "Role", options=ROLES, required=True, width=120, help="Exactly one outcome; any number of regressors."
+                "Role", options=ROLES, required=True, width=95, help="Exactly one outcome; any number of regressors."
             ),
             "transform": st.column_config.SelectboxColumn(
                 "Transform",
                 options=options,
                 required=True,
-                width=190,
+                width=150,
                 format_func=lambda t: menu_word(t),
                 help="The outcome takes level, log, IHS, log(x + 1) or square root.",
             ),
-            "change": st.column_config.TextColumn("Change", width=130, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
+            "change": st.column_config.TextColumn("Change", width=95, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
             "reference": st.column_config.TextColumn(
-                "Reference level", width=150, help="For categories: the level the others are compared with."
+                "Reference level", width=120, help="For categories: the level the others are compared with."
             ),
         },
     )
@@ -207,7 +212,17 @@ def variables_grid() -> pd.DataFrame:
         st.rerun()
     history.record(ss[keys.PREVIOUS_GRID], grid)
     ss[keys.PREVIOUS_GRID] = grid
-    history.buttons(show_grid)
+    with bar:
+        cols = st.columns([2.3, 1.9, 2.3, 3.1], vertical_alignment="center")
+        with cols[0]:
+            intake.suggestion_button(restart_grid)
+        with cols[1]:
+            history.undo_button(show_grid)
+        with cols[2]:
+            history.redo_button(show_grid)
+        with cols[3]:
+            intake.unlock_checkbox()
+    intake.advice_message()
     intake.keep_locked_out(grid, restart_grid)
     intake.advice_notes(ss[keys.DATA])
     levels = category_levels(ss[keys.DATA]["frame"], grid)
@@ -280,12 +295,12 @@ def show_results(good: dict[str, Any]) -> None:
         )
         for line in dropped_lines(result):
             st.caption(plain(f"Left out: {line}"))
+        st.caption(
+            "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
+            "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
+        )
     for warning in result.get("warnings") or []:
         st.warning(plain(sentence_case(warning)))
-    st.caption(
-        "Effects are associations in this data, not proof of cause · “First-order approximation” is the "
-        "textbook shortcut, “Exact” follows the fitted model · ⚠ marks changes that reach beyond the observed data"
-    )
     views.show(context.Context(result=result, spec=spec, frame=good["frame"], data_id=good["data_id"], data_name=data_name))
     cautions.section(result)
 
@@ -298,8 +313,8 @@ def main() -> None:
         load_demo()
     sidebar()
 
-    st.markdown("## Formwise")
-    st.caption("Try a transform per variable and see at once how the estimates, effects and their approximations change.")
+    # Less room above the page's first line, so the results start on the first screen.
+    st.markdown('<style>[data-testid="stMainBlockContainer"]{padding-top:1.6rem}</style>', unsafe_allow_html=True)
     grid = variables_grid()
 
     frame: pd.DataFrame = ss[keys.DATA]["frame"]

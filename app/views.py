@@ -46,6 +46,15 @@ VIEWS = [
     "Column profiles",
     "Forms",
 ]
+# Shorter words on the selector, so it stays on one line at 1280 px.
+SHORT = {
+    "Effects of changes": "Effects",
+    "Approximation check": "Approximation",
+    "Effect curves": "Curves",
+    "Residual checks": "Checks",
+    "Compare models": "Compare",
+    "Column profiles": "Columns",
+}
 # Above this many rows the units check (six refits per IHS or shifted-log variable) runs on request.
 UNITS_CHECK_AUTO_ROWS = 200_000
 
@@ -56,7 +65,9 @@ def show(ctx: Context) -> None:
     exports.set_chart_caption(ctx.data_id, ctx.data_name, ctx.spec, ctx.result)
     if ss.get(keys.VIEW) not in VIEWS:
         ss[keys.VIEW] = VIEWS[0]
-    view = st.segmented_control("Show", VIEWS, key=keys.VIEW, required=True, label_visibility="collapsed")
+    view = st.segmented_control(
+        "Show", VIEWS, key=keys.VIEW, required=True, label_visibility="collapsed", format_func=lambda v: SHORT.get(v, v)
+    )
     try:
         {
             "Coefficients": coefficients_view,

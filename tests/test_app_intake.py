@@ -251,7 +251,7 @@ def test_an_uploaded_identifier_and_date_stay_out_of_the_default_model() -> None
     assert g.at["order_id", "role"] == "not used" and g.at["day", "role"] == "not used"
     assert g.at["day", "about"].startswith("dates")
     assert g.at["spend", "role"] == "outcome" and g.at["price", "role"] == "regressor"
-    assert [c.label for c in at.checkbox if c.key == keys.UNLOCK_LOCKED] == ["Let me use identifier and date columns anyway"]
+    assert [c.label for c in at.checkbox if c.key == keys.UNLOCK_LOCKED] == ["Use identifier and date columns"]
 
 
 # --- pure helpers --------------------------------------------------------------------------------------------
