@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -12,6 +12,7 @@ import pandas as pd
 from scipy import stats
 
 from core.errors import DataError, FormwiseError
+from core.inference.bootstrap import Progress, Target, effect_target, intervals, prediction_target, replicate, scenario_target
 from core.inference.curves import effect_curve
 from core.inference.diagnostics import diagnostics
 from core.inference.effects import compute_effects, gap_curve
@@ -69,6 +70,9 @@ class _Run:
     fit: OLSFit
     model: Model
     warnings: list[str]
+    progress: Progress = None
+    # Result entries waiting for their bootstrap intervals, with what is bootstrapped for each.
+    targets: list[tuple[dict[str, Any], Target]] = field(default_factory=list)
 
     @property
     def ppml(self) -> bool:
@@ -76,7 +80,11 @@ class _Run:
 
 
 def analyze(
-    data: pd.DataFrame, spec: dict, parts: Iterable[str] | None = None, columns: ColumnCache | None = None
+    data: pd.DataFrame,
+    spec: dict,
+    parts: Iterable[str] | None = None,
+    columns: ColumnCache | None = None,
+    progress: Progress = None,
 ) -> dict[str, Any]:
     """Fit the model described by ``spec`` on ``data`` and return the result contract (docs/contract.md §3).
 
@@ -98,7 +106,7 @@ def analyze(
 
     model_spec = parse_spec(spec, data)
     design, fit, model = fit_model(data, model_spec, columns)
-    run = _Run(data, spec, model_spec, design, fit, model, list(design.warnings))
+    run = _Run(data, spec, model_spec, design, fit, model, list(design.warnings), progress)
     result: dict[str, Any] = {
         "n_obs": fit.n,
         "n_dropped": design.n_total - fit.n,
@@ -172,6 +180,7 @@ def _fit_section(run: _Run) -> dict[str, Any]:
 def _effects_section(run: _Run) -> dict[str, Any]:
     effects, warnings = compute_effects(run.model)
     run.warnings.extend(warnings)
+    _wait_for_bootstrap(run, effects, effect_target)
     return {"effects": effects}
 
 
@@ -193,12 +202,43 @@ def _units_section(run: _Run) -> dict[str, Any]:
 def _scenarios_section(run: _Run) -> dict[str, Any]:
     scenarios, warnings = compute_scenarios(run.model, run.model_spec.scenarios)
     run.warnings.extend(warnings)
+    _wait_for_bootstrap(run, scenarios, scenario_target)
     return {"scenarios": scenarios}
 
 
 def _predictions_section(run: _Run) -> dict[str, Any]:
     points = run.model_spec.predict
-    return {"predictions": predict(run.model, points, 0.0 if run.ppml else run.fit.sigma) if points else []}
+    predictions = predict(run.model, points, 0.0 if run.ppml else run.fit.sigma) if points else []
+    _wait_for_bootstrap(run, predictions, prediction_target)
+    return {"predictions": predictions}
+
+
+def _wait_for_bootstrap(run: _Run, entries: list[dict[str, Any]], target: Callable[[Model, dict[str, Any]], Target]) -> None:
+    """With ``spec.bootstrap``, every entry gets a ``bootstrap`` key: null where its estimate is,
+    else filled in by ``_bootstrap_section`` once every section has named its targets."""
+    if run.model_spec.bootstrap is None:
+        return
+    for entry in entries:
+        entry["bootstrap"] = None
+        if entry.get("exact", entry.get("smearing")) is not None:
+            run.targets.append((entry, target(run.model, entry)))
+
+
+def _bootstrap_section(run: _Run) -> dict[str, Any]:
+    """One set of draws for every effect, scenario and prediction (core.inference.bootstrap)."""
+    settings = run.model_spec.bootstrap
+    if settings is None or not run.targets:
+        return {}
+    groups = run.design.resample_groups if settings.cluster else None
+    replicates = replicate(run.model, [t for _, t in run.targets], settings.draws, settings.seed, groups, run.progress)
+    for (entry, _), found in zip(run.targets, intervals(replicates, run.model.confidence), strict=True):
+        entry["bootstrap"] = found
+    if replicates.failed:
+        run.warnings.append(
+            f"{replicates.failed} of {settings.draws} bootstrap draws could not be refitted (the resample left a column "
+            "without variation, such as a rare category) and were left out of the bootstrap intervals."
+        )
+    return {}
 
 
 def _blocks(run: _Run, make: Callable[[Model, Any], Any]) -> list[Any]:
@@ -223,6 +263,8 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
     (frozenset({"units_check"}), _units_section),
     (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec)}),
+    # Last: it fills in the entries the three sections above produced.
+    (frozenset({"effects", "scenarios", "predictions"}), _bootstrap_section),
 ]
 
 
