@@ -31,6 +31,7 @@ weighted rows are scaled by sqrt(w) (products by w).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from typing import Any
 
@@ -48,6 +49,17 @@ MAX_LISTED_ROWS = 25
 RANK_TOLERANCE = 1e-12
 # Elements (rows x columns) of one chunk of auxiliary columns: about 8 MB.
 _AUX_ELEMENTS = 1 << 20
+# Budget of the White test's auxiliary design, k(k+1)/2 columns for k design columns: its Gram
+# matrix holds p² numbers and costs about n·p² multiply-adds to sum and p³ to decompose (190
+# category levels make p ≈ 18,000: 2.6 GB and minutes, and the bundled LAPACK crashed the process
+# from about 175 design columns). Above either bound the test takes the form on the fitted values
+# and their squares (Wooldridge, Introductory Econometrics, 7th ed., §8.3), and says so.
+WHITE_MAX_COLUMNS = 2_080  # k = 64
+WHITE_MAX_WORK = 5e10  # n·p²
+WHITE_FALLBACK_NOTE = (
+    "The model has {k} design columns, so the full White test would need {p:,} auxiliary columns; "
+    "this is the White test on the fitted values and their squares instead (Wooldridge, §8.3)."
+)
 
 
 def _projection(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]) -> tuple[float, int]:
@@ -64,9 +76,14 @@ def _projection(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]
         zv += chunk.T @ v[start:stop]
     length = np.sqrt(np.diag(gram))
     used = length > 0
+    if not used.any() or not (np.isfinite(gram).all() and np.isfinite(zv).all()):
+        return float("nan"), 0
     length = length[used]
     scaled = gram[np.ix_(used, used)] / length[:, None] / length[None, :]
-    values, vectors = np.linalg.eigh(scaled)
+    try:
+        values, vectors = np.linalg.eigh(scaled)
+    except np.linalg.LinAlgError:
+        return float("nan"), 0
     kept = values > values.max() * RANK_TOLERANCE * len(values)
     along = vectors[:, kept].T @ (zv[used] / length)
     return float(along @ (along / values[kept])), int(kept.sum())
@@ -81,12 +98,29 @@ def _r2(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]) -> tup
     return (1.0 - ssr / sst if sst > 0 else 0.0), rank
 
 
+def _column_scales(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per column, the mean and the largest size after the shift (1 for the intercept and for
+    a column without spread), taken column by column so that columns on a 1e300 scale neither
+    overflow nor, on 1e-300, underflow in the cross products; every statistic here is unchanged
+    by the scale of a column."""
+    k = X.shape[1]
+    shift, size = np.zeros(k), np.ones(k)
+    for j in range(1, k):
+        top = float(np.max(np.abs(X[:, j]))) if len(X) else 0.0
+        top = top if 0 < top < np.inf else 1.0
+        shift[j] = float(np.mean(X[:, j] / top)) * top
+        spread = float(np.max(np.abs(X[:, j] - shift[j]))) if len(X) else 0.0
+        size[j] = spread if 0 < spread < np.inf else 1.0
+    return shift, size
+
+
 def _shifted(X: np.ndarray, root_w: np.ndarray | None) -> Callable[[int, int], np.ndarray]:
-    """Rows start:stop of sqrt(w)·[1, x - x̄] (the regressors shifted by their means)."""
-    shift = np.concatenate([[0.0], X[:, 1:].mean(axis=0)])
+    """Rows start:stop of sqrt(w)·[1, x - x̄] (the regressors shifted by their means), each
+    column divided by its largest size (``_column_scales``)."""
+    shift, size = _column_scales(X)
 
     def rows(start: int, stop: int) -> np.ndarray:
-        chunk = X[start:stop] - shift
+        chunk = (X[start:stop] - shift) / size
         if root_w is not None:
             chunk *= root_w[start:stop, None]
         return chunk
@@ -97,13 +131,17 @@ def _shifted(X: np.ndarray, root_w: np.ndarray | None) -> Callable[[int, int], n
 def breusch_pagan(u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None) -> dict[str, float]:
     """Studentized Breusch-Pagan test; ``u`` the (weighted) residuals, X the unweighted design."""
     r2, rank = _r2(u * u, X.shape[1], _shifted(X, root_w))
-    statistic = len(u) * r2
-    return {"statistic": statistic, "p_value": float(stats.chi2.sf(statistic, rank - 1)), "df": rank - 1}
+    return _chi2(len(u) * r2, rank - 1)
 
 
-def white(u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None) -> dict[str, float]:
-    """White's test; ``u`` the (weighted) residuals, X the unweighted design."""
-    k = X.shape[1]
+def white(u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None, fitted: np.ndarray | None = None) -> dict[str, Any]:
+    """White's test; ``u`` the (weighted) residuals, X the unweighted design. Over the budget
+    (``WHITE_MAX_COLUMNS``, ``WHITE_MAX_WORK``) and given the fitted values, the form on the
+    fitted values and their squares (``white_fitted``)."""
+    n, k = X.shape
+    p = k * (k + 1) // 2
+    if fitted is not None and (p > WHITE_MAX_COLUMNS or n * float(p) ** 2 > WHITE_MAX_WORK):
+        return {**white_fitted(u, fitted, root_w), "note": WHITE_FALLBACK_NOTE.format(k=k, p=p)}
     i0, i1 = np.triu_indices(k)
     shifted = _shifted(X, root_w)
 
@@ -115,13 +153,47 @@ def white(u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None) -> dic
         return out
 
     r2, rank = _r2(u * u, len(i0), products)
-    statistic = len(u) * r2
-    return {"statistic": statistic, "p_value": float(stats.chi2.sf(statistic, rank - 1)), "df": rank - 1}
+    return {**_chi2(len(u) * r2, rank - 1), "form": "full", "note": None}
+
+
+def white_fitted(u: np.ndarray, fitted: np.ndarray, root_w: np.ndarray | None = None) -> dict[str, Any]:
+    """The special form of White's test (Wooldridge, Introductory Econometrics, 7th ed., §8.3):
+    n·R² of û² on 1, ŷ and ŷ² (weighted rows: w·[1, ŷ, ŷ²], within the span of the full test's
+    columns), χ² with rank - 1 df (2 unless ŷ takes fewer than three values)."""
+    spread = float(np.max(np.abs(fitted - np.mean(fitted)))) if len(fitted) else 0.0
+    scaled = (fitted - np.mean(fitted)) / (spread if 0 < spread < np.inf else 1.0)
+    weight = None if root_w is None else root_w * root_w
+
+    def columns(start: int, stop: int) -> np.ndarray:
+        f = scaled[start:stop]
+        out = np.column_stack([np.ones_like(f), f, f * f])
+        return out if weight is None else out * weight[start:stop, None]
+
+    r2, rank = _r2(u * u, 3, columns)
+    return {**_chi2(len(u) * r2, rank - 1), "form": "fitted"}
+
+
+def _chi2(statistic: float, df: int) -> dict[str, Any]:
+    """Statistic, χ² p-value and df; null (NaN) statistic and p-value when nothing is tested."""
+    if df < 1 or not math.isfinite(statistic):
+        return {"statistic": float("nan"), "p_value": float("nan"), "df": max(df, 0)}
+    return {"statistic": statistic, "p_value": float(stats.chi2.sf(statistic, df)), "df": df}
+
+
+def _unit_size(u: np.ndarray) -> np.ndarray:
+    """u divided by its largest size, so that powers of residuals on 1e±300 scales neither
+    overflow nor underflow (the tests are unchanged by the scale of u)."""
+    top = float(np.max(np.abs(u))) if len(u) else 0.0
+    return u / top if 0 < top < np.inf else u
 
 
 def jarque_bera(u: np.ndarray) -> dict[str, float]:
-    centred = u - u.mean()
-    m2 = float(np.mean(centred**2))
+    nan = float("nan")
+    centred = _unit_size(u - np.mean(u))
+    m2 = float(np.mean(centred**2)) if len(u) else 0.0
+    if not m2 > 0 or not math.isfinite(m2):
+        # Residuals all equal (a perfect fit): no shape to test.
+        return {"statistic": nan, "p_value": nan, "skewness": nan, "kurtosis": nan}
     skew = float(np.mean(centred**3)) / m2**1.5
     kurt = float(np.mean(centred**4)) / m2**2
     statistic = len(u) / 6.0 * (skew**2 + (kurt - 3.0) ** 2 / 4.0)
@@ -136,7 +208,8 @@ def reset(u: np.ndarray, X: np.ndarray, fitted: np.ndarray, ssr: float, root_w: 
     projection itself."""
     n, k = X.shape
     # Scale the fitted values before powering them so the auxiliary design stays well conditioned.
-    scaled = (fitted - fitted.mean()) / (fitted.std() or 1.0)
+    spread = float(np.max(np.abs(fitted - np.mean(fitted)))) if n else 0.0
+    scaled = (fitted - np.mean(fitted)) / (spread if 0 < spread < np.inf else 1.0)
     shifted = _shifted(X, root_w)
 
     def columns(start: int, stop: int) -> np.ndarray:
@@ -153,6 +226,9 @@ def reset(u: np.ndarray, X: np.ndarray, fitted: np.ndarray, ssr: float, root_w: 
     ssr_full = ssr - explained
     df_num = 2
     df_den = n - k - 2
+    if df_den < 1 or not ssr_full > 0 or not math.isfinite(explained):
+        # Too few rows for the two extra columns, or a perfect fit: no F statistic.
+        return {"statistic": float("nan"), "p_value": float("nan"), "df_num": df_num, "df_den": df_den}
     statistic = (explained / df_num) / (ssr_full / df_den)
     return {"statistic": statistic, "p_value": float(stats.f.sf(statistic, df_num, df_den)), "df_num": df_num, "df_den": df_den}
 
@@ -164,16 +240,21 @@ def vif(X: np.ndarray, names: list[str]) -> list[dict[str, Any]]:
     n, k = X.shape
     if k <= 2:
         return [{"name": names[i], "vif": 1.0} for i in range(1, k)]
-    means = X[:, 1:].mean(axis=0)
+    shift, size = _column_scales(X)
     cross = np.zeros((k - 1, k - 1))
     for start in row_chunks(n):
-        chunk = X[start : start + CHUNK_ROWS, 1:] - means
+        chunk = (X[start : start + CHUNK_ROWS, 1:] - shift[1:]) / size[1:]
         cross += chunk.T @ chunk
     corr = cross / (n - 1)
     sd = np.sqrt(np.diag(corr))
     corr = corr / sd[:, None] / sd[None, :]
+    if not np.isfinite(corr).all():
+        return [{"name": names[i + 1], "vif": float("nan")} for i in range(k - 1)]
     np.clip(corr, -1, 1, out=corr)
-    inverse = np.linalg.pinv(corr)
+    try:
+        inverse = np.linalg.pinv(corr)
+    except np.linalg.LinAlgError:
+        return [{"name": names[i + 1], "vif": float("nan")} for i in range(k - 1)]
     return [{"name": names[i + 1], "vif": float(inverse[i, i])} for i in range(k - 1)]
 
 
@@ -206,14 +287,16 @@ def influence(design: Design, fit: OLSFit) -> dict[str, Any]:
 
 
 def diagnostics(design: Design, fit: OLSFit) -> dict[str, Any]:
-    root_w = np.sqrt(fit.weights) if fit.weights is not None else None
-    u = fit.resid if root_w is None else fit.resid * root_w
+    # The weights and the residuals at unit size: every test is unchanged by their scale, and
+    # weights or outcomes on 1e±300 scales would otherwise overflow or vanish in the squares.
+    root_w = _unit_size(np.sqrt(fit.weights)) if fit.weights is not None else None
+    u = _unit_size(fit.resid if root_w is None else fit.resid * root_w)
     names = [t.name for t in design.terms]
     return {
         "breusch_pagan": breusch_pagan(u, design.X, root_w),
-        "white": white(u, design.X, root_w),
+        "white": white(u, design.X, root_w, fit.fitted),
         "jarque_bera": jarque_bera(u),
-        "reset": reset(u, design.X, fit.fitted, fit.ssr, root_w),
+        "reset": reset(u, design.X, fit.fitted, float(u @ u), root_w),
         "vif": vif(design.X, names),
         "influence": influence(design, fit),
     }
