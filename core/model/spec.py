@@ -11,11 +11,12 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from core.errors import SpecError
 from core.model.covariance import COVARIANCE_KINDS
-from core.model.transforms import Category, Transform, parse_transform
+from core.model.transforms import Category, ShiftedLog, Transform, parse_transform
 
 TOP_KEYS = {
     "outcome",
@@ -38,6 +39,9 @@ REGRESSOR_KEYS = {"column", "transform", "change", "reference"}
 ESTIMATORS = ("ols", "ppml")
 SCENARIO_KEYS = {"name", "changes"}
 BOOTSTRAP_KEYS = {"draws", "seed", "cluster"}
+# A log shift above this many times a column's largest size makes log(x + c) a straight line
+# to within rounding (x/c near 1e-10 against rounding of 1e-16 of log c): refused.
+MAX_SHIFT_RATIO = 1e10
 # Bounds on the bootstrap draws (BCa needs about a thousand; each draw is one small solve).
 MIN_DRAWS, MAX_DRAWS = 50, 100_000
 
@@ -137,6 +141,10 @@ def parse_change(text: object, where: str) -> Change:
     match = _PERCENT.match(raw)
     if match:
         amount = float(match.group(2)) * (1 if match.group(1) == "+" else -1)
+        if not math.isfinite(amount):
+            raise SpecError(
+                f"{where}: a change of {raw[:40]} is beyond the range of floating-point numbers; give a smaller change."
+            )
         if amount <= -100:
             raise SpecError(f"{where}: a change of {raw} would make the variable zero or negative; use a change above -100%.")
         if amount == 0:
@@ -145,7 +153,12 @@ def parse_change(text: object, where: str) -> Change:
     match = _UNITS.match(raw)
     if match:
         amount = float(match.group(2)) * (1 if match.group(1) == "+" else -1)
-        if amount == 0 or not math.isfinite(amount):
+        if not math.isfinite(amount):
+            raise SpecError(
+                f"{where}: a change of {raw[:40]} is beyond the range of floating-point numbers (about ±1.8e308); "
+                "give a change on the scale of the data."
+            )
+        if amount == 0:
             raise SpecError(f"{where}: a change of {raw} changes nothing; give a non-zero change.")
         return Change(text=raw, kind="units", amount=amount)
     match = _ARROW.match(raw)
@@ -278,26 +291,50 @@ def _parse_points(spec: dict, regressors: list[RegressorSpec]) -> tuple[dict[str
     at = spec.get("at") or {}
     if not isinstance(at, dict):
         raise SpecError('spec.at: must be an object of reference values, e.g. {"drink_price": 4.5}.')
-    used = {r.column for r in regressors}
+    at = dict(at)  # the caller's spec is never changed
+    by_column = {r.column: r for r in regressors}
     for key, value in at.items():
-        if key not in used:
+        if key not in by_column:
             raise SpecError(f"spec.at: '{key}' is not a regressor of this model; remove it or add the regressor.")
-        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-            raise SpecError(f"spec.at.{key}: must be a number (or a level name for a category).")
-        if isinstance(value, float) and not math.isfinite(value):
-            raise SpecError(f"spec.at.{key}: must be a finite number.")
+        at[key] = _point_value(value, by_column[key], f"spec.at.{key}")
 
     predict = spec.get("predict") or []
     if not isinstance(predict, list) or not all(isinstance(p, dict) for p in predict):
         raise SpecError('spec.predict: must be a list of objects of regressor values, e.g. [{"drink_price": 5}].')
+    points = []
     for i, point in enumerate(predict):
-        for key, value in point.items():
-            if key not in used:
+        for key in point:
+            if key not in by_column:
                 raise SpecError(f"spec.predict[{i}]: '{key}' is not a regressor of this model.")
-            if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-                raise SpecError(f"spec.predict[{i}].{key}: must be a number (or a level name for a category).")
+        points.append({key: _point_value(value, by_column[key], f"spec.predict[{i}].{key}") for key, value in point.items()})
+    return at, points
 
-    return at, predict
+
+def _point_value(value: object, regressor: RegressorSpec, where: str) -> Any:
+    """A value of ``at`` or ``predict``: a level name (text or number) for a category, else a
+    finite number in the range of floating point that the regressor's transform takes."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise SpecError(f"{where}: must be a number (or a level name for a category).")
+    if isinstance(regressor.transform, Category):
+        return value
+    column = regressor.column
+    try:
+        number = float(value)
+    except OverflowError:
+        number = math.inf
+    except ValueError:
+        raise SpecError(
+            f"{where}: '{str(value)[:40]}' is not a number; '{column}' is a numeric regressor, so give a number in its units."
+        ) from None
+    if not math.isfinite(number):
+        raise SpecError(
+            f"{where}: must be a finite number within about ±1.8e308 (the range of floating-point numbers); "
+            f"give a value in the units of '{column}'."
+        )
+    bad, reason = regressor.transform.invalid(np.array([number]))
+    if bad[0]:
+        raise SpecError(f"{where}: {number:g} cannot be used because {reason}; give a value the transform takes.")
+    return number
 
 
 def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
@@ -314,12 +351,9 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
     outcome_transform = parse_transform(outcome.get("transform", "level"), "outcome", "spec.outcome")
 
     regressors = _parse_regressors(spec, data, outcome_column)
+    _check_shifts(outcome_column, outcome_transform, regressors, data)
     estimator, covariance, cluster, time, lags = _parse_estimation(spec, data, outcome_transform)
-    weights = spec.get("weights")
-    if weights:
-        weights = _require_column(weights, data, "spec.weights")
-    else:
-        weights = None
+    weights = _parse_weights(spec, data, regressors)
 
     at, predict = _parse_points(spec, regressors)
     name = spec.get("name")
@@ -342,6 +376,47 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         scenarios=_parse_scenarios(spec, regressors),
         bootstrap=_parse_bootstrap(spec, data, estimator),
     )
+
+
+def _parse_weights(spec: dict, data: pd.DataFrame, regressors: list[RegressorSpec]) -> str | None:
+    """The weights column: numbers, never a category regressor or a column of text."""
+    weights = spec.get("weights")
+    if not weights:
+        return None
+    weights = _require_column(weights, data, "spec.weights")
+    if any(r.column == weights and isinstance(r.transform, Category) for r in regressors):
+        raise SpecError(
+            f"spec.weights: '{weights}' is a category regressor of this model; weights must be a column of positive numbers."
+        )
+    series = data[weights]
+    if not (pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series)):
+        text = series.notna() & pd.to_numeric(series, errors="coerce").isna()
+        if text.any():
+            row = int(np.argmax(text.to_numpy()))
+            raise SpecError(
+                f"spec.weights: '{weights}' holds text (row {row + 1}: '{str(series.iloc[row])[:20]}'), so it cannot weight "
+                "the rows; name a column of positive numbers, or remove 'weights'."
+            )
+    return weights
+
+
+def _check_shifts(outcome_column: str, outcome_transform: Transform, regressors: list[RegressorSpec], data: pd.DataFrame) -> None:
+    """Refuse a log shift so large next to the column that log(x + c) is a straight line to
+    within rounding (``MAX_SHIFT_RATIO`` times the column's largest size)."""
+    used = [(outcome_column, outcome_transform, "spec.outcome")]
+    used += [(r.column, r.transform, f"spec.regressors ({r.column})") for r in regressors]
+    for column, transform, where in used:
+        if not isinstance(transform, ShiftedLog):
+            continue
+        values = pd.to_numeric(data[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        finite = np.abs(values[np.isfinite(values)])
+        size = float(finite.max()) if len(finite) else 0.0
+        if transform.shift > MAX_SHIFT_RATIO * max(size, np.finfo(float).tiny):
+            raise SpecError(
+                f"{where}: the shift {transform.shift:g} in '{transform.code}' is more than {MAX_SHIFT_RATIO:g} times the "
+                f"largest value of '{column}' ({size:g}), so log({column} + shift) cannot tell the values apart; "
+                "use a shift on the scale of the data, e.g. 'shifted_log:1' for counts."
+            )
 
 
 def _parse_scenarios(spec: dict, regressors: list[RegressorSpec]) -> tuple[Scenario, ...]:

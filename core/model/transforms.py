@@ -406,10 +406,20 @@ def _make_shifted_log(parameter: str | None, text: str, where: str) -> Transform
     return ShiftedLog(shift=value)
 
 
+# Smallest non-zero Box-Cox power taken (see ``_make_boxcox``).
+BOXCOX_MIN_POWER = 1e-6
+
+
 def _make_boxcox(parameter: str | None, text: str, where: str) -> Transform:
     value = _number(parameter, text, where, "boxcox:0.5")
     if abs(value) > 5:
         raise SpecError(f"{where}: a Box-Cox power of {_fmt(value)} is outside -5..5; pick a power in that range.")
+    if value != 0 and abs(value) < BOXCOX_MIN_POWER:
+        # (1 + λz)^(1/λ) loses about eps/|λ| of its digits: below 1e-6 the inverse is unreliable.
+        raise SpecError(
+            f"{where}: a Box-Cox power of {_fmt(value)} is too close to 0 to compute with; use 'boxcox:0' (the log) "
+            f"or a power of at least {BOXCOX_MIN_POWER:g} in size."
+        )
     return BoxCox(power=value)
 
 
