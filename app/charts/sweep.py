@@ -15,6 +15,13 @@ from core.output.theme import BLUE, GREEN, GREY, INK, ORANGE, PURPLE, SKY, VERMI
 FORM_COLOURS = {"level": GREY, "log": BLUE, "ihs": SKY, "sqrt": GREEN, "quadratic": PURPLE, "shifted_log:1": ORANGE}
 
 
+def _whiskers(models: list[dict[str, Any]], pct: list[Any]) -> dict[str, Any]:
+    """Each model's 95 % interval as whiskers around its effect."""
+    high = [(m["percent_ci_high"] or p) - p if p is not None else None for m, p in zip(models, pct, strict=True)]
+    low = [p - (m["percent_ci_low"] or p) if p is not None else None for m, p in zip(models, pct, strict=True)]
+    return {"type": "data", "symmetric": False, "array": high, "arrayminus": low, "color": SKY, "thickness": 1.5, "width": 0}
+
+
 def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[str]) -> go.Figure:
     models = sorted(sweep["models"], key=lambda m: (m["percent"] is None, m["percent"] or 0.0))
     rank = {id(m): i + 1 for i, m in enumerate(sweep["models"])}  # 1 = best by AIC
@@ -28,17 +35,7 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
             y=pct,
             mode="markers",
             marker={"color": INK, "size": 6},
-            error_y={
-                "type": "data",
-                "symmetric": False,
-                "array": [(m["percent_ci_high"] or p) - p if p is not None else None for m, p in zip(models, pct, strict=True)],
-                "arrayminus": [
-                    p - (m["percent_ci_low"] or p) if p is not None else None for m, p in zip(models, pct, strict=True)
-                ],
-                "color": SKY,
-                "thickness": 1.5,
-                "width": 0,
-            },
+            error_y=_whiskers(models, pct),
             name="Effect with 95 % interval",
             customdata=[rank[id(m)] for m in models],
             hovertemplate="AIC rank %{customdata}<br>%{y:.2f} %<extra></extra>",

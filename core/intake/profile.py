@@ -3,7 +3,7 @@
 ``profile_table(frame, notes)`` describes every column — its kind, missing values, zeros,
 negatives, range, skewness before and after a log or IHS, a small histogram, the Box-Cox λ of
 the column alone — and adds the advisor's transform with reasons in plain words
-(``core.intake.advisor.suggest_transform``, re-exported here).
+(``core.intake.column_rule.suggest_transform``, re-exported here).
 
 Kinds come from the values and the column name together: the name says what a number means
 (a price, an age), the values say what a transform can do with it (zeros, negatives, skew).
@@ -22,7 +22,7 @@ import pandas as pd
 from scipy import stats
 
 from core.inference.shape import skewness
-from core.intake.advisor import name_words, suggest_transform
+from core.intake.column_rule import name_words, suggest_transform
 from core.intake.reader import ATTRS_KEY
 
 KINDS = ("money", "count", "duration_years", "share", "percent", "binary", "category", "continuous", "identifier", "date", "text")

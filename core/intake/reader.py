@@ -1196,6 +1196,40 @@ def _parse_cell(value: Any, decimal: str) -> _Cell:
     return _Cell("text", text=text)
 
 
+def _number_notes(
+    column: str, cells: list[Any], tally: Any, examples: Any, n_number: int, notes: list[str]
+) -> tuple[list[str], int]:
+    """The notes for a column read as numbers: currency symbols and separators removed,
+    accounting negatives, percent signs, infinities. Returns the symbols and the percent count."""
+    symbols = sorted({c.currency for c in cells if c.currency}, key=str)
+    money = tally(lambda c: c.status == "number" and (c.currency or c.thousands))
+    if money:
+        parts = []
+        if symbols:
+            parts.append(f"currency symbol{'s' if len(symbols) > 1 else ''} " + ", ".join(f"'{s}'" for s in symbols))
+        if tally(lambda c: c.status == "number" and c.thousands):
+            parts.append("thousands separators")
+        notes.append(f"{column}: removed {' and '.join(parts)} in {money:,} cell{'s' if money > 1 else ''}.")
+    negative = tally(lambda c: c.parens)
+    if negative:
+        notes.append(
+            f"{column}: read {negative:,} amount{'s' if negative > 1 else ''} in parentheses "
+            f"(such as {examples(lambda c: c.parens, 1)}) as negative numbers (accounting style)."
+        )
+    percent = tally(lambda c: c.percent)
+    if percent:
+        note = f"{column}: removed '%' from {percent:,} cell{'s' if percent > 1 else ''}; the numbers are in percent units (12 % is read as 12)."
+        if percent < n_number:
+            note += f" {n_number - percent:,} other cells had no '%'; check that they use the same units."
+        notes.append(note)
+    infinite = tally(lambda c: c.infinite)
+    if infinite:
+        notes.append(
+            f"{column}: {infinite:,} infinite value{'s' if infinite > 1 else ''} ({examples(lambda c: c.infinite)}) kept as infinity; a model leaves those rows out."
+        )
+    return symbols, percent
+
+
 def _clean_column(series: pd.Series, column: str, decimal: str) -> tuple[pd.Series, list[str], _Column]:
     """Turn a text column into numbers when its cells are numbers in disguise; note each change."""
     codes, uniques = pd.factorize(series.to_numpy(dtype=object), use_na_sentinel=True)
@@ -1233,32 +1267,7 @@ def _clean_column(series: pd.Series, column: str, decimal: str) -> tuple[pd.Seri
 
     if n_text == 0 and n_date == 0:
         values = np.array([c.value for c in cells] + [np.nan])[codes]
-        symbols = sorted({c.currency for c in cells if c.currency}, key=str)
-        money = tally(lambda c: c.status == "number" and (c.currency or c.thousands))
-        if money:
-            parts = []
-            if symbols:
-                parts.append(f"currency symbol{'s' if len(symbols) > 1 else ''} " + ", ".join(f"'{s}'" for s in symbols))
-            if tally(lambda c: c.status == "number" and c.thousands):
-                parts.append("thousands separators")
-            notes.append(f"{column}: removed {' and '.join(parts)} in {money:,} cell{'s' if money > 1 else ''}.")
-        negative = tally(lambda c: c.parens)
-        if negative:
-            notes.append(
-                f"{column}: read {negative:,} amount{'s' if negative > 1 else ''} in parentheses "
-                f"(such as {examples(lambda c: c.parens, 1)}) as negative numbers (accounting style)."
-            )
-        percent = tally(lambda c: c.percent)
-        if percent:
-            note = f"{column}: removed '%' from {percent:,} cell{'s' if percent > 1 else ''}; the numbers are in percent units (12 % is read as 12)."
-            if percent < n_number:
-                note += f" {n_number - percent:,} other cells had no '%'; check that they use the same units."
-            notes.append(note)
-        infinite = tally(lambda c: c.infinite)
-        if infinite:
-            notes.append(
-                f"{column}: {infinite:,} infinite value{'s' if infinite > 1 else ''} ({examples(lambda c: c.infinite)}) kept as infinity; a model leaves those rows out."
-            )
+        symbols, percent = _number_notes(column, cells, tally, examples, n_number, notes)
         facts.currency = symbols
         facts.percent = percent * 2 >= n_number
         finite = values[np.isfinite(values)]
