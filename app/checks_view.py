@@ -3,6 +3,8 @@ variables as transformed, entangled regressors and influential rows."""
 
 from __future__ import annotations
 
+from typing import Any
+
 import streamlit as st
 
 from app import charts, exports, tables
@@ -12,14 +14,18 @@ from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
 from core.output.text import (
+    boxcox_headline,
     boxcox_sentence,
-    check_sentences,
+    check_verdicts,
     showing_words,
     skew_words,
 )
 
-
 # --- residual checks ----------------------------------------------------------------------------------------
+# Width of a check's chart beside its words (three fifths of the main column at a 1440 px window).
+CARD_CHART = 600
+
+
 def checks_view(ctx: Context) -> None:
     spec = ctx.spec
     if ctx.ppml:
@@ -33,43 +39,24 @@ def checks_view(ctx: Context) -> None:
     with st.spinner("Running the residual checks…"):
         result = ctx.analyze(CHECK_PARTS)
         residuals = ctx.analyze({"residuals"}).get("residuals")
-    st.markdown("##### What the tests say")
-    for concern, sentence in check_sentences(result.get("diagnostics") or {}, result.get("covariance", "HC1")):
-        st.markdown(f"{':orange[**⚠**]' if concern else ':green[**✓**]'} {plain(sentence)}")
-    if result.get("diagnostics"):
-        exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
+    diagnostics = result.get("diagnostics") or {}
     if residuals is not None:
-        st.markdown("##### The residuals")
+        verdicts = check_verdicts(diagnostics, result.get("covariance", "HC1"), residuals)
         st.caption(
             plain(
-                f"Residuals are on the scale of {ctx.outcome_label}. "
-                f"Dots: {showing_words(residuals['shown'], residuals['n'])}; lines and bars use every row."
+                f"Four questions about the model, each answered in words beside the chart that shows it. Residuals are "
+                f"on the scale of {ctx.outcome_label}. Grey dots: {showing_words(residuals['shown'], residuals['n'])}; "
+                "boxes, bands and tails use every row."
             )
         )
-        fitted_label = ctx.outcome_label
-        top = st.columns(2)
-        with top[0]:
-            chart(charts.residuals_figure(residuals, fitted_label), key="resid_fitted", screen_width=HALF_COLUMN)
-        with top[1]:
-            chart(charts.qq_figure(residuals), key="resid_qq", screen_width=HALF_COLUMN)
-        bottom = st.columns(2)
-        with bottom[0]:
-            chart(charts.residual_histogram(residuals), key="resid_hist", screen_width=HALF_COLUMN)
-        with bottom[1]:
-            chart(charts.scale_location_figure(residuals, fitted_label), key="resid_scale", screen_width=HALF_COLUMN)
-
-    st.markdown(f"##### Is the transform of {plain(ctx.outcome)} right?")
-    boxcox = result.get("boxcox")
-    if boxcox:
-        chart(charts.boxcox_figure(boxcox, ctx.outcome), key="boxcox_chart")
-        st.markdown(plain(boxcox_sentence(boxcox, ctx.outcome)))
-    else:
-        st.info(
-            plain(
-                f"The Box-Cox profile needs {ctx.outcome} above zero in every row used; it is not, so only the "
-                "transforms that accept zeros (levels, IHS, log(x + 1), PPML) apply."
-            )
-        )
+        figures = charts.check_figures(residuals, verdicts, ctx.outcome_label)
+        for verdict in verdicts:
+            concern = verdict["concern"] if verdict["tested"] else None
+            figure = figures[verdict["check"]]
+            _check_card(verdict["question"], concern, verdict["sentences"], figure, f"check_{verdict['check']}")
+    _boxcox_card(ctx, result.get("boxcox"))
+    if diagnostics:
+        exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
     distributions_section(ctx)
 
     st.markdown("##### Regressors that move together")
@@ -103,6 +90,53 @@ def checks_view(ctx: Context) -> None:
         st.table(tables.styled(table, numbers_in=columns), hide_index=True)
 
 
+def _check_card(question: str, concern: bool | None, sentences: list[str], figure: Any, key: str) -> None:
+    """One check: the question, its verdict as a mark and the sentences behind it, beside the
+    chart that shows it (titled with the verdict, so it says the same on a slide)."""
+    with st.container(border=True):
+        words, picture = st.columns([2, 3], gap="medium")
+        with words:
+            st.markdown(f"##### {plain(question)}")
+            if concern is not None:
+                st.markdown(":orange-badge[⚠ Worth a look]" if concern else ":green-badge[✓ Looks fine]")
+            for sentence in sentences:
+                st.markdown(plain(sentence))
+        with picture:
+            chart(figure, key=key, screen_width=CARD_CHART)
+
+
+def _boxcox_card(ctx: Context, boxcox: dict[str, Any] | None) -> None:
+    question = f"Is the transform of {ctx.outcome} right?"
+    if not boxcox:
+        st.markdown(f"##### {plain(question)}")
+        st.info(
+            plain(
+                f"The Box-Cox profile needs {ctx.outcome} above zero in every row used; it is not, so only the "
+                "transforms that accept zeros (levels, IHS, log(x + 1), PPML) apply."
+            )
+        )
+        return
+    power = power_of(ctx.result["outcome"]["transform"])
+    low, high = boxcox.get("ci_low"), boxcox.get("ci_high")
+    concern = None if power is None or low is None or high is None else not low <= power <= high
+    sentences = [boxcox_headline(boxcox, ctx.outcome) + ".", boxcox_sentence(boxcox, ctx.outcome)]
+    _check_card(question, concern, sentences, charts.boxcox_figure(boxcox, ctx.outcome), "boxcox_chart")
+
+
+def power_of(transform: str) -> float | None:
+    """The Box-Cox power a transform of the outcome is: 0 for a log, 1 for levels, L for boxcox:L."""
+    if transform == "log":
+        return 0.0
+    if transform == "level":
+        return 1.0
+    if transform.startswith("boxcox:"):
+        try:
+            return float(transform.split(":", 1)[1])
+        except ValueError:
+            return None
+    return None
+
+
 def distributions_section(ctx: Context) -> None:
     items = ctx.analyze({"distributions"}).get("distributions") or []
     if not items:
@@ -116,7 +150,7 @@ def distributions_section(ctx: Context) -> None:
         cols = st.columns(2)
         for col, item in zip(cols, items[start : start + 2], strict=False):
             with col:
-                chart(charts.distribution_figure(item), key=f"dist_{item['column']}")
+                chart(charts.distribution_figure(item), key=f"dist_{item['column']}", screen_width=HALF_COLUMN)
                 extra = f" · {item['n_left_out']:,} rows the transform cannot take left out" if item["n_left_out"] else ""
                 words = skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
                 st.caption(plain(f"{item['label']}: {words}{extra}"))

@@ -66,7 +66,12 @@ def test_export_config_sizes_formats_and_file_names() -> None:
     assert charts.export_config("half")["toImageButtonOptions"]["width"] == 640
     assert charts.export_config("square")["toImageButtonOptions"]["height"] == 720
     assert charts.size_label("full") == "Full slide, 16:9 (PNG 3840 × 2160)"
-    assert charts.export_config("full", "svg")["toImageButtonOptions"]["format"] == "svg"
+    svg = charts.export_config("full", "svg")
+    # An SVG is drawn at the canvas size itself, so the file declares 1280 x 720.
+    assert (svg["toImageButtonOptions"]["format"], svg["toImageButtonOptions"]["scale"]) == ("svg", 1)
+    # The trimmed toolbar: download, zoom and back to the whole chart, titled in our words.
+    assert svg["modeBarButtons"] == [["toImage", "zoom2d", "resetScale2d"]]
+    assert svg["locales"]["en-US"]["dictionary"]["Download plot"] == "Download for a slide (SVG)"
     assert charts.file_stem("formwise-dist_![x](http://h/p.png)") == "formwise-dist__x_http_h_p.png"
     assert charts.file_stem("../..") == "chart"
 
@@ -74,13 +79,9 @@ def test_export_config_sizes_formats_and_file_names() -> None:
 def test_long_titles_wrap_and_the_legend_stays_with_the_plot() -> None:
     text, lines = charts.wrap("a " * 60, 20)
     assert lines > 1 and all(len(line) <= 20 for line in text.split("<br>"))
-    fig = charts.residuals_figure(
-        {
-            "fitted": [1.0, 2.0],
-            "resid": [0.1, -0.1],
-            "shown": 2,
-            "trend": {"x": [1.0, 2.0], "y": [0.0, 0.0]},
-        },
+    fig = charts.curvature_figure(
+        {"mean_bands": [{"mid": 1.0, "n": 40, "mean": 0.1, "low": -0.1, "high": 0.3}] * 2},
+        "No sign of a missing curve",
         "log of a_very_long_outcome_name_that_goes_on_and_on_for_a_while",
     )
     # Pinned to the plot's top edge and the figure's top edge: they do not drift when the
@@ -118,7 +119,7 @@ def test_every_chart_exports_at_the_chosen_slide_size() -> None:
         "filename": "formwise-gap_chart",
         "width": 640,
         "height": 720,
-        "scale": 3,
+        "scale": 1,
     }
 
 

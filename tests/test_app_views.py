@@ -27,7 +27,15 @@ from core.model.fitted import fit_model
 from core.model.spec import parse_spec
 from core.output import display
 from core.output.numbers import p_text, sig
-from core.output.text import boxcox_sentence, check_sentences, factor_words, skew_words, units_warning
+from core.output.text import (
+    boxcox_headline,
+    boxcox_sentence,
+    check_sentences,
+    check_verdicts,
+    factor_words,
+    skew_words,
+    units_warning,
+)
 from tests.app_support import edit_grid, start
 from tests.helpers import shown, shown_table
 
@@ -214,20 +222,61 @@ def test_residual_checks_view_reads_the_tests_in_plain_words() -> None:
     assert "log of drink_price" in set(vif["Term"])
     influence = table_with(at, "Cook's distance")
     assert {"Sheet row", "Leverage", "weekly_revenue", "region"} <= set(influence.columns)
+    for question in ("Is the spread even?", "Are the residuals shaped like a bell?", "Is a curve missing?"):
+        assert question in words
+    assert "Is the transform of weekly_revenue right?" in words
+    # Each check's chart is titled with its verdict, the words beside it.
+    residuals = core.analyze(at.session_state["data"]["frame"], DEMO_SPEC, parts={"residuals"})["residuals"]
+    verdicts = check_verdicts(result["diagnostics"], "HC1", residuals)
     titles = [f["layout"]["title"]["text"].replace("<br>", " ") for f in figures(at)]  # wrapped to fit
-    for expected in (
-        "Residuals against fitted values",
-        "Residuals against a normal curve (Q–Q)",
-        "How the residuals are spread",
-        "Spread of residuals against fitted values",
+    for expected in [v["headline"] for v in verdicts] + [
         "Which power of weekly_revenue fits best (Box-Cox)",
         "weekly_revenue (outcome)",
-    ):
+    ]:
         assert expected in titles
+    # No chart of the standard four-panel kind: no Q-Q, no histogram of residuals, no scale-location.
+    assert not any("Q–Q" in t or "normal curve" in t or "√" in t for t in titles)
     boxcox = next(f for f in figures(at) if "Box-Cox" in f["layout"]["title"]["text"])
     labels = [a["text"] for a in boxcox["layout"]["annotations"]]
-    assert "λ = 0: log" in labels and "λ = 1: level" in labels
+    assert {"log", "level"} <= set(labels) and any(label.startswith("best ") for label in labels)
     assert all(figure_points(f) <= MAX_POINTS for f in figures(at))
+
+
+def test_check_verdicts_in_plain_words() -> None:
+    diagnostics = {
+        "breusch_pagan": {"p_value": 0.003},
+        "white": {"p_value": 0.92},
+        "jarque_bera": {"p_value": 0.0001, "skewness": 0.1, "kurtosis": 6.0},
+        "reset": {"p_value": 0.5},
+    }
+    residuals = {
+        "spread_bands": [{"n": 150, "q25": -1.0, "q75": 1.0}, {"n": 150, "q25": -2.0, "q75": 2.0}],
+        "tails": [
+            {"point": 2.0, "side": "above", "count": 30, "share": 0.02, "normal_share": 0.02275013},
+            {"point": 2.0, "side": "below", "count": 45, "share": 0.03, "normal_share": 0.02275013},
+        ],
+        "mean_bands": [{"low": 0.1, "high": 0.3}] + [{"low": -0.1, "high": 0.1}] * 19,
+    }
+    spread, shape, curve = check_verdicts(diagnostics, "HC1", residuals)
+    assert (spread["question"], spread["concern"], spread["headline"]) == (
+        "Is the spread even?", True, "The spread of the residuals changes"
+    )  # fmt: skip
+    assert spread["sentences"][0].startswith("The spread of residuals changes with the regressors (Breusch–Pagan")
+    assert "(White: p = 0.92)" in spread["sentences"][1]
+    assert spread["sentences"][2].endswith(
+        "the middle half of the residuals is 2.0 times as wide in the widest band as in the narrowest."
+    )
+    assert shape["headline"] == "The residuals have heavier tails than a bell curve"
+    assert (
+        shape["sentences"][-1] == "75 rows (5.0 %) lie more than 2 standard deviations from zero, where a bell curve puts 4.6 %."
+    )
+    assert (curve["concern"], curve["headline"]) == (False, "No sign of a missing curve")
+    assert curve["sentences"][-1].startswith(
+        "1 of 20 bands of fitted values have a mean residual whose 95 % interval misses zero"
+    )
+    assert check_verdicts({}, "HC1")[0]["headline"] == "Not tested for this model"
+    assert boxcox_headline({"lambda": 0.02, "ci_low": -0.1, "ci_high": 0.1}, "y") == "A log of y fits the data"
+    assert boxcox_headline({"lambda": 0.5, "ci_low": -0.2, "ci_high": 1.2}, "y") == "A log or levels of y: the data cannot choose"
 
 
 def test_check_sentences() -> None:
@@ -270,21 +319,41 @@ def test_residuals_match_statsmodels(demo_frame: pd.DataFrame) -> None:
     fit = sm.OLS(np.log(demo_frame["weekly_revenue"]), X).fit()
     np.testing.assert_allclose(data["resid"], fit.resid, rtol=1e-9, atol=1e-12)
     np.testing.assert_allclose(data["fitted"], fit.fittedvalues, rtol=1e-12)
-    studentized = OLSInfluence(fit).resid_studentized_internal
-    np.testing.assert_allclose(data["root_abs"], np.sqrt(np.abs(studentized)), rtol=1e-8)
-    np.testing.assert_allclose(data["qq_sample"], np.sort(studentized), rtol=1e-8)
-    assert sum(data["hist_counts"]) == len(demo_frame)
+    studentized = np.asarray(OLSInfluence(fit).resid_studentized_internal)
+    for tail in data["tails"]:
+        beyond = studentized > tail["point"] if tail["side"] == "above" else studentized < -tail["point"]
+        assert tail["count"] == int(beyond.sum()) and tail["share"] == pytest.approx(beyond.mean())
+        assert tail["low"] <= tail["share"] <= tail["high"]
+    # Every row is counted once in the bands, which run from the lowest fitted value to the highest.
+    order = np.argsort(fit.fittedvalues.to_numpy(), kind="stable")
+    resid = fit.resid.to_numpy()[order]
+    assert sum(b["n"] for b in data["spread_bands"]) == sum(b["n"] for b in data["mean_bands"]) == len(demo_frame)
+    start = 0
+    for band in data["mean_bands"]:
+        rows = resid[start : start + band["n"]]
+        assert band["mean"] == pytest.approx(rows.mean(), abs=1e-12)
+        assert band["low"] < band["mean"] < band["high"]
+        start += band["n"]
+    first = resid[: data["spread_bands"][0]["n"]]
+    assert data["spread_bands"][0]["q25"] == pytest.approx(np.percentile(first, 25))
+
+
+def test_wilson_interval_of_a_tail_share() -> None:
+    # Wilson 1927 score interval; 2 of 100 at 95 %: 0.0055 to 0.0700 (Newcombe 1998, Statistics
+    # in Medicine 17, 857-872, Table I, method 3, as recalled from memory).
+    from core.inference.residuals import _tails
+
+    tails = _tails(np.array([2.5, 3.5] + [0.0] * 98))
+    above_two = next(t for t in tails if t["side"] == "above" and t["point"] == 2.0)
+    assert above_two["count"] == 2
+    assert above_two["low"] == pytest.approx(0.0055, abs=5e-5) and above_two["high"] == pytest.approx(0.0700, abs=5e-5)
 
 
 def test_residual_charts_stay_within_the_point_budget(demo_frame: pd.DataFrame) -> None:
     data = residual_sample(*_fitted(demo_frame, DEMO_SPEC), limit=600)
     assert data["n"] == 1500 and data["shown"] <= 600
-    for fig in (
-        charts.residuals_figure(data, "log of weekly_revenue"),
-        charts.qq_figure(data),
-        charts.residual_histogram(data),
-        charts.scale_location_figure(data, "log of weekly_revenue"),
-    ):
+    verdicts = check_verdicts({}, "HC1", data)
+    for fig in charts.check_figures(data, verdicts, "log of weekly_revenue").values():
         assert charts.point_count(fig) <= 600
     ppml = {**DEMO_SPEC, "estimator": "ppml", "outcome": {"column": "catering_orders", "transform": "level"}}
     assert core.analyze(demo_frame, ppml, parts={"residuals"})["residuals"] is None

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import plotly.graph_objects as go
 
+from app.charts.look import TEMPLATE, text_px, wrap, wrap_px  # noqa: F401 - re-exported for the views' charts
 from core.output.escape import html
 from core.output.theme import (  # noqa: F401 - the app's charts read the shared look from here
     BEYOND_NAME,
@@ -34,13 +35,18 @@ from core.output.theme import (  # noqa: F401 - the app's charts read the shared
 )
 
 # --- shared look of the views' charts ------------------------------------------------------------------
-CONFIG = {"displaylogo": False}
 # Type sizes in CSS pixels of the figure's own canvas. The canvas of a full-slide export is
 # 1280 x 720 px, which at 96 px per inch is the 13.33 x 7.5 in of a 16:9 slide: a size here
 # times 0.75 is the size in points on the slide (ticks 14 pt, title 19.5 pt), the same figure
 # on screen reads like a preview of the slide.
-# Room per row of the legend placed between the subtitle and the plot.
-_LEGEND_ROW = 32
+# The legend between the subtitle and the plot, as plotly.js 3 sets it (components/legend):
+# each entry is a line of 1.3 em plus 3 px, the legend has 5 px of room above and below, and an
+# entry's symbol with its gaps takes 40 px (50 here, with some slack for the text's estimate).
+_LEGEND_LINE = 1.3 * TYPE["legend"]
+_LEGEND_PAD = 10
+_LEGEND_SYMBOL = 50
+# Room between the subtitle's last line and the legend (or the plot, without a legend).
+_HEADER_GAP = 16
 # Widest line of title, subtitle, legend or caption: the chart's width less the margins, and
 # never more than fits the chart on a laptop screen.
 _SCREEN_TEXT_WIDTH = 980
@@ -51,18 +57,6 @@ _BOTTOM = 84
 
 def floats(values: list[Any] | None) -> np.ndarray:
     return np.array([np.nan if v is None else float(v) for v in values or []], dtype=float)
-
-
-def wrap(text: str, limit: int) -> tuple[str, int]:
-    """Text broken at spaces into lines of at most ``limit`` characters (Plotly does not wrap
-    titles itself), joined with <br>; and the number of lines."""
-    lines: list[str] = []
-    for word in text.split(" "):
-        if lines and len(lines[-1]) + 1 + len(word) <= limit:
-            lines[-1] += " " + word
-        else:
-            lines.append(word)
-    return "<br>".join(lines), max(1, len(lines))
 
 
 def text_width(canvas_width: int | None = None) -> int:
@@ -77,33 +71,76 @@ def _chars_per_line(size: float, canvas_width: int | None = None) -> int:
     return int(text_width(canvas_width) / (0.52 * size))
 
 
+def _legend_names(fig: go.Figure) -> list[tuple[int, str]]:
+    """(trace index, unwrapped name) of each legend entry; ``for_slide`` may have wrapped the
+    names, and keeps the originals in the figure's ``meta``."""
+    kept = (fig.layout.meta or {}).get("legend_names") or {}
+    return [(i, kept.get(str(i), t.name)) for i, t in enumerate(fig.data) if t.name and t.showlegend is not False]
+
+
+def legend_plan(fig: go.Figure, canvas_width: int | None = None) -> tuple[int, dict[int, str], float]:
+    """How the legend is set on the canvas: 0 columns when every entry fits on one row (each
+    as wide as its text), else the number of equal columns the widest entry allows (Plotly's
+    ``entrywidthmode="fraction"``, so the rows are the same at every width the chart is drawn
+    at); the names, wrapped when even one column is too narrow; and the legend's height in px."""
+    entries = _legend_names(fig)
+    if not entries:
+        return 0, {}, 0.0
+    room = text_width(canvas_width) - 40
+    widths = [text_px(name, TYPE["legend"]) + _LEGEND_SYMBOL for _, name in entries]
+    if sum(widths) <= room:
+        return 0, dict(entries), _LEGEND_LINE + 3 + _LEGEND_PAD
+    columns = max(1, min(len(entries), int(room // max(widths))))
+    wrapped = {i: wrap_px(name, TYPE["legend"], room / columns - _LEGEND_SYMBOL) for i, name in entries}
+    height = float(_LEGEND_PAD)
+    lines = [wrapped[i][1] for i, _ in entries]
+    for start in range(0, len(lines), columns):
+        height += max(lines[start : start + columns]) * _LEGEND_LINE + 3
+    return columns, {i: text for i, (text, _) in wrapped.items()}, height
+
+
 def legend_rows(fig: go.Figure, canvas_width: int | None = None) -> int:
-    """How many rows the horizontal legend takes on the canvas. Each entry is about half an em
-    per character plus its symbol; entries that do not fit on one row are set by Plotly in a
-    grid of columns as wide as the widest entry (seen in rendered exports)."""
-    names = [t.name for t in fig.data if t.name and t.showlegend is not False]
+    """How many rows the horizontal legend takes on the canvas (``legend_plan``)."""
+    columns, names, _ = legend_plan(fig, canvas_width)
     if not names:
         return 0
-    room = text_width(canvas_width)
-    widths = [len(name) * 0.52 * TYPE["legend"] + 50 for name in names]
-    if sum(widths) <= room:
-        return 1
-    columns = max(1, int(room // max(widths)))
-    return math.ceil(len(names) / columns)
+    return 1 if columns == 0 else math.ceil(len(names) / columns)
+
+
+def _set_legend(fig: go.Figure, canvas_width: int | None) -> float:
+    """The legend laid out for the canvas (``legend_plan``); returns its height."""
+    columns, names, height = legend_plan(fig, canvas_width)
+    if not names:
+        return 0.0
+    meta = dict(fig.layout.meta or {})
+    meta["legend_names"] = {str(i): name for i, name in _legend_names(fig)}
+    fig.update_layout(meta=meta)
+    for i, name in names.items():
+        fig.data[i].name = name
+    if columns:
+        fig.update_layout(legend={"entrywidthmode": "fraction", "entrywidth": 1 / columns})
+    else:
+        fig.update_layout(legend={"entrywidthmode": "pixels", "entrywidth": 0})
+    return height
 
 
 def _top_margin(fig: go.Figure, canvas_width: int | None = None) -> tuple[str, str, int, int]:
     """Title and subtitle wrapped for the canvas, the title's padding from the top edge, and
-    the top margin that holds title, subtitle and legend. The unwrapped texts are kept in the
-    figure's ``meta`` by ``_style``."""
+    the top margin that holds title, subtitle and legend (laid out here too). The unwrapped
+    texts are kept in the figure's ``meta`` by ``style``."""
     meta = fig.layout.meta or {}
     size = meta.get("title_size") or TYPE["title"]
     title, title_lines = wrap(meta.get("title", ""), _chars_per_line(size, canvas_width))
     subtitle, subtitle_lines = wrap(meta.get("subtitle", ""), _chars_per_line(TYPE["subtitle"], canvas_width))
-    rows = legend_rows(fig, canvas_width) if meta.get("legend", True) else 0
+    legend = _set_legend(fig, canvas_width) if meta.get("legend", True) else 0.0
     line = round(1.3 * size)
-    top = 18 + line * title_lines + round(1.35 * TYPE["subtitle"]) * subtitle_lines + 26
-    return title, subtitle, top + _LEGEND_ROW * rows, title_pad(size, title_lines)
+    subtitle_height = 0
+    if meta.get("subtitle"):
+        # Plotly sets a one-line subtitle about 13 px lower than the first line of a longer one
+        # (measured in Chromium for titles of 22 to 26 px and one to three lines).
+        subtitle_height = round(1.35 * TYPE["subtitle"]) * subtitle_lines + (13 if subtitle_lines == 1 else 0)
+    top = 18 + line * title_lines + subtitle_height + _HEADER_GAP
+    return title, subtitle, round(top + legend), title_pad(size, title_lines)
 
 
 def title_pad(size: int, lines: int) -> int:
@@ -132,9 +169,9 @@ def style(
     fig.update_layout(meta={"title": title, "subtitle": subtitle, "title_size": size, "legend": legend, "x_title": x_title})
     title, subtitle, top, title_pad = _top_margin(fig)
     fig.update_layout(
-        template="plotly_white",
-        paper_bgcolor="white",
-        plot_bgcolor="white",
+        template=TEMPLATE,
+        # The type is named on the figure as well as in the template: a reader of the figure's
+        # JSON (an export, a test) sees the sizes without resolving the template.
         font={"family": FONT, "size": TYPE["base"], "color": INK},
         title={
             "text": title,
@@ -148,8 +185,8 @@ def style(
             "pad": {"t": title_pad},
             "font": {"size": size},
         },
-        xaxis={"title": {"text": x_title}, "gridcolor": GRID, "zeroline": False},
-        yaxis={"title": {"text": y_title}, "gridcolor": GRID, "zeroline": False},
+        xaxis={"title": {"text": x_title}},
+        yaxis={"title": {"text": y_title}},
         showlegend=legend,
         legend={
             "orientation": "h",
@@ -192,19 +229,34 @@ def file_stem(text: str, limit: int = 80) -> str:
     return stem[:limit] or "chart"
 
 
+# The toolbar an analyst uses: download for the slide, zoom into a region, back to the whole chart.
+MODEBAR_BUTTONS = [["toImage", "zoom2d", "resetScale2d"]]
+# Plotly's button titles (its English phrases, plotly.js 3) in Formwise's words, given as the
+# dictionary of its default locale, so no other text of plotly's changes.
+MODEBAR_WORDS = {
+    "Download plot as a PNG": "Download for a slide (PNG)",
+    "Download plot": "Download for a slide (SVG)",
+    "Zoom": "Zoom: drag across the plot",
+    "Reset axes": "Show the whole chart",
+}
+
+
 def export_config(size: str = "full", fmt: str = "png", filename: str = "formwise-chart") -> dict[str, Any]:
-    """Plotly's config for a chart: the toolbar's download button draws the chart on the slide
-    canvas (``SLIDE_SIZES``), in PNG at ``EXPORT_SCALE`` times its pixels, or in SVG."""
+    """Plotly's config for a chart: the trimmed toolbar in our words, and its download button
+    drawing the chart on the slide canvas (``SLIDE_SIZES``): a PNG at ``EXPORT_SCALE`` times its
+    pixels, an SVG at the canvas size itself (scale 1, so the file declares the size it is drawn
+    at and drops onto a slide at its real size)."""
     _, width, height = SLIDE_SIZES[size]
     return {
         "displaylogo": False,
-        "modeBarButtonsToRemove": ["lasso2d", "select2d"],
+        "modeBarButtons": MODEBAR_BUTTONS,
+        "locales": {"en-US": {"dictionary": MODEBAR_WORDS}},
         "toImageButtonOptions": {
             "format": fmt,
             "filename": file_stem(filename),
             "width": width,
             "height": height,
-            "scale": EXPORT_SCALE,
+            "scale": EXPORT_SCALE if fmt == "png" else 1,
         },
     }
 
@@ -234,7 +286,22 @@ def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None, sc
         out.update_layout(title_text=title, title_subtitle_text=subtitle, title_pad_t=title_pad, margin_t=top)
         x_title, x_lines = wrap(out.layout.meta.get("x_title") or "", _chars_per_line(TYPE["base"], canvas_width))
         out.update_layout(xaxis_title_text=x_title, margin_b=_BOTTOM + round(1.3 * TYPE["base"]) * (x_lines - 1))
-    return with_caption(out, caption, canvas_width)
+    with_caption(out, caption, canvas_width)
+    _top_panel(out, SLIDE_SIZES[size][2])
+    return out
+
+
+def _top_panel(fig: go.Figure, slide_height: int) -> None:
+    """A panel of fixed height over the plot (axis y2; its height in px in the figure's
+    ``meta`` as ``top_panel_px``), the plot taking the rest. Sized on the lower of the chart on
+    screen and the slide canvas, so it is at least that high on both."""
+    px = (fig.layout.meta or {}).get("top_panel_px")
+    if not px:
+        return
+    height = min(fig.layout.height or 450, slide_height)
+    plot = max(height - (fig.layout.margin.t or 0) - (fig.layout.margin.b or 0), 1)
+    panel, gap = min(0.45, px / plot), min(0.08, 14 / plot)
+    fig.update_layout(yaxis_domain=[0.0, 1.0 - panel - gap], yaxis2_domain=[1.0 - panel, 1.0])
 
 
 def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None = None) -> go.Figure:

@@ -1,4 +1,5 @@
-"""Residual checks, distributions and the Box-Cox profile."""
+"""The variables' distributions, a column profile's histogram and the Box-Cox profile (the
+residual checks themselves are in ``app.charts.residuals``)."""
 
 from __future__ import annotations
 
@@ -8,148 +9,12 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from app.charts.base import BLUE, FONT, GRID, INK, ORANGE, SKY, SUBTLE, TYPE, VERMILLION, floats, style
+from app.charts.base import BLUE, FONT, GRID, INK, SKY, SUBTLE, TEMPLATE, TYPE, VERMILLION, floats, style
 from core.output.escape import html
+from core.output.numbers import signed
 
 
-# --- residual checks ----------------------------------------------------------------------------------------
-def _dot_opacity(n: int) -> float:
-    return 0.6 if n <= 2_000 else 0.35 if n <= 8_000 else 0.2
-
-
-def _dots_with_trend(
-    x: Any, y: Any, shown: int, trend: dict[str, Any], trend_name: str, hover: str, zero_line: bool
-) -> go.Figure:
-    """Rows as faint dots with a moving-average line: the shape of both residual scatter charts."""
-    fig = go.Figure()
-    fig.add_trace(
-        go.Scatter(
-            x=x,
-            y=y,
-            mode="markers",
-            name="Rows",
-            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(shown)},
-            hovertemplate=hover,
-        )
-    )
-    fig.add_trace(
-        go.Scatter(
-            x=trend["x"], y=trend["y"], mode="lines", name=trend_name, line={"color": VERMILLION, "width": 3}, hoverinfo="skip"
-        )
-    )
-    if zero_line:
-        fig.add_hline(y=0, line={"color": INK, "width": 1.2})
-    return fig
-
-
-def residuals_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
-    fig = _dots_with_trend(
-        data["fitted"], data["resid"], data["shown"], data["trend"], "Average residual",
-        "fitted %{x:.4g}<br>residual %{y:.3g}<extra></extra>", zero_line=True,
-    )  # fmt: skip
-    return style(
-        fig,
-        "Residuals against fitted values",
-        "Good: an even cloud around zero, flat red line",
-        f"Fitted {html(fitted_label)}",
-        "Residual",
-        height=470,
-        title_size=22,
-    )
-
-
-def qq_figure(data: dict[str, Any]) -> go.Figure:
-    theory = floats(data["qq_theory"])
-    sample = floats(data["qq_sample"])
-    edge = float(np.nanmax(np.abs(np.concatenate([theory, sample])))) if theory.size else 3.0
-    fig = go.Figure()
-    fig.add_trace(
-        go.Scatter(
-            x=[-edge, edge],
-            y=[-edge, edge],
-            mode="lines",
-            name="Normal residuals would lie here",
-            line={"color": ORANGE, "width": 3, "dash": "dash"},
-            hoverinfo="skip",
-        )
-    )
-    fig.add_trace(
-        go.Scatter(
-            x=theory,
-            y=sample,
-            mode="markers",
-            name="Residuals, in order",
-            marker={"color": BLUE, "size": 5, "opacity": _dot_opacity(len(theory))},
-            hovertemplate="normal %{x:.3g}<br>residual %{y:.3g}<extra></extra>",
-        )
-    )
-    return style(
-        fig,
-        "Residuals against a normal curve (Q–Q)",
-        "Good: points along the dashed line",
-        "Where a normal curve puts them (standard units)",
-        "Standardised residual",
-        height=470,
-        title_size=22,
-    )
-
-
-def residual_histogram(data: dict[str, Any]) -> go.Figure:
-    counts = np.array(data["hist_counts"], dtype=float)
-    edges = np.array(data["hist_edges"], dtype=float)
-    centres = (edges[:-1] + edges[1:]) / 2
-    width = float(edges[1] - edges[0]) if len(edges) > 1 else 1.0
-    sigma = float(data["sigma"]) or 1.0
-    grid = np.linspace(edges[0], edges[-1], 120)
-    density = data["n"] * width * np.exp(-0.5 * (grid / sigma) ** 2) / (sigma * np.sqrt(2 * np.pi))
-    fig = go.Figure()
-    fig.add_trace(
-        go.Bar(
-            x=centres,
-            y=counts,
-            width=width * 0.96,
-            name="Residuals",
-            marker={"color": SKY, "line": {"width": 0}},
-            hovertemplate="residual %{x:.3g}<br>%{y:,} rows<extra></extra>",
-        )
-    )
-    fig.add_trace(
-        go.Scatter(
-            x=grid,
-            y=density,
-            mode="lines",
-            name="Normal curve, same spread",
-            line={"color": ORANGE, "width": 3},
-            hoverinfo="skip",
-        )
-    )
-    return style(
-        fig,
-        "How the residuals are spread",
-        f"Every one of the {data['n']:,} rows counted",
-        "Residual",
-        "Rows",
-        height=470,
-        title_size=22,
-    )
-
-
-def scale_location_figure(data: dict[str, Any], fitted_label: str) -> go.Figure:
-    fig = _dots_with_trend(
-        data["fitted"], data["root_abs"], data["shown"], data["spread_trend"], "Average",
-        "fitted %{x:.4g}<br>%{y:.3g}<extra></extra>", zero_line=False,
-    )  # fmt: skip
-    return style(
-        fig,
-        "Spread of residuals against fitted values",
-        "Good: a flat red line; rising or falling means the spread changes",
-        f"Fitted {html(fitted_label)}",
-        "√|standardised residual|",
-        height=470,
-        title_size=22,
-    )
-
-
+# --- distributions ------------------------------------------------------------------------------------------
 def distribution_figure(item: dict[str, Any]) -> go.Figure:
     """One variable's histogram as recorded and, beside it, as transformed."""
     panels = [("raw", f"As recorded<br>skewness {_skew_text(item['skew_raw'])}")]
@@ -173,9 +38,7 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
             col=i,
         )
     fig.update_layout(
-        template="plotly_white",
-        paper_bgcolor="white",
-        plot_bgcolor="white",
+        template=TEMPLATE,
         font={"family": FONT, "size": TYPE["base"] - 1, "color": INK},
         title={
             "text": f"{html(item['column'])} ({item['role']})",
@@ -193,8 +56,7 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
         bargap=0.02,
     )
     fig.update_annotations(font={"size": TYPE["note"], "color": SUBTLE})
-    fig.update_xaxes(gridcolor=GRID, zeroline=False)
-    fig.update_yaxes(gridcolor=GRID, zeroline=False, title_text="Rows", row=1, col=1)
+    fig.update_yaxes(title_text="Rows", row=1, col=1)
     return fig
 
 
@@ -229,64 +91,130 @@ def _skew_text(value: float | None) -> str:
 
 
 def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
-    """The profile log-likelihood of the Box-Cox power λ, with λ̂, its 95 % interval and the
-    two powers people usually choose between: 0 (log) and 1 (level)."""
+    """Which power of the outcome fits best, drawn as the report draws it: the profile as the
+    drop from the best log-likelihood (0 at the top, so higher is better) with log, level and
+    the best power marked on it, and a number line above the plot with the powers the data
+    accept at 95 % as a bar; the best power is named above the line, log and level below it,
+    so no two names meet however close the powers are."""
     outcome_column = html(outcome_column)
-    lam = floats(boxcox["profile"]["lambda"])
-    loglik = floats(boxcox["profile"]["loglik"])
-    best, low, high = boxcox["lambda"], boxcox.get("ci_low"), boxcox.get("ci_high")
+    lam, drop = _profile(boxcox)
+    best, low, high = float(boxcox["lambda"]), boxcox.get("ci_low"), boxcox.get("ci_high")
+    marks = _marks(lam, drop, best)
     fig = go.Figure()
-    if low is not None and high is not None:
-        fig.add_vrect(x0=low, x1=high, fillcolor=SKY, opacity=0.3, line_width=0, layer="below")
-        fig.add_trace(
-            go.Scatter(
-                x=[None],
-                y=[None],
-                mode="markers",
-                name=f"95 % interval: {_skew_text(low)} to {_skew_text(high)}",
-                marker={"symbol": "square", "size": 16, "color": "rgba(86, 180, 233, 0.45)"},
-                hoverinfo="skip",
-            )
-        )
     fig.add_trace(
         go.Scatter(
             x=lam,
-            y=loglik,
+            y=drop,
             mode="lines",
-            name="Profile log-likelihood",
+            name="Log-likelihood of each power, less the best",
             line={"color": BLUE, "width": 3.5},
-            hovertemplate="λ %{x:.2f}<br>log-likelihood %{y:,.1f}<extra></extra>",
+            hovertemplate="λ %{x:.2f}<br>%{y:,.2f} below the best<extra></extra>",
         )
     )
-    fig.add_trace(
-        go.Scatter(
-            x=[best],
-            y=[boxcox.get("loglik_max")],
-            mode="markers",
-            name=f"Best power λ̂ = {_skew_text(best)}",
-            marker={"color": VERMILLION, "size": 14, "line": {"color": "white", "width": 1.5}},
-            hovertemplate="λ̂ %{x:.3f}<extra></extra>",
+    _ruler_line(fig, lam)
+    if low is not None and high is not None:
+        fig.add_trace(
+            go.Scatter(
+                x=[low, high],
+                y=[0, 0],
+                xaxis="x2",
+                yaxis="y2",
+                mode="lines",
+                name=f"Powers the data accept (95 %): {signed(low)} to {signed(high)}",
+                line={"color": _INTERVAL, "width": 16},
+                hoverinfo="skip",
+            )
         )
-    )
-    for value, word in ((0.0, "λ = 0: log"), (1.0, "λ = 1: level")):
-        fig.add_vline(x=value, line={"color": INK, "width": 1.5, "dash": "dot"})
-        fig.add_annotation(
-            x=value,
-            y=0.02,
-            yref="paper",
-            yanchor="bottom",
-            xanchor="left",
-            xshift=5,
-            text=word,
-            showarrow=False,
-            font={"size": TYPE["note"], "color": INK},
-            bgcolor="rgba(255,255,255,0.85)",
+    for word, where, value, symbol, colour in marks:
+        fig.add_trace(
+            go.Scatter(
+                x=[where],
+                y=[value],
+                mode="markers",
+                showlegend=False,
+                marker={
+                    "symbol": symbol,
+                    "size": 15 if symbol == "circle" else 13,
+                    "color": colour,
+                    "line": {"color": INK if colour == "white" else "white", "width": 2.5 if colour == "white" else 1.5},
+                },
+                hovertemplate=f"{word}: λ {where:.2f}<br>%{{y:,.2f}} below the best<extra></extra>",
+            )
         )
-    return style(
+    _ruler(fig, marks)
+    style(
         fig,
         f"Which power of {outcome_column} fits best (Box-Cox)",
         f"Higher is better; {outcome_column} is modelled on the regressors as they are transformed now",
         "Power λ of the outcome (0 = log, 0.5 ≈ square root, 1 = level)",
-        "Profile log-likelihood",
-        height=520,
+        "Log-likelihood, less the best",
+        height=580,
     )
+    span = float(np.nanmax(lam) - np.nanmin(lam)) or 1.0
+    fig.update_layout(
+        xaxis={"range": [float(np.nanmin(lam)) - 0.02 * span, float(np.nanmax(lam)) + 0.02 * span]},
+        yaxis={"domain": [0.0, 0.7]},
+        xaxis2={"matches": "x", "anchor": "y2", "visible": False},
+        yaxis2={"domain": [0.78, 1.0], "anchor": "x2", "range": [-1, 1], "visible": False, "fixedrange": True},
+        meta={**fig.layout.meta, "top_panel_px": _RULER_PX},
+    )
+    return fig
+
+
+_INTERVAL = "rgba(86, 180, 233, 0.6)"  # SKY at the report's 0.6
+# Height of the number line's panel: a name above the line and one below, each 14 px off it.
+_RULER_PX = 84
+
+
+def _profile(boxcox: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
+    """The powers tried and each one's log-likelihood less the best (0 at the best)."""
+    lam, loglik = floats(boxcox["profile"]["lambda"]), floats(boxcox["profile"]["loglik"])
+    peak = boxcox.get("loglik_max")
+    return lam, loglik - (float(peak) if peak is not None else float(np.nanmax(loglik)))
+
+
+def _marks(lam: np.ndarray, drop: np.ndarray, best: float) -> list[tuple[str, float, float, str, str]]:
+    """(name, λ, drop, marker, colour) for the best power, log and level, where the profile reaches them."""
+    ok = np.isfinite(lam) & np.isfinite(drop)
+    lam, drop = lam[ok], drop[ok]
+    marks = [(f"best {signed(best)}", best, 0.0, "circle", VERMILLION)]
+    for value, word, symbol in ((0.0, "log", "square"), (1.0, "level", "diamond")):
+        if lam.size and lam.min() <= value <= lam.max():
+            marks.append((word, value, float(np.interp(value, lam, drop)), symbol, "white"))
+    return marks
+
+
+def _ruler_line(fig: go.Figure, lam: np.ndarray) -> None:
+    """The number line over the plot (axes x2, y2): a thin line across the powers tried."""
+    ends = [float(np.nanmin(lam)), float(np.nanmax(lam))]
+    fig.add_trace(
+        go.Scatter(
+            x=ends, y=[0, 0], xaxis="x2", yaxis="y2", mode="lines", line={"color": GRID, "width": 3},
+            showlegend=False, hoverinfo="skip",
+        )
+    )  # fmt: skip
+
+
+def _ruler(fig: go.Figure, marks: list[tuple[str, float, float, str, str]]) -> None:
+    """A tick on the number line for each mark, the best power's name above the line and the
+    others' below it."""
+    for word, where, _, _, colour in marks:
+        ink = VERMILLION if colour == VERMILLION else INK
+        fig.add_trace(
+            go.Scatter(
+                x=[where], y=[0], xaxis="x2", yaxis="y2", mode="markers", showlegend=False, hoverinfo="skip",
+                marker={"symbol": "line-ns", "size": 24, "line": {"color": ink, "width": 3}},
+            )
+        )  # fmt: skip
+        above = colour == VERMILLION
+        fig.add_annotation(
+            x=where,
+            y=0,
+            xref="x2",
+            yref="y2",
+            yanchor="bottom" if above else "top",
+            yshift=14 if above else -14,
+            text=word,
+            showarrow=False,
+            font={"size": TYPE["note"], "color": ink},
+        )

@@ -25,34 +25,77 @@ MAX_POINTS = 20_000
 
 
 # --- residual checks -----------------------------------------------------------------------------------
-def _evenly(n: int, limit: int) -> np.ndarray:
-    """Up to ``limit`` positions spread evenly over 0..n-1, both ends included."""
-    if n <= limit:
-        return np.arange(n)
-    return np.unique(np.linspace(0, n - 1, limit).round().astype(int))
+def _bands(fitted: np.ndarray, count: int, min_rows: int) -> list[np.ndarray]:
+    """Row positions in up to ``count`` bands of equal size (within one row) and at least
+    ``min_rows`` rows where the data allow, from the lowest fitted value to the highest."""
+    count = max(1, min(count, len(fitted) // min_rows))
+    return [g for g in np.array_split(np.argsort(fitted, kind="stable"), count) if len(g)]
 
 
-def _binned_means(x: np.ndarray, y: np.ndarray, bins: int = 30) -> tuple[list[float], list[float]]:
-    """Mean of y within equal-count bins of x: a smooth trend line from every row, sent as a
-    few dozen points."""
-    if len(x) < 2 * bins:
-        bins = max(2, len(x) // 10)
-    order = np.argsort(x, kind="stable")
-    groups = np.array_split(order, bins)
-    xs = [float(np.mean(x[g])) for g in groups if len(g)]
-    ys = [float(np.mean(y[g])) for g in groups if len(g)]
-    return xs, ys
+def _spread_bands(fitted: np.ndarray, u: np.ndarray, count: int = 10) -> list[dict[str, float]]:
+    """The residuals of each band of fitted values by their 10th, 25th, 50th, 75th and 90th
+    percentiles: an even spread gives bands of one height."""
+    out = []
+    for rows in _bands(fitted, count, 10):
+        q10, q25, q50, q75, q90 = np.percentile(u[rows], [10, 25, 50, 75, 90])
+        f = fitted[rows]
+        out.append(
+            {"low": float(f.min()), "high": float(f.max()), "mid": float(np.median(f)), "n": int(len(rows)),
+             "q10": float(q10), "q25": float(q25), "q50": float(q50), "q75": float(q75), "q90": float(q90)}
+        )  # fmt: skip
+    return out
+
+
+def _mean_bands(fitted: np.ndarray, u: np.ndarray, count: int = 20) -> list[dict[str, float]]:
+    """The mean residual of each band of fitted values with its 95 % interval (t interval from
+    the band's own spread): a model that misses a curve leaves bands whose mean is off zero."""
+    out = []
+    for rows in _bands(fitted, count, 15):
+        values = u[rows]
+        mean = float(values.mean())
+        half = 0.0
+        if len(values) > 1:
+            half = float(stats.t.ppf(0.975, len(values) - 1) * values.std(ddof=1) / np.sqrt(len(values)))
+        out.append(
+            {"mid": float(np.median(fitted[rows])), "n": int(len(rows)), "mean": mean, "low": mean - half, "high": mean + half}
+        )
+    return out
+
+
+# Distances from zero, in standard deviations, at which the tails are compared with a normal curve.
+TAIL_POINTS = (1.0, 2.0, 3.0)
+
+
+def _tails(standardised: np.ndarray) -> list[dict[str, Any]]:
+    """Share of rows beyond ±1, ±2 and ±3 standardised units on each side, with its 95 % Wilson
+    interval (Wilson 1927, JASA 22, 209-212), beside the share a normal curve puts there."""
+    finite = standardised[np.isfinite(standardised)]
+    n = max(len(finite), 1)
+    z = float(stats.norm.ppf(0.975))
+    out = []
+    for side, sign in (("above", 1.0), ("below", -1.0)):
+        for point in TAIL_POINTS:
+            count = int(np.sum(sign * finite > point))
+            share = count / n
+            centre = (share + z * z / (2 * n)) / (1 + z * z / n)
+            half = z * np.sqrt(share * (1 - share) / n + z * z / (4 * n * n)) / (1 + z * z / n)
+            out.append(
+                {"side": side, "point": point, "count": count, "share": share, "normal_share": float(stats.norm.sf(point)),
+                 "low": float(max(centre - half, 0.0)), "high": float(min(centre + half, 1.0))}
+            )  # fmt: skip
+    return out
 
 
 def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: int = 0) -> dict[str, Any]:
-    """Residuals, fitted values and what the four residual charts need, at most ``limit`` points
-    each; histograms, trend lines and the Q-Q line use every row (least squares only: PPML's
-    residuals are not meant to have constant spread or a normal shape).
+    """What the residual checks draw: a sample of at most ``limit`` rows (fitted value and
+    residual), and from every row the spread and the mean residual in bands of fitted values and
+    the tails of the standardised residuals (least squares only: PPML's residuals are not meant
+    to have constant spread or a normal shape).
 
     Standardised residuals are internally studentised, eᵢ / (s·sqrt(1 − hᵢ)) (Cook & Weisberg
     1982, Residuals and Influence in Regression, §2.2.1), with weights applied as in core.
     """
-    # Room for the trend lines drawn with the dots, so a chart stays within ``limit`` points.
+    # Room for the bands drawn with the dots, so a chart stays within ``limit`` points.
     limit = max(limit - 100, 10)
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid * root_w if root_w is not None else fit.resid
@@ -64,28 +107,17 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
     rows = np.arange(n)
     if n > limit:
         rows = np.sort(np.random.default_rng(seed).choice(n, size=limit, replace=False))
-    # Q-Q: the ordered standardised residuals against normal quantiles, thinned evenly by rank
-    # so both tails are always drawn.
-    ordered = np.sort(standardised)
-    picks = _evenly(n, limit)
-    theory = stats.norm.ppf((picks + 0.5) / n)
-    counts, edges = np.histogram(u, bins=min(60, max(10, int(np.sqrt(n)))))
-    trend_x, trend_y = _binned_means(fit.fitted, u)
-    root_abs = np.sqrt(np.abs(standardised))
-    spread_x, spread_y = _binned_means(fit.fitted, root_abs)
+    q10, q25, q75, q90 = np.percentile(u, [10, 25, 75, 90])
     return {
         "n": n,
         "shown": len(rows),
         "sigma": float(np.sqrt(np.mean(u * u) * n / max(n - fit.k, 1))),
         "fitted": fit.fitted[rows].tolist(),
         "resid": u[rows].tolist(),
-        "root_abs": root_abs[rows].tolist(),
-        "qq_theory": theory.tolist(),
-        "qq_sample": ordered[picks].tolist(),
-        "hist_counts": counts.tolist(),
-        "hist_edges": edges.tolist(),
-        "trend": {"x": trend_x, "y": trend_y},
-        "spread_trend": {"x": spread_x, "y": spread_y},
+        "spread_all": {"q10": float(q10), "q25": float(q25), "q75": float(q75), "q90": float(q90)},
+        "spread_bands": _spread_bands(fit.fitted, u),
+        "mean_bands": _mean_bands(fit.fitted, u),
+        "tails": _tails(standardised),
     }
 
 

@@ -235,6 +235,106 @@ def check_sentences(diagnostics: dict[str, Any], covariance: str = "HC1") -> lis
     return out
 
 
+def _spread_words(residuals: dict[str, Any] | None) -> list[str]:
+    bands = (residuals or {}).get("spread_bands") or []
+    widths = [b["q75"] - b["q25"] for b in bands]
+    if len(widths) < 2 or min(widths) <= 0:
+        return []
+    return [
+        f"Across {len(widths)} bands of fitted values with {bands[0]['n']:,} rows or so each, the middle half of the "
+        f"residuals is {max(widths) / min(widths):.1f} times as wide in the widest band as in the narrowest."
+    ]
+
+
+def _shape_headline(jb: dict[str, Any]) -> str:
+    skew, kurt = jb.get("skewness"), jb.get("kurtosis")
+    if kurt is not None and kurt > 3.5:
+        return "The residuals have heavier tails than a bell curve"
+    if skew is not None and abs(skew) > 0.5:
+        return f"The residuals lean to one side: a longer tail {'above' if skew > 0 else 'below'} zero"
+    if kurt is not None and kurt < 2.5:
+        return "The residuals have lighter tails than a bell curve"
+    return "The residuals are not quite shaped like a bell"
+
+
+def _tail_words(residuals: dict[str, Any] | None) -> list[str]:
+    two = [t for t in (residuals or {}).get("tails") or [] if t["point"] == 2.0]
+    if not two:
+        return []
+    observed = sum(t["count"] for t in two)
+    share = sum(t["share"] for t in two) * 100
+    normal = sum(t["normal_share"] for t in two) * 100
+    return [
+        f"{observed:,} rows ({share:.1f} %) lie more than 2 standard deviations from zero, where a bell curve puts "
+        f"{normal:.1f} %."
+    ]
+
+
+def _curve_words(residuals: dict[str, Any] | None) -> list[str]:
+    bands = (residuals or {}).get("mean_bands") or []
+    if len(bands) < 2:
+        return []
+    off = sum(1 for b in bands if b["low"] > 0 or b["high"] < 0)
+    return [
+        f"{off} of {len(bands)} bands of fitted values have a mean residual whose 95 % interval misses zero "
+        f"(about {0.05 * len(bands):.0f} would by chance alone)."
+    ]
+
+
+def check_verdicts(
+    diagnostics: dict[str, Any], covariance: str = "HC1", residuals: dict[str, Any] | None = None
+) -> list[dict[str, Any]]:
+    """The residual checks as three questions, each with a plain-word verdict (the headline of
+    its chart), whether it raises a concern, and the sentences behind it: the tests
+    (``check_sentences``) and what the bands and tails of ``residuals`` show."""
+    spread_tests = {k: diagnostics[k] for k in ("breusch_pagan", "white") if diagnostics.get(k)}
+    jb, reset = diagnostics.get("jarque_bera") or {}, diagnostics.get("reset") or {}
+    checks = [
+        ("spread", "Is the spread even?", check_sentences(spread_tests, covariance), _spread_words(residuals)),
+        ("shape", "Are the residuals shaped like a bell?", check_sentences({"jarque_bera": jb}), _tail_words(residuals)),
+        ("curve", "Is a curve missing?", check_sentences({"reset": reset}), _curve_words(residuals)),
+    ]
+    headlines = {
+        "spread": ("The spread of the residuals changes", "The spread of the residuals is even"),
+        "shape": (_shape_headline(jb), "The residuals are shaped like a bell"),
+        "curve": ("The model may be missing a curve", "No sign of a missing curve"),
+    }
+    out = []
+    for key, question, tests, more in checks:
+        concern = any(flag for flag, _ in tests)
+        out.append(
+            {
+                "check": key,
+                "question": question,
+                "concern": concern,
+                "tested": bool(tests),
+                "headline": headlines[key][0 if concern else 1] if tests else "Not tested for this model",
+                "sentences": [sentence for _, sentence in tests] + more,
+            }
+        )
+    return out
+
+
+def boxcox_headline(boxcox: dict[str, Any], column: str) -> str:
+    """The Box-Cox verdict in a few words: 'A log of weekly_revenue fits the data'."""
+    lam, low, high = boxcox.get("lambda"), boxcox.get("ci_low"), boxcox.get("ci_high")
+    if lam is None or low is None or high is None:
+        return f"The best power of {column} is not pinned down"
+    if low <= 0 <= high and low <= 1 <= high:
+        return f"A log or levels of {column}: the data cannot choose"
+    if low <= 0 <= high:
+        return f"A log of {column} fits the data"
+    if low <= 1 <= high:
+        return f"{column} in levels fits the data"
+    if low <= 0.5 <= high:
+        return f"A square root of {column} fits better than a log or levels"
+    if high < 0:
+        return f"{column} needs a stronger transform than a log"
+    if low > 1:
+        return f"{column} needs a power above 1"
+    return f"The best power of {column} lies between a log and levels"
+
+
 def boxcox_sentence(boxcox: dict[str, Any], column: str) -> str:
     """What the Box-Cox profile suggests for the outcome, in words."""
     lam, low, high = boxcox.get("lambda"), boxcox.get("ci_low"), boxcox.get("ci_high")
