@@ -68,20 +68,21 @@ def safe_range(sizes: np.ndarray, regions: list[tuple[float, float]]) -> tuple[f
     return low, high
 
 
-# Plot-area width in pixels assumed when deciding whether a band label fits inside its band.
-_PLOT_PIXELS = 850
+# Plot-area width in pixels of the narrowest canvas a chart is drawn on (a half slide, 640 px,
+# less the margins and the y-axis labels), and the width of a character of the band labels.
+_PLOT_PIXELS = 460
+_CHAR_PIXELS = 0.55 * TYPE["note"]
 
 
-_CHAR_PIXELS = 7.5
-
-
-def _band_label(tolerance_pct: float, width_share: float, on_left: bool) -> str:
-    """The band's label, shortened when the band is too narrow to hold the full sentence."""
-    room = width_share * _PLOT_PIXELS
+def _band_label(tolerance_pct: float, width_share: float, on_left: bool) -> tuple[str, bool]:
+    """The band's label and whether it fits inside the band on the narrowest canvas; a label
+    that does not is set beside the band, in the stretch where the approximation holds,
+    pointing at it."""
     words = f"off by > {tolerance_pct:g} % beyond here"
-    if room < len(words) * _CHAR_PIXELS:
+    inside = width_share * _PLOT_PIXELS >= (len(words) + 2) * _CHAR_PIXELS + 12
+    if not inside:
         words = f"off by > {tolerance_pct:g} %"
-    return f"← {words}" if on_left else f"{words} →"
+    return (f"← {words}" if on_left else f"{words} →"), inside
 
 
 def _fmt(value: float, percent: bool) -> str:
@@ -142,16 +143,21 @@ def _tolerance_bands(fig: go.Figure, sizes: np.ndarray, approx: np.ndarray, exac
     regions = tolerance_regions(sizes, approx, exact, tolerance_pct / 100)
     band = f"Approximation off by more than {tolerance_pct:g} %"
     span = float(np.nanmax(sizes) - np.nanmin(sizes)) or 1.0
-    for left, right in regions:
+    labels = [_band_label(tolerance_pct, (right - left) / span, right <= 0) for left, right in regions]
+    # A label set beside its band reaches into the middle stretch, towards the other band's
+    # label: then the right band's label sits a line lower, so the two never meet.
+    lower = len(regions) > 1 and not all(inside for _, inside in labels)
+    for (left, right), (text, inside) in zip(regions, labels, strict=True):
         fig.add_vrect(x0=left, x1=right, fillcolor=PURPLE, opacity=0.13, line_width=0, layer="below")
         on_left = right <= 0
         fig.add_annotation(
             x=right if on_left else left,
-            xanchor="right" if on_left else "left",
+            xanchor=("right" if on_left else "left") if inside else ("left" if on_left else "right"),
             y=1.0,
             yref="paper",
             yanchor="top",
-            text=_band_label(tolerance_pct, (right - left) / span, on_left),
+            yshift=-1.5 * TYPE["note"] if lower and not on_left else 0,
+            text=text,
             showarrow=False,
             font={"size": TYPE["note"], "color": "#8A3B6B"},
             bgcolor="rgba(255,255,255,0.8)",
