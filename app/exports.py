@@ -92,6 +92,11 @@ def restore_notes(spec: dict[str, Any], frame: pd.DataFrame) -> list[str]:
         notes.append(f"The spec weights rows by '{spec['weights']}'; the app fits without weights, so this is left out.")
     if spec.get("predict"):
         notes.append("The spec's prediction points are left out; enter values in the Predict view instead.")
+    if spec.get("bootstrap"):
+        notes.append(
+            "The spec asks for bootstrap intervals; the app shows the analytic ones, so this is left out. "
+            "`python -m core analyze DATA --spec FILE` computes them."
+        )
     return notes
 
 

@@ -13,6 +13,7 @@ from typing import Any
 import pandas as pd
 
 from core.inference.choices import numeric_or_none
+from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import lookup, menu_codes, menu_word
 from core.output.numbers import compact
 
@@ -193,6 +194,32 @@ def grid_to_spec(
         "at": {k: v for k, v in (at or {}).items() if k in used},
     }
     return spec, notes
+
+
+def with_time_and_scenarios(
+    spec: dict[str, Any], time: str | None, lags: int | None, scenarios: list[dict[str, Any]] | None
+) -> tuple[dict[str, Any], list[str]]:
+    """``spec`` with the sidebar's time column (time-series errors only) and the saved scenarios
+    whose changes all name regressors of the model; a note for each scenario set aside."""
+    out = dict(spec)
+    if COVARIANCE_KINDS[spec["covariance"]].needs_time:
+        out["time"] = time
+        if lags is not None:
+            out["lags"] = lags
+    used = {r["column"] for r in spec.get("regressors") or []}
+    kept, notes = [], []
+    for scenario in scenarios or []:
+        missing = [c for c in scenario["changes"] if c not in used]
+        if missing:
+            notes.append(
+                f"The scenario '{scenario['name']}' changes {', '.join(missing)}, which is not a regressor now; "
+                "it is set aside until the variable is back in the model."
+            )
+        else:
+            kept.append(scenario)
+    if kept:
+        out["scenarios"] = kept
+    return out, notes
 
 
 def resolve_outcome(grid: pd.DataFrame, previous: pd.DataFrame) -> pd.DataFrame:

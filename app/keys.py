@@ -41,3 +41,11 @@ UNLOCK_LOCKED = "unlock_locked"
 # Undo and redo of model edits: earlier and later grids (bounded).
 UNDO = "undo_history"
 REDO = "redo_history"
+# Time-series standard errors: the column ordering the rows in time, and the spec's lags (kept).
+TIME_COLUMN = "time_column"
+LAGS = "lags"
+# Scenarios (several changes at once): the spec's "scenarios" list, and the builder's inputs.
+SCENARIOS = "scenarios"
+SCENARIO_NAME = "scenario_name"
+SCENARIO_PICK = "scenario_pick"
+SCENARIO_REMOVE = "scenario_remove"

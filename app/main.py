@@ -33,8 +33,9 @@ from app.gridspec import (
     spec_to_grid,
     transform_options,
     with_outcome_level,
+    with_time_and_scenarios,
 )
-from core.inference.choices import suggest_cluster, zero_note
+from core.inference.choices import suggest_cluster, suggest_time, time_columns, zero_note
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import menu_word
 from core.output.escape import plain
@@ -72,6 +73,8 @@ def use_data(
     ss[keys.AT] = dict(spec.get("at") or {})
     ss[keys.COVARIANCE] = spec.get("covariance") or "HC1"
     ss[keys.CLUSTER_COLUMN] = spec.get("cluster") or suggest_cluster(frame)
+    ss[keys.TIME_COLUMN], ss[keys.LAGS] = spec.get("time") or suggest_time(frame), spec.get("lags")
+    ss[keys.SCENARIOS] = list(spec.get("scenarios") or [])
     ss[keys.PPML] = spec.get("estimator") == "ppml"
 
 
@@ -82,16 +85,20 @@ def load_demo() -> None:
 
 def take_upload(upload: Any) -> None:
     """Switch to an uploaded file (or another sheet of it) once; a file that is too big or
-    cannot be read leaves the current data and results in place, with the reason on screen."""
+    cannot be read leaves the current data and results in place, with the reason on screen.
+
+    The upload counts as taken only once it is loaded or refused: a newer upload arriving while
+    this one is read interrupts the run, and the next run reads the newest file instead of
+    skipping it as already seen."""
     ss = st.session_state
     too_big = intake.size_problem(upload.name, upload.size)
     sheet = None if too_big else intake.sheet_picker(upload)
-    if (upload.file_id, sheet) == ss.get(keys.UPLOAD_SEEN):
+    seen = (upload.file_id, sheet)
+    if seen == ss.get(keys.UPLOAD_SEEN):
         return
-    ss[keys.UPLOAD_SEEN] = (upload.file_id, sheet)
     ss[keys.UPLOAD_ERROR] = None
     if too_big:
-        ss[keys.UPLOAD_ERROR] = too_big
+        ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = too_big, seen
         return
     raw = upload.getvalue()
     try:
@@ -103,11 +110,13 @@ def take_upload(upload: Any) -> None:
         said = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
         if intake.has_sheets(upload):
             said += " This workbook has several sheets: pick the one that holds the table in the Sheet picker above."
-        ss[keys.UPLOAD_ERROR] = said
+        ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = said, seen
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
         ss[keys.UPLOAD_ERROR] = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
+        ss[keys.UPLOAD_SEEN] = seen
         return
+    ss[keys.UPLOAD_SEEN] = seen
     data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
     use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile, advice)
     st.rerun()  # draw the page (data name, notes) for the new table from the top
@@ -157,10 +166,15 @@ def sidebar() -> None:
             if ss.get(keys.CLUSTER_COLUMN) not in columns:
                 ss[keys.CLUSTER_COLUMN] = suggest_cluster(frame) or columns[0]
             st.selectbox("Groups are defined by", columns, key=keys.CLUSTER_COLUMN)
+        if COVARIANCE_KINDS[ss[keys.COVARIANCE]].needs_time and (times := time_columns(frame)):
+            if ss.get(keys.TIME_COLUMN) not in times:
+                ss[keys.TIME_COLUMN] = suggest_time(frame) or times[0]
+            st.selectbox("Rows are ordered in time by", times, key=keys.TIME_COLUMN)
         st.caption(
             "Intervals are 95 % confidence intervals and p-values test a zero coefficient, both using the "
             "standard errors chosen here. Robust (HC) errors allow the noise to differ between rows; "
-            "clustered errors also let rows of the same group move together."
+            "clustered errors also let rows of the same group move together; Newey-West and Driscoll-Kraay errors, "
+            "rows close in time (lags counted in periods of the time column, chosen from the data)."
         )
 
 
@@ -290,6 +304,7 @@ def show_results(good: dict[str, Any]) -> None:
                 + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
                 + f"standard errors: {COVARIANCE_KINDS[result['covariance']].short}"
                 + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
+                + (f" over {ts['time']}, {ts['lags']} lag(s)" if (ts := result.get("time_series")) else "")
                 + fit_sentence(result, estimator)
             )
         )
@@ -323,6 +338,8 @@ def main() -> None:
     estimator = zeros_offer(grid)
     try:
         spec, notes = grid_to_spec(grid, ss[keys.COVARIANCE], ss.get(keys.CLUSTER_COLUMN), ss.get(keys.AT), estimator)
+        spec, set_aside = with_time_and_scenarios(spec, ss.get(keys.TIME_COLUMN), ss.get(keys.LAGS), ss.get(keys.SCENARIOS))
+        notes += set_aside
         result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
         ss[keys.LAST_GOOD] = {
             "result": result,

@@ -16,6 +16,7 @@ from app import charts, exports, keys, profiles_view, tables
 from app.checks_view import checks_view
 from app.compare_view import compare_view, predict_view
 from app.context import Context, chart, failed, point_sample
+from app.scenarios_view import scenarios_view
 from app.sweep_view import sweep_view
 from core.inference.choices import (
     overlay_options,
@@ -43,6 +44,7 @@ VIEWS = [
     "Residual checks",
     "Compare models",
     "Predict",
+    "Scenarios",
     "Column profiles",
     "Forms",
 ]
@@ -77,6 +79,7 @@ def show(ctx: Context) -> None:
             "Residual checks": checks_view,
             "Compare models": compare_view,
             "Predict": predict_view,
+            "Scenarios": scenarios_view,
             "Column profiles": profiles_view.profiles_view,
             "Forms": sweep_view,
         }[view or VIEWS[0]](ctx)

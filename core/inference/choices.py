@@ -36,6 +36,27 @@ def suggest_cluster(frame: pd.DataFrame) -> str | None:
     return best
 
 
+# Column names that usually count periods, most telling first (common practice, no source).
+TIME_NAMES = ("time", "period", "t", "week", "month", "quarter", "year", "day", "date")
+
+
+def time_columns(frame: pd.DataFrame) -> list[str]:
+    """Numeric columns with at least two distinct values: what can order rows in time."""
+    out = []
+    for name in frame.columns:
+        values = numeric_or_none(frame[name])
+        if values is not None and values.dropna().nunique() >= 2:
+            out.append(str(name))
+    return out
+
+
+def suggest_time(frame: pd.DataFrame) -> str | None:
+    """A time column for the time-series errors: a numeric column named like a period (week,
+    year, ...), else None."""
+    by_name = {c.lower(): c for c in time_columns(frame)}
+    return next((by_name[n] for n in TIME_NAMES if n in by_name), None)
+
+
 # Data points drawn lightly behind an effect curve.
 CURVE_POINTS = 2_000
 

@@ -139,6 +139,43 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
     return table
 
 
+def _bootstrap_text(entry: dict[str, Any], method: str, digits: int, suffix: str) -> str:
+    found = (entry.get("bootstrap") or {}).get(method)
+    return interval(found[0], found[1], digits, suffix) if found else DASH
+
+
+def scenarios_table(result: dict[str, Any]) -> pd.DataFrame:
+    """One row per scenario (docs/contract.md §3.14): its changes, the exact combined effect and
+    its interval, the sum of the single first-order effects, the outcome before and after; the
+    bootstrap intervals (§3.15) when the result has them."""
+    outcome = result["outcome"]["column"]
+    rows = []
+    for entry in result.get("scenarios") or []:
+        percent = entry["units"] == "percent"
+        suffix, digits = (f"{NBSP}%", 3) if percent else ("", 4)
+        row = {
+            "Scenario": entry["name"],
+            "Changes": "; ".join(f"{c['column']} {change_text(c)}" for c in entry["changes"]),
+            "Exact": sig(entry.get("exact"), digits, signed=True) + (suffix if entry.get("exact") is not None else ""),
+            "95 % interval (exact)": interval(entry.get("ci_low"), entry.get("ci_high"), digits, suffix),
+            "Sum of single approximations": sig(entry.get("sum_of_approximate"), digits, signed=True)
+            + (suffix if entry.get("sum_of_approximate") is not None else ""),
+            "Before": sig(entry.get("before"), 5),
+            "After": sig(entry.get("after"), 5),
+            "Measured as": units_words(entry["units"], outcome),
+        }
+        if "bootstrap" in entry:
+            row["Bootstrap 95 % (percentile)"] = _bootstrap_text(entry, "percentile", digits, suffix)
+            row["Bootstrap 95 % (BCa)"] = _bootstrap_text(entry, "bca", digits, suffix)
+        if entry.get("extrapolated"):
+            row["Note"] = EXTRAPOLATED if entry.get("exact") is not None else "a change leaves the values the transform accepts"
+        rows.append(row)
+    table = pd.DataFrame(rows)
+    if "Note" in table:
+        table["Note"] = table["Note"].fillna("")
+    return table
+
+
 def extrapolated_rows(result: dict[str, Any]) -> list[int]:
     return [i for i, e in enumerate(result.get("effects") or []) if e.get("extrapolated")]
 
@@ -359,4 +396,9 @@ NUMBER_COLUMNS = {
     "BIC (original scale)",
     "Breusch–Pagan p",
     "R² as fitted ¹",
+    "Sum of single approximations",
+    "Before",
+    "After",
+    "Bootstrap 95 % (percentile)",
+    "Bootstrap 95 % (BCa)",
 }

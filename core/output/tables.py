@@ -53,6 +53,11 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
     return from_frame(title, display.effects_table(result, spec), model_footer(result))
 
 
+def scenarios_table(result: dict[str, Any]) -> Table:
+    title = "Scenarios: several changes at once (other regressors at the reference point)"
+    return from_frame(title, display.scenarios_table(result), model_footer(result))
+
+
 def diagnostics_table(result: dict[str, Any]) -> Table:
     checks = result.get("diagnostics") or {}
     names = {
@@ -98,6 +103,8 @@ def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
 
 def result_tables(result: dict[str, Any]) -> list[Table]:
     tables = [coefficient_table(result), effects_table(result)]
+    if result.get("scenarios"):
+        tables.append(scenarios_table(result))
     if result.get("diagnostics"):
         tables.append(diagnostics_table(result))
     return tables
