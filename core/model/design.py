@@ -352,6 +352,9 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         if not found.finite[column].all():
             drops.drop(np.isnan(values), column, "missing value")
             drops.drop(np.isinf(values), column, "infinite value")
+    if spec.time and spec.time not in found.raw:  # a time column also used as a category
+        found.raw[spec.time], finite = cached(("numbers", spec.time), lambda: _numbers_and_finite(data[spec.time], spec.time))
+        drops.drop(~finite & (found.coded[spec.time].codes >= 0), spec.time, "infinite value")
     return found
 
 
