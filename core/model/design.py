@@ -13,6 +13,7 @@ of the fit read every column of a chunk; with no row dropped no column is gather
 
 from __future__ import annotations
 
+import math
 import threading
 import weakref
 from collections import OrderedDict
@@ -26,6 +27,12 @@ import pandas as pd
 from core.errors import DataError
 from core.model.spec import ModelSpec, RegressorSpec
 from core.model.transforms import Category, Transform
+
+# Budgets checked before the design is built (``check_budget``): the design matrix (n x width
+# numbers; the fit holds about two copies) and the width x width cross products, whose solves and
+# per-column effects grow with width² and width³ (1,000 columns: about 8 MB each).
+DESIGN_MAX_BYTES = 1_000_000_000
+GRAM_MAX_BYTES = 8_000_000
 
 
 @dataclass(frozen=True)
@@ -479,6 +486,7 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
             f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
             "coefficients. Use fewer regressors or categories, or load more data."
         )
+    check_budget(blocks, n, width)
     encoder = Encoder(blocks, width)
     bases = None
     if columns is not None:
@@ -517,6 +525,30 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
         dropped=drops.dropped,
         warnings=drops.warnings(spec.weights),
         reference=reference_point(spec, blocks, values, modes),
+    )
+
+
+def check_budget(blocks: list[Block], n: int, width: int) -> None:
+    """Refuse, before any allocation, a design matrix over ``DESIGN_MAX_BYTES`` (n x width
+    numbers) or a model whose cross-product matrices would pass ``GRAM_MAX_BYTES`` (width²
+    numbers), naming the regressor that adds the most columns."""
+    design_bytes, gram_bytes = 8.0 * n * width, 8.0 * width * width
+    if design_bytes <= DESIGN_MAX_BYTES and gram_bytes <= GRAM_MAX_BYTES:
+        return
+    widest = max(blocks, key=lambda b: b.stop - b.start)
+    if design_bytes > DESIGN_MAX_BYTES:
+        size = f"its design matrix ({n:,} rows x {width:,} columns) would take {design_bytes / 1e6:,.0f} MB, over the budget of {DESIGN_MAX_BYTES / 1e6:,.0f} MB"
+    else:
+        size = f"its {width:,} columns are more than the {math.isqrt(int(GRAM_MAX_BYTES // 8)):,} Formwise fits"
+    if widest.is_category and widest.stop - widest.start > width / 2:
+        levels = widest.stop - widest.start + 1
+        raise DataError(
+            f"the model is too large: {size}; category '{widest.spec.column}' adds {levels - 1:,} of them "
+            f"({levels:,} levels). Merge its rare levels into fewer groups, or leave it out of the regressors."
+        )
+    raise DataError(
+        f"the model is too large: {size} ({len(blocks):,} regressors). Use fewer regressors or categories with fewer levels, "
+        "or a sample of the rows."
     )
 
 
