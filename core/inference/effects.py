@@ -214,6 +214,11 @@ def _one_effect(
         warnings.append(
             f"the effect of {text} in '{column}' reaches outside the observed range of '{column}'; it is an extrapolation."
         )
+    if not np.isfinite(exact):
+        warnings.append(
+            f"the exact effect of {text} in '{column}' cannot be computed: it is too large for floating-point numbers or "
+            "leaves the range the outcome's transform maps back to; it is shown empty (see the approximate effect)."
+        )
     return entry
 
 

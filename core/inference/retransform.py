@@ -26,6 +26,8 @@ import numpy as np
 import scipy.linalg as sla
 from scipy import optimize, stats
 
+from core.errors import DataError
+from core.model.design import match_level
 from core.model.fitted import Model
 from core.model.transforms import Transform
 
@@ -86,9 +88,10 @@ def fit_on_original_scale(model: Model, y_raw: np.ndarray, fitted: np.ndarray, l
     if model.kind == "log":
         factors = {"smearing": float(np.mean(np.exp(model.resid))), "normal": float(np.exp(0.5 * sigma**2))}
     else:
+        # numpy division: a naive mean of 0 (an outcome on a 1e-300 scale) gives inf, shown as null.
         factors = {
-            "smearing": float(np.mean(smeared)) / naive,
-            "normal": float(np.mean(normal_mean(model.outcome, fitted, sigma))) / naive,
+            "smearing": float(np.divide(np.mean(smeared), naive)),
+            "normal": float(np.divide(np.mean(normal_mean(model.outcome, fitted, sigma)), naive)),
         }
     return {**measures, "retransform": factors}
 
@@ -181,9 +184,12 @@ def boxcox_profile(y_raw: np.ndarray, X: np.ndarray, weights: np.ndarray | None 
             dv = dv * root
         return 2.0 * float(r @ dv)
 
-    best = optimize.minimize_scalar(lambda lam: -profile(lam), bracket=(-2.0, 2.0), tol=1e-5)
+    try:
+        best = optimize.minimize_scalar(lambda lam: -profile(lam), bracket=(-2.0, 2.0), tol=1e-5)
+    except (ValueError, RuntimeError):  # a profile without a maximum in reach (degenerate data)
+        return None
     lam_hat = float(best.x)
-    if not -10 < lam_hat < 10:
+    if not -10 < lam_hat < 10 or not math.isfinite(profile(lam_hat)):
         return None
     step = 2e-5 * (1.0 + abs(lam_hat))
     for _ in range(12):
@@ -260,13 +266,33 @@ def _ssr_many(lams: np.ndarray, log_u: np.ndarray, root: np.ndarray | None, q: n
     return squares - np.einsum("ij,ij->j", projected, projected)
 
 
+def _levels_named(design: Any, given: dict[str, Any]) -> dict[str, Any]:
+    """The prediction point with each category value as the level it names; a value naming no
+    level of the fitted model is an error listing the levels (never the reference level in
+    silence)."""
+    out = dict(given)
+    for block in design.encoder.blocks:
+        column = block.spec.column
+        if block.is_category and column in given:
+            known = [block.reference_level, *block.levels]
+            matched = match_level(given[column], known)
+            if matched is None:
+                known = sorted(known)
+                shown = ", ".join(known[:20]) + (f" and {len(known) - 20} more" if len(known) > 20 else "")
+                raise DataError(
+                    f"spec.predict: '{str(given[column])[:40]}' is not a level of '{column}' in the rows used; levels are {shown}."
+                )
+            out[column] = matched
+    return out
+
+
 def predict(model: Model, points: list[dict[str, Any]], sigma: float, confidence: float = 0.95) -> list[dict[str, Any]]:
     """Outcome on the original scale for user-given regressor values (others at the reference)."""
     design = model.design
     t = float(stats.t.ppf(0.5 + confidence / 2, model.df))
     out = []
     for given in points:
-        point = dict(design.reference, **given)
+        point = dict(design.reference, **_levels_named(design, given))
         X = model.encode(point, 1)
         eta = float((X @ model.coef)[0])
         se = float(np.sqrt(max(float(X[0] @ model.cov @ X[0]), 0.0)))

@@ -41,7 +41,10 @@ def _outcome_move(outcome: Transform, y: str, b: float) -> str:
     if outcome.code == "level":
         return f"a change of {_num(b)} in {y}"
     if outcome.is_log_like:
-        return f"about {_signed_pct(100 * b)} in {y} (exactly {_signed_pct(_exact_pct(b))})"
+        exact = _exact_pct(b)
+        if not math.isfinite(exact):
+            return f"about {_signed_pct(100 * b)} in {y} (exactly a factor of e^{_num(b)}: too large to show)"
+        return f"about {_signed_pct(100 * b)} in {y} (exactly {_signed_pct(exact)})"
     return f"a change of {_num(b)} in the {outcome.label(y)}; see the effects table for {y} itself"
 
 
