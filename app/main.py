@@ -322,6 +322,21 @@ def show_results(good: dict[str, Any]) -> None:
 
 # --- page ------------------------------------------------------------------------------------------
 def main() -> None:
+    """The page behind a last-resort handler: an error no check caught becomes our message, never
+    a traceback page (which would show server paths); the session's data, saved models and last
+    good result stay for the next run. Streamlit's rerun and stop are BaseExceptions and pass."""
+    try:
+        _page()
+    except core.FormwiseError as exc:
+        st.error(plain(sentence_case(str(exc))))
+    except Exception as exc:
+        st.error(
+            f"Formwise hit an internal problem while drawing this page ({type(exc).__name__}). Your data and saved models "
+            "are kept: change the model or the view to go on, and please report it with the data and spec."
+        )
+
+
+def _page() -> None:
     st.set_page_config(page_title="Formwise", layout="wide", initial_sidebar_state="expanded")
     ss = st.session_state
     if keys.DATA not in ss:
