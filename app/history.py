@@ -44,31 +44,25 @@ def _step(source: str, target: str, show: Callable[[pd.DataFrame], None]) -> Non
     show(grid)
 
 
-def undo_button(show: Callable[[pd.DataFrame], None]) -> None:
-    """Undo: the grid before the last change (Ctrl/Cmd+Z)."""
+def _button(label: str, source: str, target: str, shortcut: str, help_text: str, show: Callable[[pd.DataFrame], None]) -> None:
     st.button(
-        "Undo",
-        key="undo_edit",
-        icon=":material/undo:",
-        disabled=not st.session_state.get(keys.UNDO),
+        label,
+        key=f"{label.lower()}_edit",
+        icon=f":material/{label.lower()}:",
+        disabled=not st.session_state.get(source),
         on_click=_step,
-        args=(keys.UNDO, keys.REDO, show),
-        shortcut="Mod+Z",
-        help="Take back the last change to the model (Ctrl/Cmd+Z).",
+        args=(source, target, show),
+        shortcut=shortcut,
+        help=help_text,
         width="stretch",
     )
+
+
+def undo_button(show: Callable[[pd.DataFrame], None]) -> None:
+    """Undo: the grid before the last change (Ctrl/Cmd+Z)."""
+    _button("Undo", keys.UNDO, keys.REDO, "Mod+Z", "Take back the last change to the model (Ctrl/Cmd+Z).", show)
 
 
 def redo_button(show: Callable[[pd.DataFrame], None]) -> None:
     """Redo: the change taken back (Ctrl/Cmd+Shift+Z)."""
-    st.button(
-        "Redo",
-        key="redo_edit",
-        icon=":material/redo:",
-        disabled=not st.session_state.get(keys.REDO),
-        on_click=_step,
-        args=(keys.REDO, keys.UNDO, show),
-        shortcut="Mod+Shift+Z",
-        help="Make the change taken back again (Ctrl/Cmd+Shift+Z).",
-        width="stretch",
-    )
+    _button("Redo", keys.REDO, keys.UNDO, "Mod+Shift+Z", "Make the change taken back again (Ctrl/Cmd+Shift+Z).", show)
