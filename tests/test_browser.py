@@ -362,3 +362,44 @@ def test_report_opens_offline_without_console_errors(browser, tmp_path: Path) ->
     context.close()
     assert errors == []
     assert all(url.startswith(("file:", "data:", "about:")) for url in requests), requests
+
+
+def test_residual_checks_on_a_190_level_category_keep_the_server_up(page, browser, server, tmp_path: Path) -> None:
+    """Issue 19: 2,000 rows and a 190-level category with Residual checks opened once crashed the
+    server for every session (the White test's 18,336 auxiliary columns). The checks now take the
+    fitted-values form of the White test (or show our message), and a second session still works."""
+    rng = random.Random(19)
+    lines = ["units,price,shop"]
+    for i in range(2_000):
+        price = round(rng.uniform(2, 6), 2)
+        lines.append(f"{round(40 / price + (i % 190) * 0.05 + rng.gauss(0, 1), 2)},{price},shop{i % 190:03d}")
+    data = tmp_path / "shops190.csv"
+    data.write_text("\n".join(lines) + "\n")
+    page.locator('input[type="file"]').first.set_input_files(str(data))
+    page.get_by_text("shops190.csv").first.wait_for(timeout=60_000)
+    _wait_for_rerun(page)
+    # The advisor leaves a 190-level text column out; the user puts it in as a category.
+    assert page.locator("td#glide-cell-0-2").inner_text() == "shop"
+    _set_grid_cell(page, row=2, column=3, text="category")
+    _wait_for_rerun(page)
+    _set_grid_cell(page, row=2, column=2, text="regressor")
+    _wait_for_rerun(page)
+    page.wait_for_function(
+        "() => [...document.querySelectorAll('h5')].some(h => h.innerText.includes('explained by')"
+        " && h.innerText.includes('shop'))",
+        timeout=120_000,
+    )
+    page.get_by_role("radio", name="Checks", exact=True).first.click()
+    _wait_for_rerun(page)
+    page.get_by_text("White").first.wait_for(timeout=120_000)
+    _no_error_text(page)
+    _shot(page, "checks-190-levels")
+
+    second = browser.new_context(viewport={"width": 1280, "height": 900})
+    other = second.new_page()
+    other.goto(server)
+    other.get_by_text(READY_TEXT).first.wait_for(timeout=90_000)
+    assert other.get_by_text("log of drink_price").count() > 0
+    second.close()
+    assert page.get_by_text("White").count() > 0  # the first session is still there
+    assert page.problems == []
