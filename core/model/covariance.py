@@ -183,10 +183,12 @@ def newey_west_lags(h: np.ndarray) -> int:
     sigma = np.array([float(h[j:] @ h[: periods - j]) / periods for j in range(first + 1)])
     s0 = sigma[0] + 2.0 * sigma[1:].sum()
     s1 = 2.0 * float(np.arange(1, first + 1) @ sigma[1:])
-    if first == 0 or not s0 > 0:
+    if first == 0 or not 0 < s0 < np.inf or not np.isfinite(s1):
+        # No usable spectrum (scores that overflow or vanish): the rule's first guess.
         return min(first, periods - 1)
     gamma = 1.1447 * ((s1 / s0) ** 2) ** (1.0 / 3.0)
-    return int(min(np.floor(gamma * periods ** (1.0 / 3.0)), periods - 1))
+    chosen = gamma * periods ** (1.0 / 3.0)
+    return int(min(np.floor(chosen), periods - 1)) if np.isfinite(chosen) else periods - 1
 
 
 def _lag_weights(rows: Rows) -> np.ndarray:
