@@ -8,7 +8,7 @@ from typing import Any
 import streamlit as st
 
 from app import charts, exports, tables
-from app.context import CHECK_PARTS, HALF_COLUMN, Context, chart
+from app.context import CHECK_PARTS, Context, chart
 from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
@@ -22,8 +22,9 @@ from core.output.text import (
 )
 
 # --- residual checks ----------------------------------------------------------------------------------------
-# Width of a check's chart beside its words (three fifths of the main column at a 1440 px window).
-CARD_CHART = 600
+# Width of a check's chart in its card: the main column less the card's padding at a 1280 px
+# window (measured in Chromium: the column is 820 px wide there, 980 px at 1440 px).
+CARD_CHART = 780
 
 
 def checks_view(ctx: Context) -> None:
@@ -44,7 +45,7 @@ def checks_view(ctx: Context) -> None:
         verdicts = check_verdicts(diagnostics, result.get("covariance", "HC1"), residuals)
         st.caption(
             plain(
-                f"Four questions about the model, each answered in words beside the chart that shows it. Residuals are "
+                f"Four questions about the model, each answered in words over the chart that shows it. Residuals are "
                 f"on the scale of {ctx.outcome_label}. Grey dots: {showing_words(residuals['shown'], residuals['n'])}; "
                 "boxes, bands and tails use every row."
             )
@@ -91,18 +92,18 @@ def checks_view(ctx: Context) -> None:
 
 
 def _check_card(question: str, concern: bool | None, sentences: list[str], figure: Any, key: str) -> None:
-    """One check: the question, its verdict as a mark and the sentences behind it, beside the
-    chart that shows it (titled with the verdict, so it says the same on a slide)."""
+    """One check in a card: the question and its mark, the sentences behind the verdict beside
+    them, and under both the chart that shows it (titled with the verdict, so it says the same
+    on a slide)."""
     with st.container(border=True):
-        words, picture = st.columns([2, 3], gap="medium")
-        with words:
+        head, words = st.columns([1, 2], gap="medium")
+        with head:
             st.markdown(f"##### {plain(question)}")
             if concern is not None:
                 st.markdown(":orange-badge[⚠ Worth a look]" if concern else ":green-badge[✓ Looks fine]")
-            for sentence in sentences:
-                st.markdown(plain(sentence))
-        with picture:
-            chart(figure, key=key, screen_width=CARD_CHART)
+        with words:
+            st.markdown("\n\n".join(plain(sentence) for sentence in sentences))
+        chart(figure, key=key, screen_width=CARD_CHART)
 
 
 def _boxcox_card(ctx: Context, boxcox: dict[str, Any] | None) -> None:
@@ -146,11 +147,8 @@ def distributions_section(ctx: Context) -> None:
         "Skewness near 0 means a symmetric spread. A transform that brings it close to 0 has tamed a long tail; "
         "variables in levels are shown as recorded only. Categories and 0/1 variables are left out."
     )
-    for start in range(0, len(items), 2):
-        cols = st.columns(2)
-        for col, item in zip(cols, items[start : start + 2], strict=False):
-            with col:
-                chart(charts.distribution_figure(item), key=f"dist_{item['column']}", screen_width=HALF_COLUMN)
-                extra = f" · {item['n_left_out']:,} rows the transform cannot take left out" if item["n_left_out"] else ""
-                words = skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
-                st.caption(plain(f"{item['label']}: {words}{extra}"))
+    for item in items:
+        chart(charts.distribution_figure(item), key=f"dist_{item['column']}")
+        extra = f" · {item['n_left_out']:,} rows the transform cannot take left out" if item["n_left_out"] else ""
+        words = skew_words(item["skew_raw"], item["skew_transformed"], item.get("zeros", 0))
+        st.caption(plain(f"{item['label']}: {words}{extra}"))

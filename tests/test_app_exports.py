@@ -163,12 +163,13 @@ def test_slide_type_is_readable_and_text_fits_the_canvas(size: str) -> None:
 def test_legend_rows_follow_plotlys_grid_of_equal_columns() -> None:
     """Entries that fit on one row take one row; otherwise Plotly sets them in columns as wide
     as the widest entry, so one long entry on a narrow canvas puts each entry on its own row."""
-    names = ["Exact effect", "First-order approximation", "Gap between them", "Approximation off by more than 10 %"]
+    names = ["Exact effect", "First-order approximation", "Gap between them", "Off by more than 10 %"]
     fig = go.Figure([go.Scatter(x=[1], y=[1], name=n) for n in names])
-    # About 1,020 px of entries: more than the 980 px a line may take (the chart on screen),
-    # so two columns of the widest entry (~380 px) on a full slide, one on a square.
+    # About 860 px of entries (text widths in Helvetica's metrics, plus the symbols): more than
+    # the 660 px a legend may take (the chart on screen at a 1280 px window), so two columns of
+    # the widest entry (~260 px) on a full slide, one on a half slide (480 px).
     assert charts.legend_rows(fig, 1280) == 2
-    assert charts.legend_rows(fig, 720) == 4
+    assert charts.legend_rows(fig, 640) == 4
     assert charts.legend_rows(go.Figure([go.Scatter(x=[1], y=[1], name=n) for n in names[:3]]), 1280) == 1
     short = go.Figure([go.Scatter(x=[1], y=[1], name=n) for n in ("a", "b", "c")])
     assert charts.legend_rows(short, 640) == 1

@@ -48,8 +48,9 @@ _LEGEND_SYMBOL = 50
 # Room between the subtitle's last line and the legend (or the plot, without a legend).
 _HEADER_GAP = 16
 # Widest line of title, subtitle, legend or caption: the chart's width less the margins, and
-# never more than fits the chart on a laptop screen.
-_SCREEN_TEXT_WIDTH = 980
+# never more than fits a chart across the main column of a 1280 px window (820 px, measured
+# in Chromium with the sidebar open).
+_SCREEN_TEXT_WIDTH = 700
 _SIDE_MARGINS = 120
 # Bottom margin under the plot: the tick labels and a one-line x-axis title.
 _BOTTOM = 84
@@ -64,11 +65,6 @@ def text_width(canvas_width: int | None = None) -> int:
     not given), capped so the same line fits the chart on screen."""
     width = canvas_width or SLIDE_SIZES["full"][1]
     return min(width - _SIDE_MARGINS, _SCREEN_TEXT_WIDTH)
-
-
-def _chars_per_line(size: float, canvas_width: int | None = None) -> int:
-    """Characters of a ``size``-pixel font that fit one line (about 0.52 em per character)."""
-    return int(text_width(canvas_width) / (0.52 * size))
 
 
 def _legend_names(fig: go.Figure) -> list[tuple[int, str]]:
@@ -130,8 +126,8 @@ def _top_margin(fig: go.Figure, canvas_width: int | None = None) -> tuple[str, s
     texts are kept in the figure's ``meta`` by ``style``."""
     meta = fig.layout.meta or {}
     size = meta.get("title_size") or TYPE["title"]
-    title, title_lines = wrap(meta.get("title", ""), _chars_per_line(size, canvas_width))
-    subtitle, subtitle_lines = wrap(meta.get("subtitle", ""), _chars_per_line(TYPE["subtitle"], canvas_width))
+    title, title_lines = wrap_px(meta.get("title", ""), size, text_width(canvas_width))
+    subtitle, subtitle_lines = wrap_px(meta.get("subtitle", ""), TYPE["subtitle"], text_width(canvas_width))
     legend = _set_legend(fig, canvas_width) if meta.get("legend", True) else 0.0
     line = round(1.3 * size)
     subtitle_height = 0
@@ -166,7 +162,9 @@ def style(
     wider than the screen), and the axis titles naming the variables and their transforms.
     Call it after the traces are added (the legend's height depends on them)."""
     size = title_size or TYPE["title"]
-    fig.update_layout(meta={"title": title, "subtitle": subtitle, "title_size": size, "legend": legend, "x_title": x_title})
+    fig.update_layout(
+        meta={"title": title, "subtitle": subtitle, "title_size": size, "legend": legend, "x_title": x_title, "y_title": y_title}
+    )
     title, subtitle, top, title_pad = _top_margin(fig)
     fig.update_layout(
         template=TEMPLATE,
@@ -284,11 +282,29 @@ def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None, sc
     if out.layout.meta:
         title, subtitle, top, title_pad = _top_margin(out, canvas_width)
         out.update_layout(title_text=title, title_subtitle_text=subtitle, title_pad_t=title_pad, margin_t=top)
-        x_title, x_lines = wrap(out.layout.meta.get("x_title") or "", _chars_per_line(TYPE["base"], canvas_width))
+        x_title, x_lines = wrap_px(out.layout.meta.get("x_title") or "", TYPE["base"], text_width(canvas_width))
         out.update_layout(xaxis_title_text=x_title, margin_b=_BOTTOM + round(1.3 * TYPE["base"]) * (x_lines - 1))
     with_caption(out, caption, canvas_width)
     _top_panel(out, SLIDE_SIZES[size][2])
+    _fit_y_title(out, SLIDE_SIZES[size][2])
     return out
+
+
+def _plot_height(fig: go.Figure, slide_height: int) -> float:
+    """Height in px of the plot area on the lower of the chart on screen and the slide canvas."""
+    height = min(fig.layout.height or 450, slide_height)
+    return max(height - (fig.layout.margin.t or 0) - (fig.layout.margin.b or 0), 1)
+
+
+def _fit_y_title(fig: go.Figure, slide_height: int) -> None:
+    """The y-axis title broken into lines no longer than its axis (Plotly centres the title on
+    the axis, so a longer one reaches up into the subtitle)."""
+    text = (fig.layout.meta or {}).get("y_title")
+    if not text:
+        return
+    low, high = fig.layout.yaxis.domain or (0.0, 1.0)
+    room = _plot_height(fig, slide_height) * (high - low) - 10
+    fig.update_layout(yaxis_title_text=wrap_px(text, TYPE["base"], room)[0])
 
 
 def _top_panel(fig: go.Figure, slide_height: int) -> None:
@@ -298,8 +314,7 @@ def _top_panel(fig: go.Figure, slide_height: int) -> None:
     px = (fig.layout.meta or {}).get("top_panel_px")
     if not px:
         return
-    height = min(fig.layout.height or 450, slide_height)
-    plot = max(height - (fig.layout.margin.t or 0) - (fig.layout.margin.b or 0), 1)
+    plot = _plot_height(fig, slide_height)
     panel, gap = min(0.45, px / plot), min(0.08, 14 / plot)
     fig.update_layout(yaxis_domain=[0.0, 1.0 - panel - gap], yaxis2_domain=[1.0 - panel, 1.0])
 
@@ -313,7 +328,7 @@ def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None =
     x_title = out.layout.xaxis.title.text or ""
     x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
-    text, lines = wrap(html(caption), _chars_per_line(TYPE["caption"], canvas_width))
+    text, lines = wrap_px(html(caption), TYPE["caption"], text_width(canvas_width))
     out.add_annotation(
         text=text,
         xref="paper",

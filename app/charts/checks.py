@@ -9,25 +9,28 @@ import numpy as np
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
-from app.charts.base import BLUE, FONT, GRID, INK, SKY, SUBTLE, TEMPLATE, TYPE, VERMILLION, floats, style
+from app.charts.base import BLUE, GRID, INK, SKY, TYPE, VERMILLION, floats, style
 from core.output.escape import html
 from core.output.numbers import signed
 
 
 # --- distributions ------------------------------------------------------------------------------------------
 def distribution_figure(item: dict[str, Any]) -> go.Figure:
-    """One variable's histogram as recorded and, beside it, as transformed."""
-    panels = [("raw", f"As recorded<br>skewness {_skew_text(item['skew_raw'])}")]
+    """One variable's histogram as recorded and, beside it, as transformed; each panel named
+    under it, the skewness of both in the subtitle."""
+    label = html(item["label"])
+    panels = [("raw", "As recorded")]
+    subtitle = f"Skewness {_skew_text(item['skew_raw'])} as recorded"
     if item.get("transformed"):
-        panels.append(("transformed", f"As {html(item['label'])}<br>skewness {_skew_text(item['skew_transformed'])}"))
-    fig = make_subplots(rows=1, cols=len(panels), subplot_titles=[t for _, t in panels], horizontal_spacing=0.1)
+        panels.append(("transformed", f"As {label}"))
+        subtitle += f", {_skew_text(item['skew_transformed'])} as {label}"
+    fig = make_subplots(rows=1, cols=len(panels), horizontal_spacing=0.12)
     for i, (key, _) in enumerate(panels, start=1):
         hist = item[key]
         edges = np.array(hist["edges"], dtype=float)
-        centres = (edges[:-1] + edges[1:]) / 2
         fig.add_trace(
             go.Bar(
-                x=centres,
+                x=(edges[:-1] + edges[1:]) / 2,
                 y=hist["counts"],
                 width=float(edges[1] - edges[0]) * 0.96,
                 marker={"color": SKY if key == "raw" else BLUE, "line": {"width": 0}},
@@ -37,26 +40,13 @@ def distribution_figure(item: dict[str, Any]) -> go.Figure:
             row=1,
             col=i,
         )
-    fig.update_layout(
-        template=TEMPLATE,
-        font={"family": FONT, "size": TYPE["base"] - 1, "color": INK},
-        title={
-            "text": f"{html(item['column'])} ({item['role']})",
-            "x": 0.01,
-            "xanchor": "left",
-            "xref": "container",
-            "y": 1.0,
-            "yanchor": "top",
-            "yref": "container",
-            "pad": {"t": 18},
-            "font": {"size": 22},
-        },
-        margin={"l": 70, "r": 20, "t": 124, "b": 48},
-        height=360,
-        bargap=0.02,
+    style(
+        fig, f"{html(item['column'])} ({item['role']})", subtitle, panels[0][1], "Rows", height=380, legend=False, title_size=22
     )
-    fig.update_annotations(font={"size": TYPE["note"], "color": SUBTLE})
-    fig.update_yaxes(title_text="Rows", row=1, col=1)
+    fig.update_layout(bargap=0.02)
+    fig.update_xaxes(nticks=6, tickangle=0)
+    if len(panels) > 1:
+        fig.update_layout(xaxis2_title_text=panels[1][1])
     return fig
 
 
@@ -148,7 +138,7 @@ def boxcox_figure(boxcox: dict[str, Any], outcome_column: str) -> go.Figure:
         f"Higher is better; {outcome_column} is modelled on the regressors as they are transformed now",
         "Power λ of the outcome (0 = log, 0.5 ≈ square root, 1 = level)",
         "Log-likelihood, less the best",
-        height=580,
+        height=700,
     )
     span = float(np.nanmax(lam) - np.nanmin(lam)) or 1.0
     fig.update_layout(

@@ -338,7 +338,7 @@ def units_figure(check: dict[str, Any], outcome_column: str, tick_words: list[st
         subtitle="A flat line would mean the units do not matter",
         x_title=f"{column} rescaled",
         y_title=y_title,
-        height=440,
+        height=500,
         legend=False,
         title_size=22,
     )

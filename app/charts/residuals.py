@@ -10,11 +10,12 @@ from typing import Any
 import numpy as np
 import plotly.graph_objects as go
 
-from app.charts.base import BLUE, GREY, INK, ORANGE, SKY, VERMILLION, floats, legend_dot, style
+from app.charts.base import BLUE, GREY, INK, ORANGE, VERMILLION, floats, legend_dot, style
 from core.output.escape import html
 from core.output.numbers import compact
 
 _BOX_WIDTH = 0.62  # of a band's column
+_PALE_SKY = "#BBE1F6"  # SKY at 0.4 on white: opaque, so the rows behind do not speckle the band
 
 
 def _dot_opacity(n: int) -> float:
@@ -41,12 +42,39 @@ def _band_ticks(bands: list[dict[str, Any]]) -> dict[str, Any]:
     return {"tickmode": "array", "tickvals": shown, "ticktext": [compact(bands[i]["mid"]) for i in shown], "tickangle": 0}
 
 
+def _band_boxes(fig: go.Figure, bands: list[dict[str, Any]]) -> None:
+    """Each band's middle 80 % and middle half of residuals as boxes, and its median as a
+    white bar. Drawn as filled outlines (scatter traces), so they lie over the rows' dots."""
+    where = np.arange(len(bands), dtype=float)
+    half = _BOX_WIDTH / 2
+    for low, high, colour, name in (("q10", "q90", _PALE_SKY, "Band's middle 80 %"), ("q25", "q75", BLUE, "Band's middle half")):
+        xs = [v for i in where for v in (i - half, i + half, i + half, i - half, i - half, None)]
+        ys = [v for b in bands for v in (b[low], b[low], b[high], b[high], b[low], None)]
+        fig.add_trace(
+            go.Scatter(
+                x=xs, y=ys, mode="lines", fill="toself", fillcolor=colour, line={"width": 0, "color": colour},
+                name=name, hoverinfo="skip",
+            )
+        )  # fmt: skip
+    fig.add_trace(
+        go.Scatter(
+            x=where,
+            y=[b["q50"] for b in bands],
+            mode="markers",
+            marker={"symbol": "line-ew", "size": 24, "line": {"color": "white", "width": 3}},
+            showlegend=False,
+            customdata=[[compact(b["low"]), compact(b["high"]), b["n"], b["q25"], b["q75"]] for b in bands],
+            hovertemplate="fitted %{customdata[0]} to %{customdata[1]}, %{customdata[2]:,} rows<br>"
+            "middle half %{customdata[3]:.3g} to %{customdata[4]:.3g}, median %{y:.3g}<extra></extra>",
+        )
+    )
+
+
 def spread_figure(data: dict[str, Any], headline: str, fitted_label: str) -> go.Figure:
     """Is the spread even? The rows as a strip per band of fitted values, each band's middle
     half and middle 80 % of residuals as boxes over them, and the middle half of all rows as a
     dashed corridor: an even spread keeps every box inside the corridor's height."""
     bands = data["spread_bands"]
-    where = np.arange(len(bands), dtype=float)
     fig = go.Figure()
     fig.add_trace(
         go.Scatter(
@@ -59,40 +87,13 @@ def spread_figure(data: dict[str, Any], headline: str, fitted_label: str) -> go.
         )
     )
     legend_dot(fig, "Rows" + (" (a sample)" if data["shown"] < data["n"] else ""), GREY, size=6)
-    for low, high, colour, opacity, name in (
-        ("q10", "q90", SKY, 0.45, "Middle 80 % of a band"),
-        ("q25", "q75", BLUE, 0.8, "Middle half of a band"),
-    ):
-        fig.add_trace(
-            go.Bar(
-                x=where,
-                y=[b[high] - b[low] for b in bands],
-                base=[b[low] for b in bands],
-                width=_BOX_WIDTH,
-                marker={"color": colour, "opacity": opacity, "line": {"width": 0}},
-                name=name,
-                customdata=[[compact(b["low"]), compact(b["high"]), b["n"]] for b in bands],
-                hovertemplate="fitted %{customdata[0]} to %{customdata[1]}, %{customdata[2]:,} rows<br>"
-                "%{base:.3g} to %{y:.3g} wide<extra></extra>",
-            )
-        )
-    fig.add_trace(
-        go.Scatter(
-            x=where,
-            y=[b["q50"] for b in bands],
-            mode="markers",
-            marker={"symbol": "line-ew", "size": 24, "line": {"color": "white", "width": 3}},
-            name="Median",
-            showlegend=False,
-            hovertemplate="median %{y:.3g}<extra></extra>",
-        )
-    )
+    _band_boxes(fig, bands)
     everyone = data["spread_all"]
     for edge in ("q25", "q75"):
         fig.add_hline(y=everyone[edge], line={"color": ORANGE, "width": 2, "dash": "dash"})
     fig.add_trace(
         go.Scatter(
-            x=[None], y=[None], mode="lines", name="Middle half of all rows", line={"color": ORANGE, "width": 2, "dash": "dash"}
+            x=[None], y=[None], mode="lines", name="Middle half, all rows", line={"color": ORANGE, "width": 2, "dash": "dash"}
         )
     )
     per_band = bands[0]["n"] if bands else 0
@@ -101,12 +102,12 @@ def spread_figure(data: dict[str, Any], headline: str, fitted_label: str) -> go.
         html(headline),
         f"Residuals in {len(bands)} bands of fitted values, about {per_band:,} rows each; "
         "an even spread gives boxes of one height",
-        f"Fitted {html(fitted_label)}, middle of each band (lowest to highest)",
+        f"Fitted {html(fitted_label)}, middle of each band",
         "Residual",
-        height=500,
+        height=560,
         title_size=24,
     )
-    fig.update_layout(barmode="overlay", bargap=0, xaxis=_band_ticks(bands) | {"range": [-0.6, len(bands) - 0.4]})
+    fig.update_layout(xaxis=_band_ticks(bands) | {"range": [-0.6, len(bands) - 0.4]})
     return fig
 
 
@@ -143,7 +144,7 @@ def tails_figure(data: dict[str, Any], headline: str) -> go.Figure:
         go.Scatter(x=segments_x, y=segments_y, mode="lines", line={"color": GREY, "width": 2}, showlegend=False, hoverinfo="skip")
     )
     for mask, colour, name in (
-        (~outside, BLUE, "Share of the rows, with 95 % interval"),
+        (~outside, BLUE, "Share of the rows"),
         (outside, VERMILLION, "Far from a bell curve"),
     ):
         if not mask.any():
@@ -178,7 +179,7 @@ def tails_figure(data: dict[str, Any], headline: str) -> go.Figure:
             x=normal,
             y=where,
             mode="markers",
-            name="Where a bell curve puts them",
+            name="Bell curve's share",
             marker={"symbol": "circle-open", "size": 18, "color": INK, "line": {"width": 2.5}},
             hovertemplate="a bell curve: %{x:.3g} % of rows<extra></extra>",
         )
@@ -187,11 +188,11 @@ def tails_figure(data: dict[str, Any], headline: str) -> go.Figure:
     style(
         fig,
         html(headline),
-        f"Share of the {data['n']:,} rows beyond 1, 2 and 3 standard deviations on each side"
+        f"Share of the {data['n']:,} rows beyond 1, 2 and 3 standard deviations on each side, with 95 % intervals"
         + (" (a triangle: none)" if (share == 0).any() else ""),
         "Share of the rows (log scale)",
         "Standardised residual",
-        height=500,
+        height=560,
         title_size=24,
     )
     span = [math.log10(floor) - 0.1, math.log10(float(max(high.max(), normal.max()))) + 0.15]
@@ -212,7 +213,7 @@ def curvature_figure(data: dict[str, Any], headline: str, fitted_label: str) -> 
     off = (low > 0) | (high < 0)
     fig = go.Figure()
     fig.add_hline(y=0, line={"color": INK, "width": 2})
-    for mask, colour, name in ((~off, BLUE, "Mean residual of a band, 95 % interval"), (off, VERMILLION, "Interval misses zero")):
+    for mask, colour, name in ((~off, BLUE, "Mean of a band"), (off, VERMILLION, "Interval misses zero")):
         if not mask.any():
             continue
         fig.add_trace(
@@ -239,11 +240,11 @@ def curvature_figure(data: dict[str, Any], headline: str, fitted_label: str) -> 
     style(
         fig,
         html(headline),
-        f"Mean residual in {len(bands)} bands of fitted values, about {per_band:,} rows each; "
+        f"Mean residual in {len(bands)} bands of fitted values, about {per_band:,} rows each, with 95 % intervals; "
         "with nothing missing they scatter around zero",
         f"Fitted {html(fitted_label)}, middle of each band",
         "Mean residual",
-        height=500,
+        height=560,
         title_size=24,
     )
     return fig

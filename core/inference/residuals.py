@@ -95,8 +95,9 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
     Standardised residuals are internally studentised, eᵢ / (s·sqrt(1 − hᵢ)) (Cook & Weisberg
     1982, Residuals and Influence in Regression, §2.2.1), with weights applied as in core.
     """
-    # Room for the bands drawn with the dots, so a chart stays within ``limit`` points.
-    limit = max(limit - 100, 10)
+    # Room for the bands drawn with the dots (two outlines of six points and a median per band),
+    # so a chart stays within ``limit`` points.
+    limit = max(limit - 200, 10)
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid * root_w if root_w is not None else fit.resid
     X = design.X * root_w[:, None] if root_w is not None else design.X
