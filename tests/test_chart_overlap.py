@@ -27,6 +27,7 @@ import pytest
 
 import core
 from app import charts
+from app.charts.sweep import sweep_figure
 from app.checks_view import CARD_CHART
 from core.inference.choices import overlay_options, retransforms_differ, sample_points, switch_transform
 from core.intake.profile import profile_table
@@ -121,6 +122,16 @@ def _curve_charts(frame: pd.DataFrame, spec: dict[str, Any], result: dict[str, A
             yield f"curve {column}" + (" with comparison" if overlay else ""), fig
 
 
+def _sweep_chart(frame: pd.DataFrame, spec: dict[str, Any]) -> go.Figure:
+    """The Forms view's chart, as app.sweep_view draws it."""
+    sweep = core.analyze(frame, {**spec, "sweep": {}}, parts={"sweep"})["sweep"]
+    models = sweep["models"]
+    varying = [c for c in models[0]["transforms"] if len({m["transforms"][c] for m in models}) > 1]
+    current = {spec["outcome"]["column"]: spec["outcome"]["transform"]}
+    current |= {r["column"]: r.get("transform", "level") for r in spec["regressors"]}
+    return sweep_figure(sweep, current, varying)
+
+
 Chart = tuple[str, Callable[[], go.Figure], int]
 
 
@@ -153,6 +164,7 @@ def _charts(frame: pd.DataFrame, spec: dict[str, Any]) -> list[Chart]:
         out.append(("boxcox", lambda: charts.boxcox_figure(result["boxcox"], y), CARD_CHART))
     for item in result["distributions"]:
         out.append((f"distribution {item['column']}", lambda i=item: charts.distribution_figure(i), WHOLE))
+    out.append(("forms sweep", lambda: _sweep_chart(frame, spec), WHOLE))
     used = {spec["outcome"]["column"], *transforms}
     for entry in profile_table(frame)["columns"]:
         if entry.get("histogram") and entry["column"] in used:
@@ -222,7 +234,7 @@ def _canvases(height: int, screen: int) -> Iterator[tuple[str, int, int, int | N
 @pytest.mark.parametrize("data_name", ["kiosks.csv", "hprice1.csv"])
 def test_no_text_overlaps_on_any_chart_at_any_slide_size(page: Any, data_name: str) -> None:
     frame, spec = _dataset(data_name)
-    result = core.analyze(frame, spec, parts={"fit"})
+    result = core.analyze(frame, spec, parts={"terms", "fit"})
     caption = charts.caption_text(data_name, result["n_obs"], model_sentence(result))
     problems: list[str] = []
     checked = 0

@@ -329,17 +329,19 @@ def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None =
     x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
     text, lines = wrap_px(html(caption), TYPE["caption"], text_width(canvas_width))
+    # Set from the plot's right edge: the right margin is fixed, while the left one grows
+    # with the y-axis labels, so a line as wide as the text may be always fits the canvas.
     out.add_annotation(
         text=text,
         xref="paper",
-        x=0.0,
-        xanchor="left",
+        x=1.0,
+        xanchor="right",
         yref="paper",
         y=0.0,
         yanchor="top",
         yshift=-_CAPTION_GAP[bool(x_title)] - x_extra,
         showarrow=False,
-        align="left",
+        align="right",
         font={"size": TYPE["caption"], "color": SUBTLE},
         name="caption",
     )

@@ -17,7 +17,8 @@ def _register_template() -> None:
     light grid on both axes, no zero lines and no tick marks, a thin baseline under the plot."""
     axis = {
         "gridcolor": GRID, "gridwidth": 1, "zeroline": False, "ticks": "", "automargin": True,
-        "tickfont": {"size": TYPE["base"], "color": INK}, "title": {"font": {"size": TYPE["base"], "color": INK}},
+        "tickfont": {"size": TYPE["base"], "color": INK},
+        "title": {"font": {"size": TYPE["base"], "color": INK}, "standoff": 14},
     }  # fmt: skip
     pio.templates[TEMPLATE] = go.layout.Template(
         layout={
