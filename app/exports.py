@@ -163,7 +163,7 @@ def chart_settings() -> None:
 # --- tables ----------------------------------------------------------------------------------------------
 def table_downloads(table: core_tables.Table, stem: str, key: str) -> None:
     """Three small download buttons under a table: CSV, Markdown, LaTeX."""
-    cols = st.columns([1.2, 1, 1, 1, 3], vertical_alignment="center")
+    cols = st.columns([1.5, 1, 1.5, 1, 1.6], vertical_alignment="center")  # "Markdown" whole at 1280 px
     with cols[0]:
         st.caption("Download this table:")
     for col, (fmt, (words, extension, mime)) in zip(cols[1:], TABLE_FORMATS.items(), strict=False):

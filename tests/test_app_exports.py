@@ -23,9 +23,9 @@ import core
 from app import charts, exports, keys
 from core.output import tables as core_tables
 from core.output.escape import csv_cell
-from core.output.tables import plain_number
 from core.output.numbers import sig
 from core.output.report import CAUTION_REVIEW
+from core.output.tables import plain_number
 from tests.app_support import cli_analyze, edit_grid, show, start
 from tests.helpers import shown, shown_table
 

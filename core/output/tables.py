@@ -67,7 +67,9 @@ def diagnostics_table(result: dict[str, Any]) -> Table:
         "reset": "RESET, missing curvature (fitted^2, fitted^3)",
     }
     rows: list[list[Cell]] = [
-        [label, sig(checks[key]["statistic"], 4), p_value(checks[key]["p_value"])] for key, label in names.items() if key in checks
+        [label, sig(checks[key]["statistic"], 4), p_value(checks[key]["p_value"])]
+        for key, label in names.items()
+        if key in checks
     ]
     return Table("Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, model_footer(result))
 
@@ -169,7 +171,9 @@ def latex_columns(table: Table) -> str:
     texts = [h for h in table.header if h not in table.numeric]
     wide = max(texts, key=lambda h: lengths[h]) if texts else None
     wrap = wide if wide is not None and lengths[wide] > 30 else None
-    return "".join("r" if h in table.numeric else (r">{\raggedright\arraybackslash}X" if h == wrap else "l") for h in table.header)
+    return "".join(
+        "r" if h in table.numeric else (r">{\raggedright\arraybackslash}X" if h == wrap else "l") for h in table.header
+    )
 
 
 def to_latex(table: Table) -> str:
