@@ -32,7 +32,7 @@ from _common import machine_line
 
 import core  # noqa: E402  (path set up by _common)
 from core.model.ols import fit_ols
-from tests.data.nist import NAMES, StRD, householder_fit, load, lre
+from tests.data.nist import NAMES, StRD, exact_least_squares, householder_fit, load, lre
 
 # The issue's "done when": fixed floors, or at least the Householder QR's digits less one.
 FLOORS = {"Norris": 11.0, "Pontius": 11.0, "Longley": 11.0, "Filip": 7.0}
@@ -47,19 +47,7 @@ def exact_coefficients(dataset: StRD) -> np.ndarray:
     Gauss-Jordan): the ceiling for any floating-point solver given these doubles."""
     rows = [[Fraction(float(v)) for v in row] for row in dataset.design]
     y = [Fraction(float(v)) for v in dataset.y]
-    k = len(rows[0])
-    system = [
-        [sum(r[i] * r[j] for r in rows) for j in range(k)] + [sum(r[i] * v for r, v in zip(rows, y, strict=True))]
-        for i in range(k)
-    ]
-    for col in range(k):
-        pivot = next(r for r in range(col, k) if system[r][col] != 0)
-        system[col], system[pivot] = system[pivot], system[col]
-        for r in range(k):
-            if r != col and system[r][col] != 0:
-                factor = system[r][col] / system[col][col]
-                system[r] = [a - factor * b for a, b in zip(system[r], system[col], strict=True)]
-    return np.array([float(system[i][k] / system[i][i]) for i in range(k)])
+    return np.array([float(b) for b in exact_least_squares(rows, y)])
 
 
 def formwise(dataset: StRD) -> tuple[np.ndarray, np.ndarray, dict]:

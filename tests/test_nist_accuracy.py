@@ -18,7 +18,7 @@ import pytest
 
 import core
 from core.model.ols import fit_ols
-from tests.data.nist import NAMES, StRD, householder_fit, load, lre
+from tests.data.nist import NAMES, StRD, exact_least_squares, householder_fit, load, lre
 
 EASIER = ("Norris", "Pontius", "Longley")
 WAMPLER = ("Wampler1", "Wampler2", "Wampler3", "Wampler4", "Wampler5")
@@ -35,21 +35,7 @@ def _worst(values: np.ndarray, certified: np.ndarray) -> float:
 
 def _exact_solution(dataset: StRD) -> list[Fraction]:
     """Least squares in exact rational arithmetic: Gauss-Jordan on the normal equations."""
-    rows = dataset.exact_rows()
-    y = [Fraction(v) for v in dataset.y_text]
-    k = len(rows[0])
-    system = [
-        [sum(r[i] * r[j] for r in rows) for j in range(k)] + [sum(r[i] * v for r, v in zip(rows, y, strict=True))]
-        for i in range(k)
-    ]
-    for col in range(k):
-        pivot = next(r for r in range(col, k) if system[r][col] != 0)
-        system[col], system[pivot] = system[pivot], system[col]
-        for r in range(k):
-            if r != col and system[r][col] != 0:
-                factor = system[r][col] / system[col][col]
-                system[r] = [a - factor * b for a, b in zip(system[r], system[col], strict=True)]
-    return [system[i][k] / system[i][i] for i in range(k)]
+    return exact_least_squares(dataset.exact_rows(), [Fraction(v) for v in dataset.y_text])
 
 
 @pytest.mark.parametrize("name", NAMES)

@@ -120,3 +120,20 @@ def householder_fit(X: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarra
     s2 = float(resid @ resid) / (X.shape[0] - X.shape[1])
     r_inv = solve_triangular(r, np.eye(X.shape[1]))
     return coef, np.sqrt(s2 * (r_inv**2).sum(axis=1))
+
+
+def exact_least_squares(rows: list[list[Fraction]], y: list[Fraction]) -> list[Fraction]:
+    """Least squares in exact rational arithmetic: Gauss-Jordan on the normal equations."""
+    k = len(rows[0])
+    system = [
+        [sum(r[i] * r[j] for r in rows) for j in range(k)] + [sum(r[i] * v for r, v in zip(rows, y, strict=True))]
+        for i in range(k)
+    ]
+    for col in range(k):
+        pivot = next(r for r in range(col, k) if system[r][col] != 0)
+        system[col], system[pivot] = system[pivot], system[col]
+        for r in range(k):
+            if r != col and system[r][col] != 0:
+                factor = system[r][col] / system[col][col]
+                system[r] = [a - factor * b for a, b in zip(system[r], system[col], strict=True)]
+    return [system[i][k] / system[i][i] for i in range(k)]
