@@ -349,11 +349,15 @@ def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None =
     return out
 
 
-def legend_dot(fig: go.Figure, name: str, colour: str, size: int = 8) -> None:
-    """A legend entry for faint dots, drawn at full strength so it can be seen."""
-    fig.add_trace(
-        go.Scatter(x=[None], y=[None], mode="markers", name=name, marker={"color": colour, "size": size}, hoverinfo="skip")
-    )
+def legend_dot(fig: go.Figure, name: str, colour: str, size: int = 8, symbol: str = "circle") -> None:
+    """A legend entry for faint dots (or a shaded area, as a square), drawn so it can be seen."""
+    marker = {"color": colour, "size": size, "symbol": symbol}
+    fig.add_trace(go.Scatter(x=[None], y=[None], mode="markers", name=name, marker=marker, hoverinfo="skip"))
+
+
+def legend_square(fig: go.Figure, name: str, colour: str) -> None:
+    """A legend entry for a shaded area (a band or a strip), which has none of its own."""
+    legend_dot(fig, name, colour, size=16, symbol="square")
 
 
 def point_count(fig: go.Figure) -> int:

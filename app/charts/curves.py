@@ -7,7 +7,7 @@ from typing import Any
 import numpy as np
 import plotly.graph_objects as go
 
-from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, style
+from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, legend_square, style
 from core.output.escape import html
 from core.output.theme import NAIVE_NAME, SMEARING_NAME
 
@@ -62,16 +62,7 @@ def _shade_beyond(fig: go.Figure, x_low: float, x_high: float, observed_min: flo
     if shaded:
         # Named in the legend rather than written in the strips: a strip can be too narrow
         # for a label on a half-slide export.
-        fig.add_trace(
-            go.Scatter(
-                x=[None],
-                y=[None],
-                mode="markers",
-                name=BEYOND_NAME,
-                marker={"symbol": "square", "size": 16, "color": "rgba(154, 165, 177, 0.35)"},
-                hoverinfo="skip",
-            )
-        )
+        legend_square(fig, BEYOND_NAME, "rgba(154, 165, 177, 0.35)")
 
 
 def _comparison_lines(

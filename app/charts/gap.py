@@ -8,7 +8,7 @@ from typing import Any
 import numpy as np
 import plotly.graph_objects as go
 
-from app.charts.base import BLUE, ORANGE, PURPLE, TYPE, VERMILLION, floats, style
+from app.charts.base import BLUE, ORANGE, PURPLE, TYPE, VERMILLION, floats, legend_square, style
 from core.output.escape import html
 
 
@@ -163,16 +163,7 @@ def _tolerance_bands(fig: go.Figure, sizes: np.ndarray, approx: np.ndarray, exac
             bgcolor="rgba(255,255,255,0.8)",
         )
     if regions:
-        fig.add_trace(
-            go.Scatter(
-                x=[None],
-                y=[None],
-                mode="markers",
-                name=band,
-                marker={"symbol": "square", "size": 16, "color": "rgba(204, 121, 167, 0.35)"},
-                hoverinfo="skip",
-            )
-        )
+        legend_square(fig, band, "rgba(204, 121, 167, 0.35)")
 
 
 def _mark_change(
@@ -261,16 +252,7 @@ def gap_figure(
         )
     )
     # Legend entry for the shaded gap (the fill itself has none of its own).
-    fig.add_trace(
-        go.Scatter(
-            x=[None],
-            y=[None],
-            mode="markers",
-            name="Gap between them",
-            marker={"symbol": "square", "size": 16, "color": "rgba(86, 180, 233, 0.45)"},
-            hoverinfo="skip",
-        )
-    )
+    legend_square(fig, "Gap between them", "rgba(86, 180, 233, 0.45)")
 
     _tolerance_bands(fig, sizes, approx, exact, tolerance_pct)
     _mark_change(fig, sizes, approx, exact, chosen, percent_change, x_hover, y_hover)
