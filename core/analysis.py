@@ -262,7 +262,7 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curve)}),
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
     (frozenset({"units_check"}), _units_section),
-    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec)}),
+    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, base=r.design)}),
     # Last: it fills in the entries the three sections above produced.
     (frozenset({"effects", "scenarios", "predictions"}), _bootstrap_section),
 ]

@@ -81,9 +81,16 @@ class _Setup:
     n_left_out: int
 
 
-def sweep_section(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None = None) -> dict:
-    """The ``sweep`` result (docs/contract.md §3.16) for the spec's ``sweep`` entry."""
-    setup = _setup(data, raw_spec, model_spec, columns)
+def sweep_section(
+    data: pd.DataFrame,
+    raw_spec: dict,
+    model_spec: ModelSpec,
+    columns: ColumnCache | None = None,
+    base: Design | None = None,
+) -> dict:
+    """The ``sweep`` result (docs/contract.md §3.16) for the spec's ``sweep`` entry; ``base``
+    is the spec's own design on ``data`` when the caller has built it already."""
+    setup = _setup(data, raw_spec, model_spec, columns, base)
     models = _fit_all(setup)
     return _summary(setup, models)
 
@@ -139,9 +146,14 @@ def _default(values: np.ndarray, role: str, binary: bool) -> list[Transform]:
     return [parse_transform(c, role, "sweep") for c in menu_codes(role) if c in wanted]
 
 
-def _setup(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None) -> _Setup:
+def _setup(
+    data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None, base: Design | None = None
+) -> _Setup:
     focus, given = _parse(raw_spec, model_spec)
-    base = build_design(data, model_spec, columns)
+    # A cache of its own when the caller keeps none: the common rows' design reuses the columns
+    # the base design converted.
+    columns = ColumnCache() if columns is None else columns
+    base = build_design(data, model_spec, columns) if base is None else base
     blocks = {b.spec.column: b for b in base.encoder.blocks}
     own = {model_spec.outcome_column: model_spec.outcome_transform, **{r.column: r.transform for r in model_spec.regressors}}
     lists: dict[str, list[Transform]] = {}
@@ -177,8 +189,9 @@ def _setup(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: C
                 keep &= ~bad
     design = base
     if not keep.all():
-        design = build_design(data.iloc[base.rows[keep]], model_spec)
-        design = replace(design, rows=base.rows[keep], n_total=len(data))
+        within = np.zeros(len(data), dtype=bool)
+        within[base.rows[keep]] = True
+        design = build_design(data, model_spec, columns, within)
     change = _focus_change(design, focus)
     return _columns(model_spec, design, focus, change, lists, left_out, int((~keep).sum()))
 

@@ -437,10 +437,15 @@ def _numeric_block(reg: RegressorSpec, x: np.ndarray, start: int) -> tuple[Block
     return block, terms
 
 
-def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | None = None) -> Design:
+def build_design(
+    data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | None = None, within: np.ndarray | None = None
+) -> Design:
     """Transform, drop and encode: the design matrix for ``spec`` on ``data``. ``columns``
     keeps converted and transformed columns between calls on the same table (see
-    ``ColumnCache``); the design is the same with or without it."""
+    ``ColumnCache``); the design is the same with or without it. ``within`` (a boolean mask
+    over the rows of ``data``) restricts the design to those rows, exactly as building it on
+    ``data[within]`` would except that ``rows``, ``n_total`` and the dropped counts still refer
+    to ``data``."""
 
     def cached(key: tuple[Any, ...], make: Callable[[], Any]) -> Any:
         return make() if columns is None else columns.get(data, key, make)
@@ -451,6 +456,8 @@ def build_design(data: pd.DataFrame, spec: ModelSpec, columns: ColumnCache | Non
     drops = _Drops(n_total)
     found = _read_columns(data, spec, drops, cached)
     _drop_outside_domains(spec, found, drops, cached)
+    if within is not None:
+        drops.keep &= within
     raw = found.raw
 
     rows = np.flatnonzero(drops.keep)
