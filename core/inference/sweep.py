@@ -95,6 +95,19 @@ def sweep_section(
     return _summary(setup, models)
 
 
+def spec_of_model(spec: dict[str, Any], sweep: dict[str, Any], transforms: dict[str, str]) -> dict[str, Any]:
+    """The plain spec of one model of a sweep result: ``spec`` without its sweep entry, with the
+    model's transforms and the focus change named (what loads the model into the grid)."""
+    out = {k: v for k, v in spec.items() if k != "sweep"}
+    out["outcome"] = {**spec["outcome"], "transform": transforms[spec["outcome"]["column"]]}
+    focus = sweep["focus"]
+    out["regressors"] = [
+        {**r, "transform": transforms[r["column"]], **({"change": focus["change"]} if r["column"] == focus["column"] else {})}
+        for r in spec.get("regressors", [])
+    ]
+    return out
+
+
 def sweep_rows(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec) -> np.ndarray:
     """Positions in ``data`` of the rows the sweep fits every model on."""
     return _setup(data, raw_spec, model_spec, None).design.rows

@@ -495,14 +495,7 @@ def build_design(
         )
     check_budget(blocks, n, width)
     encoder = Encoder(blocks, width)
-    bases = None
-    if columns is not None:
-        bases = {}
-        for block in blocks:
-            reg = block.spec
-            if not block.is_category:
-                full = cached(("basis", reg.column, reg.transform), lambda r=reg: _basis_all_rows(r.transform, raw[r.column]))
-                bases[reg.column] = full if every_row else full[rows]
+    bases = None if columns is None else _cached_bases(blocks, raw, cached, None if every_row else rows)
     X = encoder.encode(values, n, codes_used, bases)
     y_raw = used(raw[spec.outcome_column])
     if float(np.ptp(y_raw)) == 0:
@@ -533,6 +526,20 @@ def build_design(
         warnings=drops.warnings(spec.weights),
         reference=reference_point(spec, blocks, values, modes),
     )
+
+
+def _cached_bases(
+    blocks: list[Block], raw: dict[str, np.ndarray], cached: Callable[..., Any], rows: np.ndarray | None
+) -> dict[str, np.ndarray]:
+    """Each numeric block's design columns on the used rows (``rows``; None for all), from the
+    column cache's all-row basis."""
+    bases = {}
+    for block in blocks:
+        reg = block.spec
+        if not block.is_category:
+            full = cached(("basis", reg.column, reg.transform), lambda r=reg: _basis_all_rows(r.transform, raw[r.column]))
+            bases[reg.column] = full if rows is None else full[rows]
+    return bases
 
 
 def check_budget(blocks: list[Block], n: int, width: int) -> None:

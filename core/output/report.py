@@ -21,9 +21,10 @@ from matplotlib.figure import Figure
 
 from core.analysis import analyze
 from core.model.transforms import parse_transform
-from core.output import figures, numbers, theme
+from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
-from core.output.tables import coefficient_table, comparison_table, diagnostics_table, effects_table
+from core.output.sweep_figure import sweep_figure
+from core.output.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, from_frame
 from core.output.text import small_sample
 
 CAUTION_REVIEW = (
@@ -33,6 +34,11 @@ CAUTION_REVIEW = (
 GAP_CAPTION = "The shaded gap is what the first-order approximation misses; prefer the exact effect where the gap is large."
 CURVE_CAPTION = "Other regressors at the reference point; shaded: 95 % interval of the expected value."
 LEVELS_CAPTION = "Other regressors at the reference point; whiskers: 95 % interval of the expected value."
+SWEEP_CAPTION = (
+    "Each model is one combination of forms, fitted on the same rows. Effects are the percent change of the "
+    "expected outcome at the reference point, so models with a level and a log outcome are compared like for like."
+)
+SWEEP_RANKED_ROWS = 20  # the best models by AIC listed in the report; the chart shows them all
 
 # Found beside this module, wherever the package is run from.
 _ENV = Environment(
@@ -106,14 +112,34 @@ def report_figures(result: dict[str, Any], spec: dict[str, Any], size: str = "fu
         out.append((f"curve{i}", figures.curve_figure(curve, y, y_label, label, ppml=ppml, size=size), caption))
     if result.get("boxcox"):
         out.append(("boxcox", figures.boxcox_figure(result["boxcox"], y, size=size), boxcox_caption(result["boxcox"])))
+    if result.get("sweep"):
+        out.append(("sweep", sweep_figure(result["sweep"], size=size), SWEEP_CAPTION))
     return out
 
 
-def _charts(result: dict[str, Any], spec: dict[str, Any]) -> tuple[list[Chart], list[Chart], Chart | None]:
-    charts = {key: _chart(fig, key, caption) for key, fig, caption in report_figures(result, spec)}
-    gaps = [c for key, c in charts.items() if key.startswith("gap")]
-    curves = [c for key, c in charts.items() if key.startswith("curve")]
-    return gaps, curves, charts.get("boxcox")
+def _charts(result: dict[str, Any], spec: dict[str, Any]) -> dict[str, Chart]:
+    return {key: _chart(fig, key, caption) for key, fig, caption in report_figures(result, spec)}
+
+
+@dataclass
+class SweepSection:
+    sentence: str
+    chart: Chart
+    moves: Table
+    ranked: Table
+    n_models: int
+    n_left_out: int
+
+
+def _sweep_section(sweep: dict[str, Any] | None, chart: Chart | None) -> SweepSection | None:
+    if not sweep or chart is None:
+        return None
+    columns = forms.varying(sweep)
+    moves = from_frame("What moves the answer: the effect under each form of each variable", forms.moves_table(sweep, columns))
+    shown = min(SWEEP_RANKED_ROWS, sweep["n_models"])
+    title = f"The {shown} best of {sweep['n_models']} models by AIC on the original scale"
+    ranked = from_frame(title, forms.ranked_table(sweep, columns, SWEEP_RANKED_ROWS))
+    return SweepSection(forms.summary_sentence(sweep), chart, moves, ranked, sweep["n_models"], sweep["n_left_out"])
 
 
 def build_report(
@@ -125,7 +151,7 @@ def build_report(
     """The whole report as one HTML string."""
     result = analyze(data, spec)
     n_coefficients = len(result.get("terms", [])) or 1
-    gaps, curves, box = _charts(result, spec)
+    charts = _charts(result, spec)
     comparison = None
     if saved:
         compared = {name: analyze(data, s, parts={"fit", "effects", "diagnostics"}) for name, s in saved.items()}
@@ -142,11 +168,12 @@ def build_report(
         coefficients=coefficient_table(result),
         effects=effects_table(result),
         reference=reference,
-        gap_charts=gaps,
-        curve_charts=curves,
+        gap_charts=[c for key, c in charts.items() if key.startswith("gap")],
+        curve_charts=[c for key, c in charts.items() if key.startswith("curve")],
         diagnostics=diagnostics_table(result) if result.get("diagnostics") else None,
         fit=result.get("fit") or {},
-        boxcox_chart=box,
+        boxcox_chart=charts.get("boxcox"),
+        sweep=_sweep_section(result.get("sweep"), charts.get("sweep")),
         comparison=comparison,
         spec_json=json.dumps(spec, indent=2, ensure_ascii=False),
         font=theme.FONT,

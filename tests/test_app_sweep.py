@@ -1,0 +1,41 @@
+"""The Forms view in the app (AppTest): the sweep's sentence and tables, and loading a chosen
+model into the grid as an edit Undo takes back."""
+
+from __future__ import annotations
+
+from tests.app_support import show, start
+
+
+def _terms(at) -> list[str]:
+    found = [t.value for t in at.table if "What it means" in t.value.columns]
+    return [str(v).replace("\\", "") for v in found[0]["Term"]] if found else []
+
+
+def _grid_transforms(at) -> dict[str, str]:
+    base = at.session_state["grid_base"]
+    return dict(zip(base["column"], base["transform"], strict=True))
+
+
+def test_the_forms_view_ranks_the_models_and_loads_one_into_the_grid() -> None:
+    at = start()
+    before = _grid_transforms(at)
+    assert before["drink_price"] == "log"
+    show(at, "Forms")
+    assert any("combinations of forms" in m.value for m in at.markdown)
+    ranked = next(d.value for d in at.dataframe if "ΔAIC" in d.value.columns)
+    assert ranked["ΔAIC"].iloc[0] == "0" and len(ranked) >= 64
+    # The best-ranked model with drink_price in level (the screen's model has it in log).
+    rank = int(next(r for r, forms in zip(ranked["Rank"], ranked["Forms"], strict=True) if "drink_price: level" in forms))
+    next(s for s in at.selectbox if s.label == "Model to load").set_value(rank).run()
+    at.button(key="sweep_load").click().run()
+    assert not at.exception, at.exception
+    after = _grid_transforms(at)
+    assert after["drink_price"] == "level"
+    wanted = ranked["Forms"].iloc[rank - 1]
+    for part in wanted.split(", "):
+        column, form = part.split(": ")
+        assert after[column] == form, (column, after[column], form)
+    # Loading is an edit like any other: Undo brings the screen's model back.
+    at.button(key="undo_edit").click().run()
+    assert not at.exception
+    assert _grid_transforms(at) == before
