@@ -249,11 +249,22 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
         if not good:
             return
         saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
-        key = (good["data_id"], spec_json(good["spec"]), json.dumps(saved, sort_keys=True))
+        spec = good["spec"]
+        ppml = spec.get("estimator") == "ppml"
+        with_sweep = st.checkbox(
+            "Include every combination of forms",
+            key=keys.REPORT_SWEEP,
+            disabled=ppml,
+            help="Adds the Forms view's comparison: the focus effect under every plausible combination of transforms."
+            + (" Not available with PPML." if ppml else ""),
+        )
+        if with_sweep and not ppml:
+            spec = {**spec, "sweep": spec.get("sweep") or {}}
+        key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
         if st.button("Prepare the report", key="prepare_report", width="stretch", help="Runs the whole analysis once."):
             with st.spinner("Writing the report…"):
                 try:
-                    html = report_file(good["frame"], good["spec"], good["data_name"], saved)
+                    html = report_file(good["frame"], spec, good["data_name"], saved)
                 except Exception as exc:  # a core bug must not become a traceback on screen
                     ss[keys.REPORT] = None
                     st.error(plain(f"The report could not be written: {exc}"))

@@ -16,6 +16,7 @@ UPLOAD_SEEN = "upload_seen"
 SPEC_UPLOAD_NOTES = "spec_upload_notes"
 SAVE_NAME = "save_name"
 REPORT = "report"
+REPORT_SWEEP = "report_sweep"  # the report includes the forms sweep
 PROFILE_PICK = "profile_pick"
 CURVE_OVERLAY = "curve_overlay"
 ADVICE_MESSAGE = "advice_message"

@@ -39,3 +39,16 @@ def test_the_forms_view_ranks_the_models_and_loads_one_into_the_grid() -> None:
     at.button(key="undo_edit").click().run()
     assert not at.exception
     assert _grid_transforms(at) == before
+
+
+def test_the_report_includes_the_forms_sweep_when_asked() -> None:
+    at = start()
+    at.button(key="prepare_report").click().run()
+    assert "Does the answer depend on the forms?" not in at.session_state["report"]["html"]
+    at.checkbox(key="report_sweep").check().run()
+    # The choice is part of what the report was prepared for: the plain one is stale now.
+    assert "Download the report (HTML)" not in {b.proto.label for b in at.get("download_button")}
+    at.button(key="prepare_report").click().run()
+    assert not at.exception, at.exception
+    html = at.session_state["report"]["html"]
+    assert "Does the answer depend on the forms?" in html and "combinations of forms" in html
