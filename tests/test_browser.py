@@ -131,6 +131,17 @@ def test_undo_and_redo_a_transform_edit(page) -> None:
     assert page.problems == []
 
 
+def test_the_forms_view_draws_on_the_demo(page) -> None:
+    page.get_by_role("radio", name="Forms", exact=True).first.click()
+    page.get_by_text("combinations of forms").first.wait_for(timeout=60_000)
+    page.get_by_text("What moves the answer").first.wait_for(timeout=30_000)
+    _wait_for_rerun(page)
+    page.locator(".js-plotly-plot").first.wait_for(timeout=30_000)
+    _no_error_text(page)
+    _shot(page, "forms")
+    assert page.problems == []  # type: ignore[attr-defined]
+
+
 def test_upload_through_the_file_chooser(page, tmp_path: Path) -> None:
     data = tmp_path / "shop_sales.csv"
     lines = ["units,price,shelf_days"] + [f"{50 + 3 * i % 17},{2 + (i % 7) * 0.25},{i % 11 + 1}" for i in range(60)]

@@ -155,15 +155,25 @@ def style(
     height: int = 520,
     legend: bool = True,
     title_size: int | None = None,
+    x_axis: str = "xaxis",
 ) -> go.Figure:
     """The look every chart shares, on screen and exported at any slide size: white, large
     type, a plain-word title and subtitle pinned to the top edge, the legend between them and
     the plot (pinned to the plot's top edge, so it never drifts when the export is taller or
     wider than the screen), and the axis titles naming the variables and their transforms.
-    Call it after the traces are added (the legend's height depends on them)."""
+    Call it after the traces are added (the legend's height depends on them). ``x_axis`` names
+    the x axis that carries the x title (the bottom one of stacked panels, e.g. "xaxis2")."""
     size = title_size or TYPE["title"]
     fig.update_layout(
-        meta={"title": title, "subtitle": subtitle, "title_size": size, "legend": legend, "x_title": x_title, "y_title": y_title}
+        meta={
+            "title": title,
+            "subtitle": subtitle,
+            "title_size": size,
+            "legend": legend,
+            "x_title": x_title,
+            "y_title": y_title,
+            "x_axis": x_axis,
+        }
     )
     title, subtitle, top, title_pad = _top_margin(fig)
     fig.update_layout(
@@ -183,7 +193,6 @@ def style(
             "pad": {"t": title_pad},
             "font": {"size": size},
         },
-        xaxis={"title": {"text": x_title}},
         yaxis={"title": {"text": y_title}},
         showlegend=legend,
         legend={
@@ -201,7 +210,13 @@ def style(
         height=height,
         hovermode="closest",
     )
+    fig.update_layout({x_axis: {"title": {"text": x_title}}})
     return fig
+
+
+def x_title_axis(fig: go.Figure) -> str:
+    """The layout key of the x axis that carries the x title (see ``style``)."""
+    return (fig.layout.meta or {}).get("x_axis", "xaxis") if isinstance(fig.layout.meta, dict) else "xaxis"
 
 
 # --- export at slide size -----------------------------------------------------------------------
@@ -283,9 +298,11 @@ def for_slide(fig: go.Figure, size: str = "full", caption: str | None = None, sc
         title, subtitle, top, title_pad = _top_margin(out, canvas_width)
         out.update_layout(title_text=title, title_subtitle_text=subtitle, title_pad_t=title_pad, margin_t=top)
         x_title, x_lines = wrap_px(out.layout.meta.get("x_title") or "", TYPE["base"], text_width(canvas_width))
-        out.update_layout(xaxis_title_text=x_title, margin_b=_BOTTOM + round(1.3 * TYPE["base"]) * (x_lines - 1))
+        out.update_layout({x_title_axis(out): {"title": {"text": x_title}}})
+        out.update_layout(margin_b=_BOTTOM + round(1.3 * TYPE["base"]) * (x_lines - 1))
     with_caption(out, caption, canvas_width)
     _top_panel(out, SLIDE_SIZES[size][2])
+    _bottom_panel(out, SLIDE_SIZES[size][2])
     _fit_y_title(out, SLIDE_SIZES[size][2])
     return out
 
@@ -319,13 +336,25 @@ def _top_panel(fig: go.Figure, slide_height: int) -> None:
     fig.update_layout(yaxis_domain=[0.0, 1.0 - panel - gap], yaxis2_domain=[1.0 - panel, 1.0])
 
 
+def _bottom_panel(fig: go.Figure, slide_height: int) -> None:
+    """A strip of fixed height under the plot (axis y2; its height in px in the figure's
+    ``meta`` as ``bottom_panel_px``), sized like ``_top_panel``, so each of its rows keeps
+    its height on screen and on every slide."""
+    px = (fig.layout.meta or {}).get("bottom_panel_px")
+    if not px:
+        return
+    plot = _plot_height(fig, slide_height)
+    panel, gap = min(0.5, px / plot), min(0.08, 20 / plot)
+    fig.update_layout(yaxis2_domain=[0.0, panel], yaxis_domain=[panel + gap, 1.0])
+
+
 def with_caption(fig: go.Figure, caption: str | None, canvas_width: int | None = None) -> go.Figure:
     """The figure with a source line (data file, N, model) under the plot, or unchanged
     without one. Changes the figure it is given (see ``for_slide``)."""
     if not caption:
         return fig
     out = fig
-    x_title = out.layout.xaxis.title.text or ""
+    x_title = out.layout[x_title_axis(out)].title.text or ""
     x_extra = round(1.3 * TYPE["base"]) * x_title.count("<br>")
     bottom = out.layout.margin.b if out.layout.margin.b is not None else 84
     text, lines = wrap_px(html(caption), TYPE["caption"], text_width(canvas_width))

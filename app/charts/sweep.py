@@ -9,9 +9,10 @@ import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
 from app.charts.base import style
-from core.output.theme import BLUE, GREEN, GREY, INK, ORANGE, PURPLE, SKY, VERMILLION
+from core.output.theme import BLUE, GREEN, GREY, INK, ORANGE, PURPLE, SKY, TYPE, VERMILLION
 
 # One colour per transform code in the strip beneath (Okabe-Ito, core.output.theme).
+_ROW_PX = 26
 FORM_COLOURS = {"level": GREY, "log": BLUE, "ihs": SKY, "sqrt": GREEN, "quadratic": PURPLE, "shifted_log:1": ORANGE}
 
 
@@ -27,7 +28,10 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
     rank = {id(m): i + 1 for i, m in enumerate(sweep["models"])}  # 1 = best by AIC
     x = list(range(1, len(models) + 1))
     rows = max(1, len(varying))
-    fig = make_subplots(rows=2, cols=1, shared_xaxes=True, row_heights=[0.62, 0.38], vertical_spacing=0.04)
+    # The strip gives each variable a row of _ROW_PX, enough for its name at the base type size
+    # (base._bottom_panel keeps it so on every slide size); the effects panel has the rest.
+    strip, panel = _ROW_PX * rows, 300
+    fig = make_subplots(rows=2, cols=1, shared_xaxes=True)
     pct = [m["percent"] for m in models]
     fig.add_trace(
         go.Scatter(
@@ -37,15 +41,17 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
             marker={"color": INK, "size": 6},
             error_y=_whiskers(models, pct),
             name="Effect with 95 % interval",
+            showlegend=False,  # the subtitle says what the dots and bars are
             customdata=[rank[id(m)] for m in models],
             hovertemplate="AIC rank %{customdata}<br>%{y:.2f} %<extra></extra>",
         ),
         row=1,
         col=1,
     )
-    for label, colour, pick in (
-        ("Best by AIC", VERMILLION, lambda m: rank[id(m)] == 1),
-        ("Model on screen", ORANGE, lambda m: m["transforms"] == current),
+    # Different shapes, so a model that is both the best and the one on screen shows both marks.
+    for label, colour, symbol, size, pick in (
+        ("Best by AIC", VERMILLION, "diamond-open", 15, lambda m: rank[id(m)] == 1),
+        ("Model on screen", ORANGE, "circle-open", 24, lambda m: m["transforms"] == current),
     ):
         found = [(i + 1, m["percent"]) for i, m in enumerate(models) if pick(m)]
         if found:
@@ -54,7 +60,7 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
                     x=[f[0] for f in found],
                     y=[f[1] for f in found],
                     mode="markers",
-                    marker={"color": colour, "size": 15, "symbol": "diamond-open", "line": {"width": 3}},
+                    marker={"color": colour, "size": size, "symbol": symbol, "line": {"width": 3}},
                     name=label,
                 ),
                 row=1,
@@ -82,14 +88,29 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
                 col=1,
             )
             seen.add(code)
-    fig.update_yaxes(categoryorder="array", categoryarray=list(reversed(varying)), row=2, col=1)
+    fig.update_yaxes(nticks=5, row=1, col=1)
+    names = list(reversed(varying))
+    fig.update_yaxes(
+        categoryorder="array",
+        categoryarray=names,
+        tickmode="array",
+        tickvals=names,
+        ticktext=names,
+        tickfont={"size": TYPE["caption"]},
+        row=2,
+        col=1,
+    )
     focus = sweep["focus"]
     fig.add_hline(y=0, line={"color": GREY, "width": 1}, row=1, col=1)
-    return style(
+    fig = style(
         fig,
-        f"How much does the effect of {focus['change']} in {focus['column']} depend on the forms?",
-        f"{len(models)} models on the same {sweep['n_obs']:,} rows, sorted by the effect; below, the form each variable took",
+        f"Does the effect of {focus['change']} in {focus['column']} depend on the forms?",
+        f"{len(models)} models on the same {sweep['n_obs']:,} rows; dots: effect as % change of the expected "
+        "outcome, bars: 95 % interval. Below: each variable's form",
         "Models, smallest effect to largest",
-        "Change of expected outcome, %",
-        height=520 + 18 * rows,
+        "Effect, %",
+        height=min(720, 300 + panel + strip),  # no taller than a slide, so screen and export agree
+        x_axis="xaxis2",
     )
+    fig.update_layout(meta={**fig.layout.meta, "bottom_panel_px": strip})
+    return fig
