@@ -34,10 +34,10 @@ def summary_sentence(sweep: dict[str, Any]) -> str:
     head = f"Across {len(models)} combinations of forms on the same {sweep['n_obs']:,} rows"
     if not found:
         return f"{head}, the change {focus['change']} in {focus['column']} leaves the range of every form; there is no effect to compare."
-    best_words = f"{sig(best)} %" if best is not None else "no effect (the change leaves its forms' range)"
+    best_words = f"{sig(best)}\u00a0%" if best is not None else "no effect (the change leaves its forms' range)"
     return (
         f"{head}, the effect of {focus['change']} in {focus['column']} on the expected outcome runs from "
-        f"{sig(min(found))} % to {sig(max(found))} %; the best model by AIC on the original scale gives {best_words}."
+        f"{sig(min(found))}\u00a0% to {sig(max(found))}\u00a0%; the best model by AIC on the original scale gives {best_words}."
     )
 
 
