@@ -42,7 +42,9 @@ def default_change_text(values: np.ndarray, relative: bool, kind: str | None = N
     ``binary`` says whether the values are 0/1 (worked out from ``values`` when None).
     """
     x = np.asarray(values, dtype=float)
-    x = x[np.isfinite(x)]
+    finite = np.isfinite(x)
+    if not finite.all():  # a copy only when needed: a million-row copy is most of the rule's time
+        x = x[finite]
     if binary is None:
         binary = bool(len(x)) and bool(np.all((x == 0.0) | (x == 1.0)))
     if binary:
@@ -54,7 +56,8 @@ def default_change_text(values: np.ndarray, relative: bool, kind: str | None = N
     sample = x[:: max(1, len(x) // _SPREAD_ROWS)]
     with np.errstate(all="ignore"):
         spread = _typical_spread(sample)
-        whole = bool(len(x)) and bool(np.all(x == np.round(x)))
+        # Every row is checked only when the sample is all whole numbers (most columns fail on it).
+        whole = bool(len(x)) and bool(np.all(sample == np.round(sample))) and bool(np.all(x == np.round(x)))
     if whole and relative and len(x):
         # On a log-type scale a step reads against the level: at most about a tenth of a typical
         # value, like the +10 % of an amount (100 square feet for houses of 1,800).
