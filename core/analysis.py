@@ -135,6 +135,17 @@ def analyze(
     return json_safe(result)
 
 
+def _diagnostics(run: _Run) -> dict[str, Any] | None:
+    """The residual checks; a warning when the White test had to take its fitted-value form."""
+    if run.ppml:
+        return None
+    checks = diagnostics(run.design, run.fit)
+    note = (checks.get("white") or {}).get("note")
+    if note:
+        run.warnings.append(note)
+    return checks
+
+
 def _time_series_warnings(notes: dict[str, Any] | None, kind: str) -> list[str]:
     """How the time-series errors treat periods without rows (core.model.covariance: lags are
     distances in time, a missing period counts as a zero score)."""
@@ -249,7 +260,7 @@ def _blocks(run: _Run, make: Callable[[Model, Any], Any]) -> list[Any]:
 SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"terms"}), lambda r: {"terms": _terms(r.design, r.fit.coef, r.model.cov, r.model.df, r.model_spec)}),
     (frozenset({"fit", "retransform"}), _fit_section),
-    (frozenset({"diagnostics"}), lambda r: {"diagnostics": None if r.ppml else diagnostics(r.design, r.fit)}),
+    (frozenset({"diagnostics"}), lambda r: {"diagnostics": _diagnostics(r)}),
     (frozenset({"residuals"}), lambda r: {"residuals": None if r.ppml else residual_sample(r.design, r.fit)}),
     (frozenset({"distributions"}), lambda r: {"distributions": variable_distributions(r.data, r.spec)}),
     (

@@ -25,6 +25,8 @@ import core
 from core.errors import DataError, FormwiseError, SpecError
 from core.inference import diagnostics as checks
 from core.model import design as design_module
+from core.output.tables import diagnostics_table, to_csv
+from core.output.text import check_sentences
 from tests.test_hostile_inputs import hang_guard
 
 # Fuzzing runs for a bounded number of inputs; FORMWISE_FUZZ_SCALE=20 runs twenty times as many.
@@ -250,6 +252,19 @@ def test_the_white_budget_is_a_module_constant(monkeypatch: pytest.MonkeyPatch) 
 def test_hundreds_of_levels_end_within_the_hang_guard(n: int, levels: int) -> None:
     result = _analyze(_levels(n, levels), _spec(regressors=CATEGORY))
     assert result["diagnostics"]["white"]["form"] == "fitted"
+
+
+def test_the_fitted_value_form_is_named_in_the_warning_the_sentence_and_the_table() -> None:
+    result = core.analyze(_levels(2_000, 125), _spec(regressors=CATEGORY), parts={"fit", "terms", "diagnostics"})
+    white = result["diagnostics"]["white"]
+    assert white["form"] == "fitted" and white["note"] in result["warnings"]
+    assert "auxiliary columns" in white["note"]
+    sentences = [s for _, s in check_sentences(result["diagnostics"])]
+    assert any("fitted values or their squares (White, on fitted values" in s for s in sentences), sentences
+    assert not any("their squares or products" in s for s in sentences)
+    table = diagnostics_table(result)
+    assert any(row[0].startswith("White on fitted values") for row in table.rows)
+    assert white["note"] in table.footer and white["note"] in to_csv(table)
 
 
 def test_a_design_over_the_memory_budget_is_refused_naming_the_column(monkeypatch: pytest.MonkeyPatch) -> None:

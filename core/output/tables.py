@@ -66,12 +66,17 @@ def diagnostics_table(result: dict[str, Any]) -> Table:
         "jarque_bera": "Jarque-Bera, normal residuals",
         "reset": "RESET, missing curvature (fitted^2, fitted^3)",
     }
+    white = checks.get("white") or {}
+    notes = []
+    if white.get("form") == "fitted":
+        names["white"] = "White on fitted values and their squares, spread vs fitted values"
+        notes = [white["note"]] if white.get("note") else []
     rows: list[list[Cell]] = [
         [label, sig(checks[key]["statistic"], 4), p_value(checks[key]["p_value"])]
         for key, label in names.items()
         if key in checks
     ]
-    return Table("Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, model_footer(result))
+    return Table("Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, notes + model_footer(result))
 
 
 def comparison_table(results: dict[str, dict[str, Any]]) -> Table:

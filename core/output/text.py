@@ -196,14 +196,17 @@ def check_sentences(diagnostics: dict[str, Any], covariance: str = "HC1") -> lis
         )
     white = diagnostics.get("white") or {}
     p = white.get("p_value")
+    # Over its size budget the White test runs on the fitted values and their squares
+    # (core.inference.diagnostics.white): the sentence names what was tested.
+    against, name = (
+        ("the fitted values or their squares", "White, on fitted values")
+        if white.get("form") == "fitted"
+        else ("the regressors, their squares or products", "White")
+    )
     if p is not None and p < ALPHA:
-        out.append(
-            (True, f"The spread of residuals changes with the regressors, their squares or products (White: {p_text(p)}).")
-        )
+        out.append((True, f"The spread of residuals changes with {against} ({name}: {p_text(p)})."))
     elif p is not None:
-        out.append(
-            (False, f"No sign that the spread changes with the regressors, their squares or products (White: {p_text(p)}).")
-        )
+        out.append((False, f"No sign that the spread changes with {against} ({name}: {p_text(p)})."))
     jb = diagnostics.get("jarque_bera") or {}
     p = jb.get("p_value")
     shape = ""
