@@ -76,7 +76,9 @@ def diagnostics_table(result: dict[str, Any]) -> Table:
         for key, label in names.items()
         if key in checks
     ]
-    return Table("Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, notes + model_footer(result))
+    return Table(
+        "Residual checks", ["Check", "Statistic", "p-value"], rows, {"Statistic", "p-value"}, notes + model_footer(result)
+    )
 
 
 def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
