@@ -26,7 +26,7 @@ from core.errors import DataError, FormwiseError, SpecError
 from core.inference import diagnostics as checks
 from core.model import design as design_module
 from core.output.tables import diagnostics_table, to_csv
-from core.output.text import check_sentences
+from core.output.text import check_sentences, check_verdicts
 from tests.test_hostile_inputs import hang_guard
 
 # Fuzzing runs for a bounded number of inputs; FORMWISE_FUZZ_SCALE=20 runs twenty times as many.
@@ -265,6 +265,17 @@ def test_the_fitted_value_form_is_named_in_the_warning_the_sentence_and_the_tabl
     table = diagnostics_table(result)
     assert any(row[0].startswith("White on fitted values") for row in table.rows)
     assert white["note"] in table.footer and white["note"] in to_csv(table)
+
+
+def test_the_checks_view_says_why_the_white_test_took_its_fitted_value_form() -> None:
+    result = core.analyze(_levels(2_000, 125), _spec(regressors=CATEGORY), parts={"fit", "terms", "diagnostics"})
+    spread = next(v for v in check_verdicts(result["diagnostics"]) if v["check"] == "spread")
+    assert result["diagnostics"]["white"]["note"] in spread["sentences"]
+    # k = 126 design columns (intercept, x, 124 dummies): 126·127/2 = 8,001 auxiliary columns.
+    assert "8,001 auxiliary columns" in " ".join(spread["sentences"])
+    full = core.analyze(_table(), _spec(regressors=CATEGORY), parts={"fit", "terms", "diagnostics"})
+    spread = next(v for v in check_verdicts(full["diagnostics"]) if v["check"] == "spread")
+    assert not any("auxiliary columns" in s for s in spread["sentences"])
 
 
 def test_a_design_over_the_memory_budget_is_refused_naming_the_column(monkeypatch: pytest.MonkeyPatch) -> None:

@@ -238,6 +238,13 @@ def check_sentences(diagnostics: dict[str, Any], covariance: str = "HC1") -> lis
     return out
 
 
+def _white_form_words(diagnostics: dict[str, Any]) -> list[str]:
+    """Why the White test took its form on the fitted values and their squares, when it did
+    (core.inference.diagnostics.white: over its size budget)."""
+    white = diagnostics.get("white") or {}
+    return [white["note"]] if white.get("form") == "fitted" and white.get("note") else []
+
+
 def _spread_words(residuals: dict[str, Any] | None) -> list[str]:
     bands = (residuals or {}).get("spread_bands") or []
     widths = [b["q75"] - b["q25"] for b in bands]
@@ -293,7 +300,12 @@ def check_verdicts(
     spread_tests = {k: diagnostics[k] for k in ("breusch_pagan", "white") if diagnostics.get(k)}
     jb, reset = diagnostics.get("jarque_bera") or {}, diagnostics.get("reset") or {}
     checks = [
-        ("spread", "Is the spread even?", check_sentences(spread_tests, covariance), _spread_words(residuals)),
+        (
+            "spread",
+            "Is the spread even?",
+            check_sentences(spread_tests, covariance),
+            _white_form_words(spread_tests) + _spread_words(residuals),
+        ),
         ("shape", "Are the residuals shaped like a bell?", check_sentences({"jarque_bera": jb}), _tail_words(residuals)),
         ("curve", "Is a curve missing?", check_sentences({"reset": reset}), _curve_words(residuals)),
     ]
