@@ -17,7 +17,7 @@ from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import lookup, menu_codes, menu_word
 from core.output.numbers import compact
 
-GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference"]
+GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference", "unit"]
 
 
 ROLES = ["outcome", "regressor", "not used"]
@@ -75,12 +75,12 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
     rows = []
     for name in first + [c for c in names if c not in first]:
         series = frame[name]
-        row = {"column": name, "about": describe_column(series), "role": "not used", "change": "", "reference": ""}
+        row = {"column": name, "about": describe_column(series), "role": "not used", "change": "", "reference": "", "unit": ""}
         advice = entries.get(name) or {}
         if advice.get("kind") in LOCKED_KINDS:
             row["about"] = f"{LOCKED_KINDS[advice['kind']]} · {row['about']}"
         if name == outcome.get("column"):
-            row.update(role="outcome", transform=outcome.get("transform", "level"))
+            row.update(role="outcome", transform=outcome.get("transform", "level"), unit=_text(outcome.get("unit")))
         elif name in by_column:
             entry = by_column[name]
             row.update(
@@ -88,6 +88,7 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
                 transform=entry.get("transform", "level"),
                 change=_text(entry.get("change")),
                 reference=_text(entry.get("reference")),
+                unit=_text(entry.get("unit")),
             )
         elif advice.get("suggested_transform") in menu_codes("regressor"):
             row["transform"] = advice["suggested_transform"]
@@ -182,10 +183,15 @@ def grid_to_spec(
                 )
         elif change:
             entry["change"] = change
+        if _text(row.get("unit")):
+            entry["unit"] = _text(row.get("unit"))
         regressors.append(entry)
     used = {r["column"] for r in regressors}
+    outcome_entry = {"column": _text(outcome["column"]), "transform": outcome_transform}
+    if _text(outcome.get("unit")):
+        outcome_entry["unit"] = _text(outcome.get("unit"))
     spec: dict[str, Any] = {
-        "outcome": {"column": _text(outcome["column"]), "transform": outcome_transform},
+        "outcome": outcome_entry,
         "regressors": regressors,
         "estimator": estimator,
         "covariance": covariance,

@@ -217,6 +217,12 @@ def variables_grid() -> pd.DataFrame:
             "reference": st.column_config.TextColumn(
                 "Reference level", width=120, help="For categories: the level the others are compared with."
             ),
+            "unit": st.column_config.TextColumn(
+                "Unit",
+                width=105,
+                help="What one unit of the column is, as it reads after 'one more': square foot, year, $ per week. "
+                "Readings, axes and tables name it.",
+            ),
         },
     )
     resolved = resolve_outcome(grid, ss[keys.PREVIOUS_GRID])

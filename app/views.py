@@ -28,6 +28,7 @@ from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
+from core.output.readings import spec_units
 from core.output.text import (
     curve_sentence,
     factor_words,
@@ -191,6 +192,7 @@ def approximation_view(ctx: Context) -> None:
         regressor_label=variable_label(pick, ctx.transforms.get(pick)),
         outcome_label=variable_label(outcome["column"], outcome["transform"], "outcome"),
         outcome_column=outcome["column"],
+        units=spec_units(ctx.spec),
     )
     chart(figure, key="gap_chart")
     st.markdown(plain(charts.curve_summary(curve, tolerance)))
@@ -245,6 +247,7 @@ def curves_view(ctx: Context) -> None:
         overlay=overlay,
         overlay_label=overlay_label,
         ppml=ctx.ppml,
+        units=spec_units(ctx.spec),
     )
     chart(figure, key="curve_chart")
     st.markdown(plain(curve_sentence(curve, ctx.outcome, show_naive)))

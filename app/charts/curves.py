@@ -119,14 +119,18 @@ def curve_figure(
     overlay: dict[str, Any] | None = None,
     overlay_label: str | None = None,
     ppml: bool = False,
+    units: dict[str, str] | None = None,
 ) -> go.Figure:
     """The predicted outcome on its original scale across one regressor's range (others at the
     reference point): the CI band, the smearing and the naive retransform, a light sample of the
     data, the stretches beyond the observed data shaded, and optionally the smearing curve of
     another transform of the same regressor."""
+    units = units or {}
+    y_title = f"{html(outcome_column)} ({html(units.get(outcome_column, 'original units'))})"
+    x_title = f"{html(curve['column'])} ({html(units.get(curve['column'], 'as recorded'))})"
     regressor_label, outcome_column, outcome_label = html(regressor_label), html(outcome_column), html(outcome_label)
     if curve["kind"] == "levels":
-        return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml)
+        return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml, y_title)
     column = html(curve["column"])
     x = floats(curve["x"])
     smear, naive = floats(curve["smearing"]), floats(curve["naive"])
@@ -177,8 +181,8 @@ def curve_figure(
         fig,
         title=f"Predicted {outcome_column} as {column} varies",
         subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
-        x_title=f"{column} (as recorded)",
-        y_title=f"{outcome_column} (original units)",
+        x_title=x_title,
+        y_title=y_title,
         height=660,
     )
     fig.update_layout(
@@ -222,6 +226,7 @@ def _levels_figure(
     points: dict[str, Any] | None,
     show_naive: bool,
     ppml: bool,
+    y_title: str,
 ) -> go.Figure:
     """Categories and 0/1 variables: one point per level with its 95 % interval as error bars,
     the data as a light jittered strip behind."""
@@ -275,7 +280,7 @@ def _levels_figure(
         title=f"Predicted {outcome_column} by {column}",
         subtitle=f"{_model_words(outcome_label, ppml)} on {regressor_label} and other regressors, these held at their reference values",
         x_title=column,
-        y_title=f"{outcome_column} (original units)",
+        y_title=y_title,
         height=640,
     )
     fig.update_layout(

@@ -212,6 +212,7 @@ def gap_figure(
     regressor_label: str,
     outcome_label: str,
     outcome_column: str,
+    units: dict[str, str] | None = None,
 ) -> go.Figure:
     """Approximate and exact effect across change sizes, the gap shaded between them, the
     user's change marked, and shaded bands where the approximation misses by more than the
@@ -223,8 +224,10 @@ def gap_figure(
     percent_change = curve["kind"] == "percent"
     percent_effect = curve["units"] == "percent"
     chosen = float(curve["chosen"])
-    x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} (in its own units)"
-    y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} (in its own units)"
+    units = units or {}
+    x_unit, y_unit = html(units.get(curve["column"], "in its own units")), html(units.get(outcome_column, "in its own units"))
+    x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} ({x_unit})"
+    y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} ({y_unit})"
     x_hover = "%{x:.3g} %" if percent_change else "%{x:.4g}"
     y_hover = "%{y:.3g} %" if percent_effect else "%{y:.4g}"
 

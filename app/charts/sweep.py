@@ -23,6 +23,32 @@ def _whiskers(models: list[dict[str, Any]], pct: list[Any]) -> dict[str, Any]:
     return {"type": "data", "symmetric": False, "array": high, "arrayminus": low, "color": SKY, "thickness": 1.5, "width": 0}
 
 
+def _strip(fig: go.Figure, models: list[dict[str, Any]], varying: list[str]) -> None:
+    """Beneath the effects: one row per variable, a square per model in the colour of its form."""
+    seen: set[str] = set()
+    for code, colour in FORM_COLOURS.items():
+        xs, ys = [], []
+        for i, m in enumerate(models):
+            for column in varying:
+                if m["transforms"][column] == code:
+                    xs.append(i + 1)
+                    ys.append(column)
+        if xs:
+            fig.add_trace(
+                go.Scatter(
+                    x=xs,
+                    y=ys,
+                    mode="markers",
+                    marker={"color": colour, "size": 8, "symbol": "square"},
+                    name=code,
+                    showlegend=code not in seen,
+                ),
+                row=2,
+                col=1,
+            )
+            seen.add(code)
+
+
 def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[str]) -> go.Figure:
     models = sorted(sweep["models"], key=lambda m: (m["percent"] is None, m["percent"] or 0.0))
     rank = {id(m): i + 1 for i, m in enumerate(sweep["models"])}  # 1 = best by AIC
@@ -66,28 +92,7 @@ def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[s
                 row=1,
                 col=1,
             )
-    seen: set[str] = set()
-    for code, colour in FORM_COLOURS.items():
-        xs, ys = [], []
-        for i, m in enumerate(models):
-            for column in varying:
-                if m["transforms"][column] == code:
-                    xs.append(i + 1)
-                    ys.append(column)
-        if xs:
-            fig.add_trace(
-                go.Scatter(
-                    x=xs,
-                    y=ys,
-                    mode="markers",
-                    marker={"color": colour, "size": 8, "symbol": "square"},
-                    name=code,
-                    showlegend=code not in seen,
-                ),
-                row=2,
-                col=1,
-            )
-            seen.add(code)
+    _strip(fig, models, varying)
     fig.update_yaxes(nticks=5, row=1, col=1)
     names = list(reversed(varying))
     fig.update_yaxes(

@@ -34,8 +34,9 @@ TOP_KEYS = {
     "bootstrap",
     "sweep",  # validated by core.inference.sweep (docs/contract.md §2.13)
 }
-OUTCOME_KEYS = {"column", "transform"}
-REGRESSOR_KEYS = {"column", "transform", "change", "reference"}
+OUTCOME_KEYS = {"column", "transform", "unit"}
+REGRESSOR_KEYS = {"column", "transform", "change", "reference", "unit"}
+UNIT_MAX_CHARS = 40
 ESTIMATORS = ("ols", "ppml")
 SCENARIO_KEYS = {"name", "changes"}
 BOOTSTRAP_KEYS = {"draws", "seed", "cluster"}
@@ -120,6 +121,7 @@ class ModelSpec:
     lags: int | None = None
     scenarios: tuple[Scenario, ...] = ()
     bootstrap: Bootstrap | None = None
+    units: dict[str, str] = field(default_factory=dict)  # column -> its unit, as the user named it
 
     @property
     def columns(self) -> list[str]:
@@ -375,7 +377,36 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         lags=lags,
         scenarios=_parse_scenarios(spec, regressors),
         bootstrap=_parse_bootstrap(spec, data, estimator),
+        units=_parse_units(spec, outcome_column),
     )
+
+
+def parse_unit(value: object, where: str) -> str | None:
+    """A column's unit as the user names it ('square foot', '$ per week'): short plain text;
+    blank is no unit."""
+    if value is None:
+        return None
+    if not isinstance(value, str):
+        raise SpecError(f"{where}.unit: must be text such as 'square foot' or '$ per week'.")
+    text = " ".join(value.split())
+    if len(text) > UNIT_MAX_CHARS:
+        raise SpecError(f"{where}.unit: '{text[:20]}…' is longer than {UNIT_MAX_CHARS} characters; name the unit in a few words.")
+    if any(not ch.isprintable() for ch in text):
+        raise SpecError(f"{where}.unit: holds a control character; use plain text such as 'square foot'.")
+    return text or None
+
+
+def _parse_units(spec: dict, outcome_column: str) -> dict[str, str]:
+    entries = [("spec.outcome", outcome_column, spec["outcome"])]
+    entries += [
+        (f"spec.regressors[{i}]", e.get("column"), e) for i, e in enumerate(spec.get("regressors") or []) if isinstance(e, dict)
+    ]
+    units = {}
+    for where, column, entry in entries:
+        unit = parse_unit(entry.get("unit"), where)
+        if unit:
+            units[str(column)] = unit
+    return units
 
 
 def _parse_weights(spec: dict, data: pd.DataFrame, regressors: list[RegressorSpec]) -> str | None:

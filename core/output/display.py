@@ -15,6 +15,7 @@ import pandas as pd
 
 from core.model.transforms import variable_label
 from core.output.numbers import DASH, MINUS, NBSP, interval, p_value, sig
+from core.output.readings import spec_units
 
 EXTRAPOLATED = "⚠ beyond the observed data"
 
@@ -64,8 +65,10 @@ def coefficient_table(result: dict[str, Any], spec: dict[str, Any] | None = None
     return pd.DataFrame(rows, columns=["Term", "Estimate", "Std. error", "95 % interval", "p-value", "What it means"])
 
 
-def units_words(units: str, outcome: str) -> str:
-    return f"% change in {outcome}" if units == "percent" else f"change in {outcome} (its own units)"
+def units_words(units: str, outcome: str, unit: str | None = None) -> str:
+    if units == "percent":
+        return f"% change in {outcome}"
+    return f"change in {outcome} ({unit or 'its own units'})"
 
 
 def _value_text(value: Any) -> str:
@@ -74,12 +77,15 @@ def _value_text(value: Any) -> str:
     return str(value)
 
 
-def change_text(effect: dict[str, Any]) -> str:
-    """'+10%: 4.559 → 5.014' for numeric changes, 'Coast → Inland' for moves between values."""
+def change_text(effect: dict[str, Any], unit: str | None = None) -> str:
+    """'+10%: 4.559 → 5.014' for numeric changes ('+1 year: 5.2 → 6.2' with a unit),
+    'Coast → Inland' for moves between values."""
     change = str(effect["change"])
     start, end = effect.get("from"), effect.get("to")
     if "->" in change:
         return change.replace("->", " → ")
+    if unit and not change.endswith("%"):
+        change = f"{change}{NBSP}{unit}"
     if isinstance(start, (int, float)) and isinstance(end, (int, float)):
         return f"{change}: {_value_text(float(start))}{NBSP}→{NBSP}{_value_text(float(end))}"
     return change
@@ -102,6 +108,7 @@ EFFECT_COLUMNS = [
 def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) -> pd.DataFrame:
     outcome = result["outcome"]["column"]
     transforms = {r["column"]: r.get("transform", "level") for r in (spec or {}).get("regressors", [])}
+    units = spec_units(spec)
     rows = []
     for effect in result.get("effects") or []:
         percent = effect["units"] == "percent"
@@ -122,14 +129,14 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
         rows.append(
             {
                 "Variable": variable_label(column, transforms.get(column)),
-                "Change": change_text(effect),
+                "Change": change_text(effect, units.get(column)),
                 "First-order approximation": show(effect.get("approximate")),
                 "Exact": show(effect.get("exact")),
                 "95 % interval (exact)": interval(effect.get("ci_low"), effect.get("ci_high"), digits, suffix),
                 "Gap (approx. − exact)": show(effect.get("gap"), suffix=f"{NBSP}%{NBSP}pts" if percent else ""),
                 "Small-sample adjusted": show(effect.get("adjusted")),
                 "Average over rows": show(effect.get("average")),
-                "Measured as": units_words(effect["units"], outcome),
+                "Measured as": units_words(effect["units"], outcome, units.get(outcome)),
                 "Note": note,
             }
         )

@@ -348,7 +348,9 @@ def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: boo
     return f"Effect as {what}{model}, other regressors held at their reference values"
 
 
-def gap_figure(curve: dict[str, Any], outcome_column: str, outcome_label: str, size: str = "full") -> Figure:
+def gap_figure(
+    curve: dict[str, Any], outcome_column: str, outcome_label: str, size: str = "full", units: dict[str, str] | None = None
+) -> Figure:
     """Exact and first-order effect across change sizes, the gap between them shaded and the
     chosen change marked, in the words of the app's gap chart."""
     with drawing_style():
@@ -395,8 +397,10 @@ def gap_figure(curve: dict[str, Any], outcome_column: str, outcome_label: str, s
             handles,
             labels,
         )
-        x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} (in its own units)"
-        y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} (in its own units)"
+        units = units or {}
+        x_unit, y_unit = units.get(column, "in its own units"), units.get(outcome_column, "in its own units")
+        x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} ({x_unit})"
+        y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} ({y_unit})"
         _fit_axes(
             canvas,
             ax,
@@ -423,6 +427,7 @@ def curve_figure(
     regressor_label: str,
     ppml: bool = False,
     size: str = "full",
+    units: dict[str, str] | None = None,
 ) -> Figure:
     """The expected outcome on its original scale across one regressor (others at the reference
     point): the smearing curve with its 95 % band, the naive back-transform dashed where it
@@ -450,7 +455,11 @@ def curve_figure(
             handles, labels, x_axis = _continuous(ax, curve, smear, naive, low, high, show_naive, main)
             title = f"Predicted {outcome_column} as {column} varies"
         top = _header(canvas, title, subtitle, handles, labels)
-        _fit_axes(canvas, ax, (MARGIN, MARGIN, canvas.width - MARGIN, top), x_axis, Axis(f"{outcome_column} (original units)"))
+        units = units or {}
+        if curve["kind"] != "levels" and column in units:
+            x_axis = Axis(f"{column} ({units[column]})", x_axis.suffix, x_axis.names)
+        y_title = f"{outcome_column} ({units.get(outcome_column, 'original units')})"
+        _fit_axes(canvas, ax, (MARGIN, MARGIN, canvas.width - MARGIN, top), x_axis, Axis(y_title))
     return canvas.fig
 
 

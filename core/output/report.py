@@ -23,6 +23,7 @@ from core.analysis import analyze
 from core.model.transforms import parse_transform
 from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
+from core.output.readings import spec_units
 from core.output.sweep_figure import sweep_figure
 from core.output.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, from_frame
 from core.output.text import small_sample
@@ -102,14 +103,16 @@ def report_figures(result: dict[str, Any], spec: dict[str, Any], size: str = "fu
         r["column"]: parse_transform(r.get("transform", "level"), "regressor", r["column"]).label(r["column"])
         for r in spec.get("regressors", [])
     }
+    units = spec_units(spec)
     out = [
-        (f"gap{i}", figures.gap_figure(c, y, y_label, size=size), GAP_CAPTION) for i, c in enumerate(result.get("gap_curves", []))
+        (f"gap{i}", figures.gap_figure(c, y, y_label, size=size, units=units), GAP_CAPTION)
+        for i, c in enumerate(result.get("gap_curves", []))
     ]
     ppml = result.get("estimator") == "ppml"
     for i, curve in enumerate(result.get("curves", [])):
         label = labels.get(curve["column"], curve["column"])
         caption = LEVELS_CAPTION if curve["kind"] == "levels" else CURVE_CAPTION
-        out.append((f"curve{i}", figures.curve_figure(curve, y, y_label, label, ppml=ppml, size=size), caption))
+        out.append((f"curve{i}", figures.curve_figure(curve, y, y_label, label, ppml=ppml, size=size, units=units), caption))
     if result.get("boxcox"):
         out.append(("boxcox", figures.boxcox_figure(result["boxcox"], y, size=size), boxcox_caption(result["boxcox"])))
     if result.get("sweep"):
