@@ -308,6 +308,7 @@ def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:
                     model_spec.outcome_column,
                     blocks.get(term.column) if term.column else None,
                 ),
+                    model_spec.units,
             }
         )
     return out
