@@ -219,7 +219,8 @@ def _scenarios_section(run: _Run) -> dict[str, Any]:
 
 def _predictions_section(run: _Run) -> dict[str, Any]:
     points = run.model_spec.predict
-    predictions = predict(run.model, points, 0.0 if run.ppml else run.fit.sigma) if points else []
+    sigma = 0.0 if run.ppml else run.fit.sigma
+    predictions = predict(run.model, points, sigma, warnings=run.warnings) if points else []
     _wait_for_bootstrap(run, predictions, prediction_target)
     return {"predictions": predictions}
 

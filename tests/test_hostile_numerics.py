@@ -115,6 +115,27 @@ def test_a_category_value_in_predict_names_its_level_by_value() -> None:
     assert [p["values"]["cat"] for p in result["predictions"]] == ["2", "3"]
 
 
+@pytest.mark.parametrize("outcome", ["log", "sqrt", "ihs", "boxcox:0.5"])
+def test_a_prediction_that_overflows_on_the_original_scale_is_null_with_a_warning(outcome: str) -> None:
+    # x = 1e200 puts the index near 0.3·1e200: exp, sinh and squares of it overflow double precision.
+    result = _analyze(_table(), _spec(outcome, predict=[{"x": 5.0}, {"x": 1e200}]))
+    fine, huge = result["predictions"]
+    assert fine["smearing"] is not None and fine["smearing"] > 0
+    assert huge["smearing"] is None and huge["naive"] is None
+    found = [w for w in result["warnings"] if w.startswith("prediction 2 (x = 1e+200)")]
+    assert len(found) == 1 and "too large for floating-point numbers" in found[0]
+    assert not any(w.startswith("prediction 1 ") for w in result["warnings"])
+
+
+def test_a_scenario_that_overflows_on_the_original_scale_is_null_with_a_warning() -> None:
+    spec = _spec("log", scenarios=[{"name": "huge", "changes": {"x": "+1e5"}}, {"name": "small", "changes": {"x": "+1"}}])
+    result = _analyze(_table(), spec)
+    huge, small = result["scenarios"]
+    assert huge["after"] is None and huge["exact"] is None and small["exact"] is not None
+    assert any(w.startswith("scenario 'huge': some of its numbers cannot be computed") for w in result["warnings"])
+    assert not any(w.startswith("scenario 'small'") and "cannot be computed" in w for w in result["warnings"])
+
+
 def test_the_callers_spec_is_not_changed() -> None:
     spec = _spec(at={"x": 5}, predict=[{"x": 6}])
     before = json.dumps(spec)

@@ -286,8 +286,39 @@ def _levels_named(design: Any, given: dict[str, Any]) -> dict[str, Any]:
     return out
 
 
-def predict(model: Model, points: list[dict[str, Any]], sigma: float, confidence: float = 0.95) -> list[dict[str, Any]]:
-    """Outcome on the original scale for user-given regressor values (others at the reference)."""
+# The values of a prediction (docs/contract.md §3.11) in words, for the warning when some of
+# them cannot be computed.
+PREDICTION_VALUES = {
+    "index": "the index",
+    "naive": "the predicted outcome",
+    "normal": "the predicted outcome",
+    "smearing": "the predicted outcome",
+    "mean_ci_low": "its intervals",
+    "mean_ci_high": "its intervals",
+    "interval_low": "its intervals",
+    "interval_high": "its intervals",
+}
+
+
+def prediction_warning(number: int, given: dict[str, Any], entry: dict[str, Any]) -> str | None:
+    """The warning for a prediction some of whose values overflow (or are undefined) on the
+    original scale: they become null in the result (docs/contract.md §1), and this says why."""
+    empty = [PREDICTION_VALUES[k] for k in PREDICTION_VALUES if entry.get(k) is not None and not math.isfinite(entry[k])]
+    if not empty:
+        return None
+    at = ", ".join(f"{c} = {v:.6g}" if isinstance(v, float) else f"{c} = {v}" for c, v in given.items())
+    return (
+        f"prediction {number} ({at}): {' and '.join(dict.fromkeys(empty))} cannot be computed: on the original scale "
+        "they are too large for floating-point numbers or outside what the outcome's transform maps back to, so they are "
+        "shown empty. Check the values given for this prediction."
+    )
+
+
+def predict(
+    model: Model, points: list[dict[str, Any]], sigma: float, confidence: float = 0.95, warnings: list[str] | None = None
+) -> list[dict[str, Any]]:
+    """Outcome on the original scale for user-given regressor values (others at the reference);
+    a value that overflows is left for null and warned about in ``warnings``."""
     design = model.design
     t = float(stats.t.ppf(0.5 + confidence / 2, model.df))
     out = []
@@ -321,4 +352,7 @@ def predict(model: Model, points: list[dict[str, Any]], sigma: float, confidence
                 "outside_observed_range": outside,
             }
         )
+        problem = prediction_warning(len(out), given, out[-1])
+        if problem and warnings is not None:
+            warnings.append(problem)
     return out

@@ -16,6 +16,7 @@ transformed; exp(η)·mean(exp ê) for a log outcome, Duan 1983).
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -105,15 +106,21 @@ def one_scenario(model: Model, scenario: Scenario, warnings: list[str]) -> dict[
         warnings.append(
             f"scenario '{scenario.name}' reaches outside the observed range of a variable it changes; it is an extrapolation."
         )
-    return entry | {
+    numbers = {
         "exact": exact,
         "ci_low": float(min(low, high)),
         "ci_high": float(max(low, high)),
         "sum_of_approximate": float(np.sum(singles)),
         "before": float(levels[0]),
         "after": float(levels[1]),
-        "extrapolated": extrapolated,
     }
+    if not all(math.isfinite(v) for v in numbers.values()):
+        warnings.append(
+            f"scenario '{scenario.name}': some of its numbers cannot be computed: on the original scale they are too "
+            "large for floating-point numbers or outside what the outcome's transform maps back to, so they are shown "
+            "empty. Check the sizes of its changes."
+        )
+    return entry | numbers | {"extrapolated": extrapolated}
 
 
 def compute_scenarios(model: Model, scenarios: tuple[Scenario, ...]) -> tuple[list[dict[str, Any]], list[str]]:
