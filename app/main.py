@@ -209,17 +209,17 @@ def variables_grid() -> pd.DataFrame:
                 "Transform",
                 options=options,
                 required=True,
-                width=150,
+                width=140,
                 format_func=lambda t: menu_word(t),
                 help="The outcome takes level, log, IHS, log(x + 1) or square root.",
             ),
             "change": st.column_config.TextColumn("Change", width=95, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
             "reference": st.column_config.TextColumn(
-                "Reference level", width=120, help="For categories: the level the others are compared with."
+                "Reference", width=95, help="For categories: the reference level, the one the others are compared with."
             ),
             "unit": st.column_config.TextColumn(
                 "Unit",
-                width=105,
+                width=95,
                 help="What one unit of the column is, as it reads after 'one more': square foot, year, $ per week. "
                 "Readings, axes and tables name it.",
             ),

@@ -52,7 +52,7 @@ VIEWS = [
 # Shorter words on the selector, so it stays on one line at 1280 px.
 SHORT = {
     "Effects of changes": "Effects",
-    "Approximation check": "Approximation",
+    "Approximation check": "Approx.",
     "Effect curves": "Curves",
     "Residual checks": "Checks",
     "Compare models": "Compare",

@@ -72,7 +72,7 @@ def test_opens_on_the_demo_with_coefficients_effects_and_chart() -> None:
     assert set(effects["Measured as"]) == {"% change in weekly_revenue"}
     show(at, "Approximation check")
     assert at.get("plotly_chart"), "the approximation check chart is missing"
-    assert at.segmented_control(key="view").options[:3] == ["Coefficients", "Effects", "Approximation"]  # as shown
+    assert at.segmented_control(key="view").options[:3] == ["Coefficients", "Effects", "Approx."]  # as shown
 
 
 def test_changing_a_transform_in_the_grid_refits() -> None:

@@ -167,7 +167,7 @@ def test_the_first_screen_at_1280_by_800_shows_results(browser, server) -> None:
     first_row = page.get_by_text("Intercept").first.bounding_box()
     assert first_row is not None and first_row["y"] < 800, first_row
     first = page.get_by_role("radio", name="Coefficients", exact=True).first.bounding_box()
-    last = page.get_by_role("radio", name="Columns", exact=True).first.bounding_box()
+    last = page.get_by_role("radio", name="Forms", exact=True).first.bounding_box()
     assert abs(first["y"] - last["y"]) < 2, (first, last)  # the view names on one line
     # The grid's six columns fit its width: no horizontal scroll bar.
     overflow = page.evaluate(
@@ -316,7 +316,7 @@ def test_real_downloads_table_spec_and_chart(page, tmp_path: Path) -> None:
     assert {t["name"]: t["estimate"] for t in cli_analyze(demo, spec_path)["terms"]} == estimates
 
     # The chart toolbar's camera: a full-slide PNG at twice the pixels.
-    page.get_by_role("radio", name="Approximation", exact=True).click()
+    page.get_by_role("radio", name="Approx.", exact=True).click()
     chart = page.locator('[data-testid="stPlotlyChart"]').first
     chart.wait_for(timeout=60_000)
     chart.hover()
