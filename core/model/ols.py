@@ -130,7 +130,7 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
     shift = engine.shift_for(X, y, weights)
     gram = engine.gram_pass(shift)
     if not np.all(np.isfinite(gram)):
-        raise DataError(_OVERFLOW)
+        raise _overflow_error(shift, names)
 
     R, q, rho, kappa = _normal_equations_factor(gram, k)
     solver = "normal equations"
@@ -139,12 +139,12 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
         full = engine.tsqr_pass(shift)
         R, q, rho = full[:k, :k], full[:k, k], float(abs(full[k, k]))
         singular, right = _singular(R, k)
-        kappa = _screen(singular, right, names)
+        kappa = _screen(singular, right, names, shift)
 
     gamma = sla.solve_triangular(R, q, check_finite=False)
     beta = _original(gamma, shift)
     if not np.all(np.isfinite(beta)):
-        raise DataError(_OVERFLOW)
+        raise _overflow_error(shift, names)
 
     # Sizes for the refinement test, in units of each column's length (‖Dγ‖). Forming a
     # residual rounds at the size of y (y - c_y - Zγ in working precision), so steps below a few
@@ -180,6 +180,7 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
     t_inv_t[1:, 0] = -shift.c[1:]
     m = sla.solve_triangular(R, t_inv_t, trans="T", check_finite=False)
     xtx_inv = m.T @ m
+    _check_range(gram, xtx_inv, shift, names)
 
     fitted = y - resid
     sst = float(q[1:] @ q[1:]) + rho * rho
@@ -249,8 +250,10 @@ def _singular(R: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     return singular, right
 
 
-def _screen(singular: np.ndarray, right: np.ndarray, names: list[str] | None) -> float:
-    """The condition number, or a DataError naming the columns when the rank is below k."""
+def _screen(singular: np.ndarray, right: np.ndarray, names: list[str] | None, shift: engine.Shift | None = None) -> float:
+    """The condition number, or a DataError naming the columns when the rank is below k (or,
+    when a column only looks constant because its values are below double precision's range,
+    naming that column)."""
     top = float(singular[0])
     null = singular <= RANK_TOLERANCE * top
     if not null.any():
@@ -259,11 +262,91 @@ def _screen(singular: np.ndarray, right: np.ndarray, names: list[str] | None) ->
     for vector in right[null]:
         involved.update(int(j) + 1 for j in np.flatnonzero(np.abs(vector) > 0.1))
     labels = [names[i] if names else f"column {i}" for i in sorted(involved)]
+    tiny = _tiny_columns(shift, sorted(involved)) if shift is not None else {}
+    if tiny:
+        raise DataError(_tiny_message([names[i] if names else f"column {i}" for i in tiny], max(tiny.values())))
     rank = len(singular) - int(null.sum()) + 1
     raise DataError(
         f"these regressors are collinear: {', '.join(labels)}. One of them is a combination of the others "
         f"(with the intercept) up to rounding error, so the model's {len(singular) + 1} coefficients cannot all "
         f"be estimated (the design has rank {rank}). Remove one of them, or for categories pick a different set of levels."
+    )
+
+
+# Double precision's range for a column's sum of squares (Gram matrix entries): a column whose
+# deviations have a length below SMALLEST_LENGTH squares to below 1e-300, among the subnormal
+# numbers near the smallest normal double (2.2e-308) where digits run out and lengths round to
+# zero, so it looks constant; one past LARGEST_LENGTH squares past the largest double
+# (1.8e308). Both are refused naming the column, with a rescaling to try.
+SMALLEST_LENGTH = 1e-150
+LARGEST_LENGTH = 1e154
+
+
+def _length(z: np.ndarray) -> tuple[float, float]:
+    """The Euclidean length of z and its largest absolute value, without squaring z itself."""
+    z = z[np.isfinite(z)]
+    largest = float(np.max(np.abs(z))) if len(z) else 0.0
+    if not 0 < largest < np.inf:
+        return largest, largest
+    return largest * float(np.linalg.norm(z / largest)), largest
+
+
+def _tiny_columns(shift: engine.Shift, columns: list[int]) -> dict[int, float]:
+    """The columns among ``columns`` that vary, but by so little their squares vanish: index ->
+    their largest deviation from the mean."""
+    out = {}
+    for j in columns:
+        x = shift.X[:, j]
+        z = (x - np.mean(x)) * (1.0 if shift.root_w is None else shift.root_w)
+        length, largest = _length(z)
+        if 0 < largest and length < SMALLEST_LENGTH:
+            out[j] = float(np.max(np.abs(x - np.mean(x))))
+    return out
+
+
+def _tiny_message(labels: list[str], largest: float) -> str:
+    it, them = ("it", "its") if len(labels) == 1 else ("they", "their")
+    return (
+        f"the values of {', '.join(labels)} vary too little to work with in double precision (they differ from "
+        f"{them} mean by at most {largest:.1e}): squared, they fall below the smallest number a computer's floating "
+        f"point holds (about 2.2e-308), so {it} {'looks' if it == 'it' else 'look'} constant. Rescale by a power of ten "
+        "(for example units instead of millionths) and fit again."
+    )
+
+
+def _check_range(gram: np.ndarray, xtx_inv: np.ndarray, shift: engine.Shift, names: list[str] | None) -> None:
+    """Refuse a fit whose numbers left double precision's range though the solve went through: a
+    regressor so tiny its coefficient's variance overflows, or an outcome so tiny its residuals
+    square to zero (every standard error would read 0)."""
+    k = shift.k
+    lost = [j for j in range(1, k) if not np.isfinite(xtx_inv[j, j])]
+    if lost:
+        x = [shift.X[:, j] - np.mean(shift.X[:, j]) for j in lost]
+        raise DataError(_tiny_message([names[j] if names else f"column {j}" for j in lost], max(_length(v)[1] for v in x)))
+    if gram[k, k] < SMALLEST_LENGTH**2:
+        root_w = 1.0 if shift.root_w is None else shift.root_w
+        length, _ = _length((shift.y - np.mean(shift.y)) * root_w)
+        if 0 < length < SMALLEST_LENGTH:
+            raise DataError(_tiny_message(["the outcome"], _length(shift.y - np.mean(shift.y))[1]))
+
+
+def _overflow_error(shift: engine.Shift, names: list[str] | None) -> DataError:
+    """The fit overflowed: a DataError naming the columns (regressors, the outcome, the weights)
+    whose sums of squares pass double precision's range, else the general message."""
+    labels, largest = [], 0.0
+    for j in range(shift.k + 1):
+        x = shift.y - shift.c_y if j == shift.k else shift.X[:, j] - shift.c[j]
+        length, _ = _length(x * (1.0 if shift.root_w is None else shift.root_w))
+        if length > LARGEST_LENGTH or not np.isfinite(length):
+            raw = shift.y if j == shift.k else shift.X[:, j] if j or shift.w is None else shift.w
+            labels.append("the outcome" if j == shift.k else "the weights" if j == 0 else names[j] if names else f"column {j}")
+            largest = max(largest, _length(raw)[1])
+    if not labels:
+        return DataError(_OVERFLOW)
+    return DataError(
+        f"the values of {', '.join(labels)} are too large to work with in double precision (up to about {largest:.1e}): "
+        "their sums of squares pass the largest number a computer's floating point holds (about 1.8e308). Rescale by a "
+        "power of ten (for example millions instead of units) and fit again."
     )
 
 
