@@ -252,6 +252,12 @@ def curves_view(ctx: Context) -> None:
     chart(figure, key="curve_chart")
     st.markdown(plain(curve_sentence(curve, ctx.outcome, show_naive)))
     notes = [f"Grey dots: the data, {showing_words(points['shown'], points['total'])}."]
+    below, above, top = charts.rows_off_the_axis(figure, points)
+    if below or above:
+        parts = [f"{above:,} above it (up to {sig(top)})" if above else "", f"{below:,} below it" if below else ""]
+        notes.append(
+            f"So that the curve stays readable the axis stops short of the most extreme rows: {' and '.join(p for p in parts if p)}."
+        )
     if curve["kind"] == "continuous":
         notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
     if show_naive:

@@ -93,3 +93,13 @@ def test_axis_titles_on_screen_and_in_the_report_name_the_units() -> None:
     drawn = {key: f for key, f, _ in report_figures(result, SPEC)}
     texts = {t.get_text() for f in drawn.values() for ax in f.axes for t in (ax.xaxis.label, ax.yaxis.label)}
     assert "Change in sqrft (square foot)" in texts and "price (thousand $)" in texts
+
+
+def test_the_curve_caption_counts_the_rows_the_axis_leaves_off() -> None:
+    from tests.app_support import show
+
+    at = start()
+    show(at, "Effect curves")
+    captions = " ".join(c.value for c in at.caption).replace("\\", "")  # Markdown escapes
+    # The demo's revenue runs to 60,617 while the axis stops near the 99th percentile.
+    assert "axis stops short of the most extreme rows" in captions and "above it (up to 60,617)" in captions, captions

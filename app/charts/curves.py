@@ -32,6 +32,16 @@ def _y_range(curves: list[np.ndarray], points: np.ndarray) -> tuple[float, float
     return low - pad, high + pad
 
 
+def rows_off_the_axis(fig: go.Figure, points: dict[str, Any] | None) -> tuple[int, int, float]:
+    """How many of the drawn data rows lie below and above the y axis's range (``_y_range``
+    stops at the 1st and 99th percentiles), and the highest of them, for the caption."""
+    if not points or not points.get("y") or fig.layout.yaxis.range is None:
+        return 0, 0, float("nan")
+    y = np.array([np.nan if v is None else float(v) for v in points["y"]], dtype=float)
+    low, high = fig.layout.yaxis.range
+    return int(np.sum(y < low)), int(np.sum(y > high)), float(np.nanmax(y)) if np.isfinite(y).any() else float("nan")
+
+
 def _data_points(fig: go.Figure, points: dict[str, Any] | None, column: str, outcome_column: str) -> np.ndarray:
     """The data as faint grey dots behind the curve (a sample when large); their y values."""
     pts_y = np.array([], dtype=float)
