@@ -308,8 +308,8 @@ def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:
                     Log() if model_spec.estimator == "ppml" else model_spec.outcome_transform,
                     model_spec.outcome_column,
                     blocks.get(term.column) if term.column else None,
-                ),
                     model_spec.units,
+                ),
             }
         )
     return out
