@@ -25,6 +25,7 @@ from hypothesis import strategies as st
 import core
 from core.errors import DataError, FormwiseError, SpecError
 from core.inference import diagnostics as checks
+from core.intake.reader import read_table
 from core.model import design as design_module
 from core.output.tables import diagnostics_table, to_csv
 from core.output.text import check_sentences, check_verdicts
@@ -100,7 +101,7 @@ def _refused(data: pd.DataFrame, spec: dict[str, Any], error: type[FormwiseError
         (_spec(outcome="boxcox:1e-320"), r"Box-Cox power of 9\.99989e-321 is too close to 0"),
         (
             _spec(regressors=CATEGORY, predict=[{"cat": "zzz"}]),
-            r"'zzz' is not a level of 'cat' in the rows used; levels are a, b, c",
+            r"'zzz' is not a level of 'cat' in the rows used; levels are 'a', 'b', 'c'",
         ),
     ],
 )
@@ -135,6 +136,45 @@ def test_a_scenario_that_overflows_on_the_original_scale_is_null_with_a_warning(
     assert huge["after"] is None and huge["exact"] is None and small["exact"] is not None
     assert any(w.startswith("scenario 'huge': some of its numbers cannot be computed") for w in result["warnings"])
     assert not any(w.startswith("scenario 'small'") and "cannot be computed" in w for w in result["warnings"])
+
+
+def _blank_levels() -> pd.DataFrame:
+    data = _table(150)
+    data["cat"] = ["a", "b", "", "   ", "c"] * 30  # 60 cells without a level name
+    return data
+
+
+def test_category_cells_without_a_level_name_count_as_missing_and_are_said_so() -> None:
+    result = core.analyze(_blank_levels(), _spec(regressors=CATEGORY), parts={"terms"})
+    assert [t["level"] for t in result["terms"] if t["level"] is not None] == ["b", "c"]
+    assert result["n_dropped"] == 60
+    assert result["dropped"] == [{"column": "cat", "reason": "missing value", "count": 60}]
+    assert any(w.startswith("60 row(s) of 'cat' have an empty level name") for w in result["warnings"])
+
+
+def test_blank_category_cells_in_a_csv_are_read_as_missing() -> None:
+    text = "y,x,cat\n" + "".join(f"{i % 7 + 0.1 * i},{i % 3},{['a', 'b', '', '  ', 'c'][i % 5]}\n" for i in range(50))
+    data = read_table(text.encode(), "blank.csv")
+    result = core.analyze(data, _spec(regressors=CATEGORY), parts={"terms"})
+    assert result["n_dropped"] == 20 and result["dropped"][0]["reason"] == "missing value"
+
+
+@pytest.mark.parametrize(
+    ("spec", "match"),
+    [
+        (_spec(regressors=CATEGORY, predict=[{"cat": ""}]), r"spec\.predict: an empty level name is not a level of 'cat'"),
+        (_spec(regressors=CATEGORY, predict=[{"cat": "  "}]), r"spec\.predict: a level name of only spaces is not a level"),
+        (_spec(regressors=CATEGORY, at={"cat": ""}), r"spec\.at\.cat: an empty level name is not a level of 'cat'"),
+        (
+            _spec(regressors=[{"column": "x"}, {"column": "cat", "transform": "category", "reference": " "}]),
+            r"category 'cat' \(its reference\): a level name of only spaces",
+        ),
+    ],
+    ids=["predict empty", "predict spaces", "at empty", "reference spaces"],
+)
+def test_an_empty_level_name_in_the_spec_is_an_error_listing_the_levels(spec: dict[str, Any], match: str) -> None:
+    message = _refused(_blank_levels(), spec, DataError, match)
+    assert message.endswith("levels are 'a', 'b', 'c'.") and "count as missing" in message
 
 
 def test_the_callers_spec_is_not_changed() -> None:

@@ -39,7 +39,7 @@ from typing import Any
 import numpy as np
 
 from core.inference.changes import default_change_text
-from core.model.design import Block, match_level
+from core.model.design import Block, match_level, unknown_level
 from core.model.fitted import Model
 from core.model.spec import Change, parse_change
 
@@ -150,7 +150,7 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
 def raise_level(column: str, level: str, known: set[str]) -> None:
     from core.errors import SpecError
 
-    raise SpecError(f"spec.regressors ({column}): '{level}' is not a level of '{column}'; levels are {', '.join(sorted(known))}.")
+    raise SpecError(unknown_level(f"spec.regressors ({column})", level, column, sorted(known)))
 
 
 def _one_effect(

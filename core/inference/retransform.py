@@ -27,7 +27,7 @@ import scipy.linalg as sla
 from scipy import optimize, stats
 
 from core.errors import DataError
-from core.model.design import match_level
+from core.model.design import match_level, unknown_level
 from core.model.fitted import Model
 from core.model.transforms import Transform
 
@@ -277,11 +277,7 @@ def _levels_named(design: Any, given: dict[str, Any]) -> dict[str, Any]:
             known = [block.reference_level, *block.levels]
             matched = match_level(given[column], known)
             if matched is None:
-                known = sorted(known)
-                shown = ", ".join(known[:20]) + (f" and {len(known) - 20} more" if len(known) > 20 else "")
-                raise DataError(
-                    f"spec.predict: '{str(given[column])[:40]}' is not a level of '{column}' in the rows used; levels are {shown}."
-                )
+                raise DataError(unknown_level("spec.predict", given[column], column, known, " in the rows used"))
             out[column] = matched
     return out
 

@@ -71,6 +71,7 @@ class Coded:
 
     codes: np.ndarray  # intp; -1 for a missing cell
     names: np.ndarray  # str array, one name per code
+    blank: int = 0  # cells whose name is empty or only spaces: coded -1, as missing
 
 
 @dataclass
@@ -208,7 +209,15 @@ def _category_codes(series: pd.Series) -> Coded:
         names = np.asarray(position, dtype=object).astype(str)
     codes = np.asarray(codes, dtype=np.intp)
     codes[missing] = -1
-    return Coded(codes, names)
+    # A level named by nothing ("" or only spaces) cannot be told apart on screen or named in a
+    # spec: such cells count as missing, as the reader takes blank text cells (core.intake.reader).
+    blank_names = np.char.strip(names.astype(str)) == "" if len(names) else np.zeros(0, dtype=bool)
+    blank = 0
+    if blank_names.any():
+        cells = (codes >= 0) & blank_names[np.maximum(codes, 0)]
+        blank = int(np.count_nonzero(cells))
+        codes[cells] = -1
+    return Coded(codes, names, blank)
 
 
 class ColumnCache:
@@ -292,6 +301,7 @@ class _Drops:
     def __init__(self, n_total: int) -> None:
         self.keep = np.ones(n_total, dtype=bool)
         self.dropped: list[dict[str, Any]] = []
+        self.notes: list[str] = []  # more words on rows dropped, after the counts
 
     def drop(self, mask: np.ndarray, column: str, reason: str) -> None:
         count = int(np.count_nonzero(mask))
@@ -314,7 +324,7 @@ class _Drops:
         missing = sum(e["count"] for e in self.dropped if e["reason"] == "missing value")
         if missing:
             out.append(f"rows with missing cells in the model's columns were dropped ({missing} missing cell(s) in all).")
-        return out
+        return out + self.notes
 
 
 @dataclass
@@ -351,6 +361,11 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         if column in categories:
             found.coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
             drops.drop(found.coded[column].codes < 0, column, "missing value")
+            if found.coded[column].blank:
+                drops.notes.append(
+                    f"{found.coded[column].blank:,} row(s) of '{column}' have an empty level name (blank or only spaces); "
+                    "they count as missing and were dropped. Give those cells a level name to keep them."
+                )
             continue
         values, found.finite[column] = cached(
             ("numbers", column), lambda series=series, column=column: _numbers_and_finite(series, column)
@@ -408,6 +423,8 @@ def _category_block(
         first = top[0] if len(top) == 1 else min(top, key=lambda c: int(np.argmax(codes == c)))
         reference = str(names[first])
     if reference not in present:
+        if reference.strip() == "":
+            raise DataError(unknown_level(f"category '{reg.column}' (its reference)", reference, reg.column, present))
         raise DataError(
             f"category '{reg.column}': the reference level '{reference}' does not occur in the rows used; "
             f"pick one of: {', '.join(present[:10])}."
@@ -610,6 +627,20 @@ def match_level(given: Any, levels: list[str]) -> str | None:
     return None
 
 
+def unknown_level(part: str, given: Any, column: str, levels: list[str], where: str = "") -> str:
+    """The message for a value naming no level of ``column``: what was given (an empty name said
+    in words), and the levels to choose from."""
+    text = str(given)
+    if text.strip() == "":
+        said = "an empty level name" if text == "" else "a level name of only spaces"
+        named = f"{said} is not a level of '{column}'{where} (cells without a level name count as missing)"
+    else:
+        named = f"'{text[:40]}' is not a level of '{column}'{where}"
+    known = sorted(levels, key=_level_order)
+    shown = ", ".join(f"'{level}'" for level in known[:20]) + (f" and {len(known) - 20} more" if len(known) > 20 else "")
+    return f"{part}: {named}; levels are {shown}."
+
+
 def _level_order(level: str) -> tuple[int, float, str]:
     """Numeric-looking levels in numeric order, then the rest alphabetically."""
     try:
@@ -635,7 +666,7 @@ def reference_value(spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[st
             known = [block.reference_level, *block.levels]
             matched = match_level(given, known)
             if matched is None:
-                raise DataError(f"spec.at.{column}: '{given}' is not a level of '{column}'; levels are {', '.join(known[:10])}.")
+                raise DataError(unknown_level(f"spec.at.{column}", given, column, known))
             return matched
         if isinstance(given, str):
             raise DataError(f"spec.at.{column}: must be a number in the units of '{column}'.")
