@@ -105,7 +105,8 @@ def default_change(block: Block, x: np.ndarray) -> Change:
     """The change when the spec names none, by the one rule in ``core.inference.changes``
     (common practice, no source): 0->1 for dummies, +1 or a round step for whole numbers,
     +10 % on relative scales, else a round step near the typical spread."""
-    text = default_change_text(x, block.spec.transform.relative_change, binary=block.binary)
+    # A design's values are finite: rows with missing or infinite cells were dropped.
+    text = default_change_text(x, block.spec.transform.relative_change, binary=block.binary, finite=True)
     return parse_change(text, f"spec.regressors ({block.spec.column})")
 
 
