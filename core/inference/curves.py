@@ -33,12 +33,27 @@ def _residuals_for_display(model: Model) -> np.ndarray:
     resid = model.resid
     if len(resid) <= MAX_SMEAR_RESIDUALS:
         return resid
-    return np.quantile(resid, (np.arange(MAX_SMEAR_RESIDUALS) + 0.5) / MAX_SMEAR_RESIDUALS)
+    # numpy's linear quantiles, read off one sort: np.quantile with 5,000 probabilities
+    # partitions the residuals once per probability (seconds per curve at 20,000 rows).
+    ordered = np.sort(resid)
+    position = (np.arange(MAX_SMEAR_RESIDUALS) + 0.5) / MAX_SMEAR_RESIDUALS * (len(ordered) - 1)
+    return np.interp(position, np.arange(len(ordered)), ordered)
 
 
-def _predict(model: Model, X: np.ndarray, resid: np.ndarray) -> dict[str, list[float]]:
+def index_variance(model: Model, X: np.ndarray, columns: slice) -> np.ndarray:
+    """Var(x'b) for rows of X that differ only in ``columns`` (one regressor's block, the rest at
+    the reference point): with x = x₀ + d, x'Vx = x₀'Vx₀ + 2d'(Vx₀) + d'Vd, where d lives in the
+    block, so m rows cost m·b² instead of m·k² (hundreds of regressors, one curve each)."""
+    x0 = X[0]
+    d = X[:, columns] - x0[columns]
+    v_x0 = model.cov @ x0
+    cov_block = model.cov[columns, columns]
+    return float(x0 @ v_x0) + 2.0 * (d @ v_x0[columns]) + np.einsum("ij,ij->i", d @ cov_block, d)
+
+
+def _predict(model: Model, X: np.ndarray, resid: np.ndarray, columns: slice) -> dict[str, list[float]]:
     eta = X @ model.coef
-    se = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", X, model.cov, X), 0, None))
+    se = np.sqrt(np.clip(index_variance(model, X, columns), 0, None))
     t = model.t_crit
     if model.kind == "level":
         return {
@@ -72,7 +87,7 @@ def effect_curve(model: Model, block: Block) -> dict[str, Any]:
             "kind": "levels",
             "x": [str(v) if block.is_category else v for v in levels],
             "outside": [False] * len(levels),
-            **_predict(model, X, resid),
+            **_predict(model, X, resid, slice(block.start, block.stop)),
         }
     x = design.values[column]
     low, high = float(np.min(x)), float(np.max(x))
@@ -92,5 +107,5 @@ def effect_curve(model: Model, block: Block) -> dict[str, Any]:
         "observed_min": low,
         "observed_max": high,
         "outside": ((grid < low) | (grid > high)).tolist(),
-        **_predict(model, X, resid),
+        **_predict(model, X, resid, slice(block.start, block.stop)),
     }

@@ -8,7 +8,7 @@ as a log-link mean with no residual spread, so effects need no special case.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -38,6 +38,9 @@ class Model:
     resid: np.ndarray
     confidence: float = 0.95
     time_series: dict[str, Any] | None = None  # lags and periods of the HAC / Driscoll-Kraay errors
+    # The reference point's design row, and the reference it encodes (``encode``).
+    _reference_row: np.ndarray | None = field(default=None, init=False, repr=False, compare=False)
+    _reference_for: dict[str, Any] | None = field(default=None, init=False, repr=False, compare=False)
 
     @property
     def kind(self) -> str:
@@ -57,7 +60,23 @@ class Model:
         return float(stats.t.ppf(0.5 + self.confidence / 2, self.df))
 
     def encode(self, point: dict[str, Any], m: int) -> np.ndarray:
-        return self.design.encoder.encode(point, m)
+        """Design rows for m points. A point that is the reference point with a few regressors
+        changed (every effect, curve and prediction) starts from the reference row, encoded once,
+        and re-encodes only those: with hundreds of regressors the effects and curves would
+        otherwise encode every block for every regressor."""
+        encoder, reference = self.design.encoder, self.design.reference
+        if not all(block.spec.column in point for block in encoder.blocks):
+            return encoder.encode(point, m)  # the encoder names the missing column
+        changed = [b for b in encoder.blocks if not _same_value(point[b.spec.column], reference.get(b.spec.column))]
+        if 4 * len(changed) > len(encoder.blocks):
+            return encoder.encode(point, m)
+        if self._reference_row is None or self._reference_for is not reference:
+            self._reference_row, self._reference_for = encoder.encode(reference, 1)[0], reference
+        X = np.empty((m, encoder.width), order="F")
+        X[:] = self._reference_row
+        for block in changed:
+            encoder.fill(X, block, point)
+        return X
 
     # --- smearing estimate of E[y | x] and its derivative in the index -------------------
     def smear(self, eta: np.ndarray, resid: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -72,6 +91,15 @@ class Model:
             level[start : start + step] = self.outcome.inverse(block).mean(axis=1)
             slope[start : start + step] = self.outcome.inverse_derivative(block).mean(axis=1)
         return level, slope
+
+
+def _same_value(value: Any, reference: Any) -> bool:
+    """Whether a point's value is the reference point's own (so its design columns are the
+    reference row's): the same level name, or the same number."""
+    if isinstance(value, str) or isinstance(reference, str):
+        return isinstance(value, str) and isinstance(reference, str) and value == reference
+    numbers = (int, float, np.integer, np.floating)
+    return isinstance(value, numbers) and isinstance(reference, numbers) and not isinstance(value, bool) and value == reference
 
 
 def fit_model(data: pd.DataFrame, model_spec: ModelSpec, columns: ColumnCache | None = None) -> tuple[Design, OLSFit, Model]:
