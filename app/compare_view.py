@@ -23,6 +23,7 @@ from core.output.escape import plain
 from core.output.numbers import compact, sig
 from core.output.text import (
     outside_words,
+    sentence_case,
 )
 
 
@@ -180,6 +181,10 @@ def predict_view(ctx: Context) -> None:
     if prediction is None:
         st.info("No prediction could be made for these values.")
         return
+    # What this prediction adds to the model's warnings (a value beyond floating point, say).
+    for warning in result.get("warnings") or []:
+        if warning not in (ctx.result.get("warnings") or []):
+            st.warning(plain(sentence_case(warning)))
     outside = outside_words(prediction, inputs)
     headline = sig(prediction.get("smearing"), 4)
     st.markdown(f"#### Expected {plain(ctx.outcome)}: {plain(headline)}" + (" ⚠" if outside else ""))
