@@ -220,8 +220,8 @@ def variables_grid() -> pd.DataFrame:
             "unit": st.column_config.TextColumn(
                 "Unit",
                 width=95,
-                help="What one unit of the column is, as it reads after 'one more': square foot, year, $ per week. "
-                "Readings, axes and tables name it.",
+                help="What one unit of the column is. A noun in the singular (square foot, year) reads 'one more "
+                "square foot'; a symbol or rate (kg, °C, $ per week) reads '+1 kg'. Readings, axes and tables name it.",
             ),
         },
     )

@@ -28,7 +28,6 @@ from core.output import display
 from core.output import tables as core_tables
 from core.output.escape import plain
 from core.output.numbers import sig
-from core.output.readings import spec_units
 from core.output.text import (
     curve_sentence,
     factor_words,
@@ -36,6 +35,7 @@ from core.output.text import (
     showing_words,
     units_warning,
 )
+from core.output.unit_words import units_of
 
 VIEWS = [
     "Coefficients",
@@ -192,7 +192,7 @@ def approximation_view(ctx: Context) -> None:
         regressor_label=variable_label(pick, ctx.transforms.get(pick)),
         outcome_label=variable_label(outcome["column"], outcome["transform"], "outcome"),
         outcome_column=outcome["column"],
-        units=spec_units(ctx.spec),
+        units=units_of(ctx.result, ctx.spec),
     )
     chart(figure, key="gap_chart")
     st.markdown(plain(charts.curve_summary(curve, tolerance)))
@@ -247,10 +247,10 @@ def curves_view(ctx: Context) -> None:
         overlay=overlay,
         overlay_label=overlay_label,
         ppml=ctx.ppml,
-        units=spec_units(ctx.spec),
+        units=units_of(ctx.result, ctx.spec),
     )
     chart(figure, key="curve_chart")
-    st.markdown(plain(curve_sentence(curve, ctx.outcome, show_naive)))
+    st.markdown(plain(curve_sentence(curve, ctx.outcome, show_naive, units_of(ctx.result, ctx.spec))))
     notes = [f"Grey dots: the data, {showing_words(points['shown'], points['total'])}."]
     below, above, top = charts.rows_off_the_axis(figure, points)
     if below or above:

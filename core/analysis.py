@@ -116,6 +116,7 @@ def analyze(
         "estimator": model_spec.estimator,
         "reference_point": design.reference,
         "time_series": model.time_series,
+        "column_units": dict(model_spec.units),
     }
     run.warnings.extend(fit.warnings)
     run.warnings.extend(_time_series_warnings(model.time_series, model_spec.covariance))

@@ -7,7 +7,7 @@ Columns
     kiosk_id         identifier "K001".."K060"
     week             1..25
     region           "Coast" (30 kiosks), "Inland" (18), "Mountain" (12)
-    weekly_revenue   revenue in currency units, 2 decimals (outcome)
+    weekly_revenue   revenue in $ that week, 2 decimals (outcome)
     drink_price      price of a standard drink, within 3.00..6.50, 2 decimals
     foot_traffic     weekly passers-by, integer count
     ad_spend         local advertising spend, 2 decimals; about 40 % of weeks are 0

@@ -31,9 +31,9 @@ def test_readings_name_the_units_given_and_only_those() -> None:
     result = core.analyze(_hprice1(), SPEC, parts={"terms", "effects"})
     readings = {t["column"]: t["reading"] for t in result["terms"]}
     assert readings["sqrft"].startswith("One more square foot of sqrft goes with a change of ")
-    assert "in price (thousand $)" in readings["sqrft"]
+    assert " thousand $ in price, " in readings["sqrft"]  # a symbol after the amount, as written
     # bdrms has no unit: the plain wording stays.
-    assert readings["bdrms"].startswith("One more unit of bdrms goes with") and "price (thousand $)" in readings["bdrms"]
+    assert readings["bdrms"].startswith("One more unit of bdrms goes with") and "thousand $ in price" in readings["bdrms"]
     plain = core.analyze(_hprice1(), {**SPEC, "outcome": {"column": "price"}}, parts={"terms"})
     assert all("thousand $" not in t["reading"] for t in plain["terms"])
 
@@ -43,10 +43,10 @@ def test_the_effects_table_and_its_exports_carry_the_units() -> None:
     table = effects_table(result, SPEC)
     rows = {row[0]: row for row in table.rows}
     change, measured = table.header.index("Change"), table.header.index("Measured as")
-    assert rows["sqrft"][change].startswith("+100\u00a0square foot: ")
+    assert rows["sqrft"][change].startswith("+100\u00a0square feet: ")  # a noun in the plural after 100
     assert rows["sqrft"][measured] == "change in price (thousand $)"
     assert rows["bdrms"][change].startswith("+1: ")
-    assert "square foot" in to_csv(table) and "change in price (thousand $)" in to_csv(table)
+    assert "square feet" in to_csv(table) and "change in price (thousand $)" in to_csv(table)
     assert r"change in price \(thousand \$\)" in to_markdown(table)  # Markdown escapes its own characters
 
 
@@ -71,10 +71,10 @@ def test_units_survive_the_grid_round_trip() -> None:
 
 def test_a_unit_typed_in_the_grid_reaches_the_reading_on_screen() -> None:
     at = start()
-    edit_grid(at, {"years_open": {"unit": "year"}})
+    edit_grid(at, {"years_open": {"unit": "trading year"}})  # the demo's own is "year"
     table = next(t.value for t in at.table if "What it means" in t.value.columns)
     meanings = [str(v).replace("\\", "") for v in table["What it means"]]
-    assert any(m.startswith("One more year of years_open goes with") for m in meanings), meanings
+    assert any(m.startswith("One more trading year of years_open goes with") for m in meanings), meanings
 
 
 def test_axis_titles_on_screen_and_in_the_report_name_the_units() -> None:
@@ -85,14 +85,14 @@ def test_axis_titles_on_screen_and_in_the_report_name_the_units() -> None:
     units = {"price": "thousand $", "sqrft": "square foot"}
     gap = next(c for c in result["gap_curves"] if c["column"] == "sqrft")
     fig = charts.gap_figure(gap, 10, regressor_label="sqrft", outcome_label="price", outcome_column="price", units=units)
-    assert fig.layout.xaxis.title.text == "Change in sqrft (square foot)"
+    assert fig.layout.xaxis.title.text == "Change in sqrft (square feet)"
     assert fig.layout.yaxis.title.text == "Effect on price (thousand $)"
     curve = next(c for c in result["curves"] if c["column"] == "sqrft")
     fig = charts.curve_figure(curve, regressor_label="sqrft", outcome_column="price", outcome_label="price", units=units)
-    assert fig.layout.xaxis.title.text == "sqrft (square foot)" and fig.layout.yaxis.title.text == "price (thousand $)"
+    assert fig.layout.xaxis.title.text == "sqrft (square feet)" and fig.layout.yaxis.title.text == "price (thousand $)"
     drawn = {key: f for key, f, _ in report_figures(result, SPEC)}
     texts = {t.get_text() for f in drawn.values() for ax in f.axes for t in (ax.xaxis.label, ax.yaxis.label)}
-    assert "Change in sqrft (square foot)" in texts and "price (thousand $)" in texts
+    assert "Change in sqrft (square feet)" in texts and "price (thousand $)" in texts
 
 
 def test_the_curve_caption_counts_the_rows_the_axis_leaves_off() -> None:

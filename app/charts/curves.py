@@ -8,6 +8,7 @@ import numpy as np
 import plotly.graph_objects as go
 
 from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, legend_square, style
+from core.output import unit_words
 from core.output.escape import html
 from core.output.theme import NAIVE_NAME, SMEARING_NAME
 
@@ -136,8 +137,8 @@ def curve_figure(
     data, the stretches beyond the observed data shaded, and optionally the smearing curve of
     another transform of the same regressor."""
     units = units or {}
-    y_title = f"{html(outcome_column)} ({html(units.get(outcome_column, 'original units'))})"
-    x_title = f"{html(curve['column'])} ({html(units.get(curve['column'], 'as recorded'))})"
+    y_title = html(unit_words.label(outcome_column, units.get(outcome_column), "original units"))
+    x_title = html(unit_words.label(curve["column"], units.get(curve["column"]), "as recorded"))
     regressor_label, outcome_column, outcome_label = html(regressor_label), html(outcome_column), html(outcome_label)
     if curve["kind"] == "levels":
         return _levels_figure(curve, regressor_label, outcome_column, outcome_label, points, show_naive, ppml, y_title)

@@ -10,6 +10,9 @@ import plotly.graph_objects as go
 
 from app.charts.base import BLUE, ORANGE, PURPLE, TYPE, VERMILLION, floats, legend_square, style
 from core.output.escape import html
+from core.output.unit_words import label
+
+OWN = "in its own units"  # an axis in a column's units when none is named
 
 
 def _arrays(curve: dict[str, Any]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -130,10 +133,10 @@ def curve_summary(curve: dict[str, Any], tolerance_pct: float) -> str:
     return f"{first} {second}"
 
 
-def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool) -> str:
+def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool, unit: str | None = None) -> str:
     """'Effect as % change in weekly_revenue (model of log of weekly_revenue), other regressors
     held at their reference values': the effect is on the outcome itself, whatever its transform."""
-    what = f"% change in {outcome_column}" if percent_effect else f"change in {outcome_column} (its own units)"
+    what = f"% change in {outcome_column}" if percent_effect else f"change in {label(outcome_column, unit, 'its own units')}"
     model = f" (model of {outcome_label})" if outcome_label != outcome_column else ""
     return f"Effect as {what}{model}, other regressors held at their reference values"
 
@@ -219,15 +222,14 @@ def gap_figure(
     tolerance. Effects are on the outcome itself (a % change or a change in its units), so the
     subtitle names the outcome, and the model's transform of it only as the model."""
     sizes, approx, exact = _arrays(curve)
-    column = html(curve["column"])
-    regressor_label, outcome_label, outcome_column = html(regressor_label), html(outcome_label), html(outcome_column)
     percent_change = curve["kind"] == "percent"
     percent_effect = curve["units"] == "percent"
-    chosen = float(curve["chosen"])
     units = units or {}
-    x_unit, y_unit = html(units.get(curve["column"], "in its own units")), html(units.get(outcome_column, "in its own units"))
-    x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} ({x_unit})"
-    y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} ({y_unit})"
+    x_unit, y_unit = units.get(curve["column"]), units.get(outcome_column)
+    x_title = html(f"Change in {curve['column']} (%)" if percent_change else "Change in " + label(curve["column"], x_unit, OWN))
+    y_title = html(f"Effect on {outcome_column} (%)" if percent_effect else "Effect on " + label(outcome_column, y_unit, OWN))
+    regressor_label, outcome_label, outcome_column = html(regressor_label), html(outcome_label), html(outcome_column)
+    chosen = float(curve["chosen"])
     x_hover = "%{x:.3g} %" if percent_change else "%{x:.4g}"
     y_hover = "%{y:.3g} %" if percent_effect else "%{y:.4g}"
 
@@ -264,7 +266,7 @@ def gap_figure(
     style(
         fig,
         f"How far the shortcut drifts: changing {regressor_label}",
-        effect_subtitle(outcome_column, outcome_label, percent_effect),
+        effect_subtitle(outcome_column, outcome_label, percent_effect, html(y_unit) if y_unit else None),
         x_title,
         y_title,
         height=580,

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import re
+import unicodedata
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -377,35 +378,38 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         lags=lags,
         scenarios=_parse_scenarios(spec, regressors),
         bootstrap=_parse_bootstrap(spec, data, estimator),
-        units=_parse_units(spec, outcome_column),
+        units=_parse_units(spec, outcome_column, regressors),
     )
 
 
 def parse_unit(value: object, where: str) -> str | None:
-    """A column's unit as the user names it ('square foot', '$ per week'): short plain text;
-    blank is no unit."""
+    """A column's unit as the user names it ('square foot', '$ per week'): short plain text,
+    runs of spaces read as one; blank or null is no unit."""
     if value is None:
         return None
     if not isinstance(value, str):
-        raise SpecError(f"{where}.unit: must be text such as 'square foot' or '$ per week'.")
+        raise SpecError(f"{where}: the unit must be text such as 'square foot' or '$ per week'.")
+    if any(unicodedata.category(ch).startswith("C") for ch in value):
+        raise SpecError(f"{where}: the unit holds a control character (a tab, line break or similar); write it on one line.")
     text = " ".join(value.split())
     if len(text) > UNIT_MAX_CHARS:
-        raise SpecError(f"{where}.unit: '{text[:20]}…' is longer than {UNIT_MAX_CHARS} characters; name the unit in a few words.")
-    if any(not ch.isprintable() for ch in text):
-        raise SpecError(f"{where}.unit: holds a control character; use plain text such as 'square foot'.")
+        raise SpecError(
+            f"{where}: the unit '{text[:20]}…' is longer than {UNIT_MAX_CHARS} characters; name it in a few words, "
+            "such as 'square foot' or '$ per week'."
+        )
     return text or None
 
 
-def _parse_units(spec: dict, outcome_column: str) -> dict[str, str]:
+def _parse_units(spec: dict, outcome_column: str, regressors: list[RegressorSpec]) -> dict[str, str]:
+    """Column -> unit for the outcome and the regressors that name one (docs/contract.md §2.3)."""
     entries = [("spec.outcome", outcome_column, spec["outcome"])]
-    entries += [
-        (f"spec.regressors[{i}]", e.get("column"), e) for i, e in enumerate(spec.get("regressors") or []) if isinstance(e, dict)
-    ]
+    # The regressors parsed without error, in the spec's order, so entry i is regressor i.
+    entries += [(f"spec.regressors[{i}] ({r.column})", r.column, spec["regressors"][i]) for i, r in enumerate(regressors)]
     units = {}
     for where, column, entry in entries:
         unit = parse_unit(entry.get("unit"), where)
         if unit:
-            units[str(column)] = unit
+            units[column] = unit
     return units
 
 

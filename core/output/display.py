@@ -15,7 +15,7 @@ import pandas as pd
 
 from core.model.transforms import variable_label
 from core.output.numbers import DASH, MINUS, NBSP, interval, p_value, sig
-from core.output.readings import spec_units
+from core.output.unit_words import amount, label, units_of
 
 EXTRAPOLATED = "⚠ beyond the observed data"
 
@@ -66,9 +66,10 @@ def coefficient_table(result: dict[str, Any], spec: dict[str, Any] | None = None
 
 
 def units_words(units: str, outcome: str, unit: str | None = None) -> str:
+    """'% change in y', or 'change in y ($ per week)' ('(its own units)' without a unit)."""
     if units == "percent":
         return f"% change in {outcome}"
-    return f"change in {outcome} ({unit or 'its own units'})"
+    return f"change in {label(outcome, unit, 'its own units')}"
 
 
 def _value_text(value: Any) -> str:
@@ -78,16 +79,20 @@ def _value_text(value: Any) -> str:
 
 
 def change_text(effect: dict[str, Any], unit: str | None = None) -> str:
-    """'+10%: 4.559 → 5.014' for numeric changes ('+1 year: 5.2 → 6.2' with a unit),
-    'Coast → Inland' for moves between values."""
+    """'+10%: 4.559 → 5.014' for numeric changes, 'Coast → Inland' for moves between values.
+    With the column's unit, a change in units names it ('+1 year: 5.2 → 6.2') and a percent
+    change names it on its end value ('+10%: 4.559 → 5.014 $')."""
     change = str(effect["change"])
     start, end = effect.get("from"), effect.get("to")
     if "->" in change:
         return change.replace("->", " → ")
-    if unit and not change.endswith("%"):
-        change = f"{change}{NBSP}{unit}"
+    percent = change.endswith("%")
+    if not percent:
+        change = amount(change, unit, NBSP)
     if isinstance(start, (int, float)) and isinstance(end, (int, float)):
-        return f"{change}: {_value_text(float(start))}{NBSP}→{NBSP}{_value_text(float(end))}"
+        shown = _value_text(float(end))
+        shown = amount(shown, unit, NBSP) if percent else shown
+        return f"{change}: {_value_text(float(start))}{NBSP}→{NBSP}{shown}"
     return change
 
 
@@ -108,7 +113,7 @@ EFFECT_COLUMNS = [
 def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) -> pd.DataFrame:
     outcome = result["outcome"]["column"]
     transforms = {r["column"]: r.get("transform", "level") for r in (spec or {}).get("regressors", [])}
-    units = spec_units(spec)
+    units = units_of(result, spec)
     rows = []
     for effect in result.get("effects") or []:
         percent = effect["units"] == "percent"
@@ -156,20 +161,21 @@ def scenarios_table(result: dict[str, Any]) -> pd.DataFrame:
     its interval, the sum of the single first-order effects, the outcome before and after; the
     bootstrap intervals (§3.15) when the result has them."""
     outcome = result["outcome"]["column"]
+    units = units_of(result)
     rows = []
     for entry in result.get("scenarios") or []:
         percent = entry["units"] == "percent"
         suffix, digits = (f"{NBSP}%", 3) if percent else ("", 4)
         row = {
             "Scenario": entry["name"],
-            "Changes": "; ".join(f"{c['column']} {change_text(c)}" for c in entry["changes"]),
+            "Changes": "; ".join(f"{c['column']} {change_text(c, units.get(c['column']))}" for c in entry["changes"]),
             "Exact": sig(entry.get("exact"), digits, signed=True) + (suffix if entry.get("exact") is not None else ""),
             "95 % interval (exact)": interval(entry.get("ci_low"), entry.get("ci_high"), digits, suffix),
             "Sum of single approximations": sig(entry.get("sum_of_approximate"), digits, signed=True)
             + (suffix if entry.get("sum_of_approximate") is not None else ""),
             "Before": sig(entry.get("before"), 5),
             "After": sig(entry.get("after"), 5),
-            "Measured as": units_words(entry["units"], outcome),
+            "Measured as": units_words(entry["units"], outcome, units.get(outcome)),
         }
         if "bootstrap" in entry:
             row["Bootstrap 95 % (percentile)"] = _bootstrap_text(entry, "percentile", digits, suffix)

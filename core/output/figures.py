@@ -31,7 +31,7 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator
 from matplotlib.transforms import Bbox
 
-from core.output import numbers, theme
+from core.output import numbers, theme, unit_words
 from core.output.theme import (
     BEYOND_NAME,
     BLUE,
@@ -341,9 +341,13 @@ def _line(colour: str, width: float, style: str = "-") -> Line2D:
 # --- the charts -----------------------------------------------------------------------------------------
 
 
-def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool) -> str:
+def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool, unit: str | None = None) -> str:
     """The effect is on the outcome itself, whatever its transform: the subtitle says so."""
-    what = f"% change in {outcome_column}" if percent_effect else f"change in {outcome_column} (its own units)"
+    what = (
+        f"% change in {outcome_column}"
+        if percent_effect
+        else "change in " + unit_words.label(outcome_column, unit, "its own units")
+    )
     model = f" (model of {outcome_label})" if outcome_label != outcome_column else ""
     return f"Effect as {what}{model}, other regressors held at their reference values"
 
@@ -393,14 +397,17 @@ def gap_figure(
         top = _header(
             canvas,
             f"How far the shortcut drifts: changing {column}",
-            effect_subtitle(outcome_column, outcome_label, percent_effect),
+            effect_subtitle(outcome_column, outcome_label, percent_effect, (units or {}).get(outcome_column)),
             handles,
             labels,
         )
-        units = units or {}
-        x_unit, y_unit = units.get(column, "in its own units"), units.get(outcome_column, "in its own units")
-        x_title = f"Change in {column} (%)" if percent_change else f"Change in {column} ({x_unit})"
-        y_title = f"Effect on {outcome_column} (%)" if percent_effect else f"Effect on {outcome_column} ({y_unit})"
+        units, own = units or {}, "in its own units"
+        x_title = f"Change in {column} (%)" if percent_change else "Change in " + unit_words.label(column, units.get(column), own)
+        y_title = (
+            f"Effect on {outcome_column} (%)"
+            if percent_effect
+            else "Effect on " + unit_words.label(outcome_column, units.get(outcome_column), own)
+        )
         _fit_axes(
             canvas,
             ax,
@@ -457,8 +464,8 @@ def curve_figure(
         top = _header(canvas, title, subtitle, handles, labels)
         units = units or {}
         if curve["kind"] != "levels" and column in units:
-            x_axis = Axis(f"{column} ({units[column]})", x_axis.suffix, x_axis.names)
-        y_title = f"{outcome_column} ({units.get(outcome_column, 'original units')})"
+            x_axis = Axis(unit_words.label(column, units[column]), x_axis.suffix, x_axis.names)
+        y_title = unit_words.label(outcome_column, units.get(outcome_column), "original units")
         _fit_axes(canvas, ax, (MARGIN, MARGIN, canvas.width - MARGIN, top), x_axis, Axis(y_title))
     return canvas.fig
 

@@ -9,10 +9,10 @@ an association in this data, other regressors held fixed.
 from __future__ import annotations
 
 import math
-from typing import Any
 
 from core.model.design import Block, Term
 from core.model.transforms import Transform, lookup
+from core.output.unit_words import amount, label, one_more, one_more_phrase
 
 HELD = "other regressors held fixed"
 
@@ -32,32 +32,19 @@ def _signed_pct(value: float) -> str:
     return f"{'+' if value >= 0 else ''}{_num(value)} %"
 
 
+def _capital(text: str) -> str:
+    return text[:1].upper() + text[1:]
+
+
 def _exact_pct(b: float) -> float:
     """100·(e^b − 1), infinite rather than an overflow error for a huge coefficient."""
     return 100.0 * math.expm1(b) if b < 700 else math.inf
 
 
-def in_unit(y: str, unit: str | None) -> str:
-    """'weekly_revenue ($ per week)': a column named with its unit, when it has one."""
-    return f"{y} ({unit})" if unit else y
-
-
-def spec_units(spec: dict[str, Any] | None) -> dict[str, str]:
-    """Column -> unit from a plain spec's outcome and regressor entries (blank: none)."""
-    spec = spec or {}
-    entries = [spec.get("outcome") or {}, *(spec.get("regressors") or [])]
-    return {str(e["column"]): " ".join(str(e["unit"]).split()) for e in entries if isinstance(e, dict) and e.get("unit")}
-
-
-def one_more(x: str, unit: str | None) -> str:
-    """'one more square foot of sqrft', or 'one more unit of sqrft' without a unit."""
-    return f"one more {unit or 'unit'} of {x}"
-
-
 def _outcome_move(outcome: Transform, y: str, b: float, unit: str | None = None) -> str:
     """How a one-unit move in the index reads on the outcome."""
     if outcome.code == "level":
-        return f"a change of {_num(b)} in {in_unit(y, unit)}"
+        return f"a change of {amount(_num(b), unit)} in {y}"
     if outcome.is_log_like:
         exact = _exact_pct(b)
         if not math.isfinite(exact):
@@ -74,7 +61,7 @@ def reading(
     units = units or {}
     y_unit = units.get(y)
     if term.column is None:
-        scale = in_unit(y, y_unit) if outcome.code == "level" else outcome.label(y)
+        scale = label(y, y_unit) if outcome.code == "level" else outcome.label(y)
         return (
             f"Predicted {scale} when every regressor term is zero (categories at their reference level); "
             "often outside the data and not meaningful on its own."
@@ -87,7 +74,7 @@ def reading(
         return f"Rows with {x} = 1 compared with {x} = 0 go with {_outcome_move(outcome, y, estimate, y_unit)}, {HELD}."
     if term.power == 1:
         return (
-            f"Together with the square term, the effect of {x} depends on its level: {one_more(x, units.get(x))} at {x} = 0 goes "
+            f"Together with the square term, the effect of {x} depends on its level: {one_more_phrase(units.get(x))} at {x} = 0 goes "
             f"with {_outcome_move(outcome, y, estimate, y_unit)}; use the effects table at the reference point."
         )
     if term.power == 2:
@@ -95,11 +82,11 @@ def reading(
         return f"Curvature: as {x} grows its effect {shape} (square term {_num(estimate)} on the model's scale)."
     transform = block.spec.transform if block is not None else lookup(term.transform or "level")
     if transform is None or transform.code == "level":
-        return f"One {one_more(x, units.get(x))[4:]} goes with {_outcome_move(outcome, y, estimate, y_unit)}, {HELD}."
+        return f"{_capital(one_more(x, units.get(x)))} goes with {_outcome_move(outcome, y, estimate, y_unit)}, {HELD}."
     if transform.reads_per_percent:
         caveat = transform.reading_caveat(x)
         if outcome.code == "level":
-            return f"A 1 % higher {x} goes with a change of about {_num(estimate / 100)} in {in_unit(y, y_unit)}{caveat}, {HELD}."
+            return f"A 1 % higher {x} goes with a change of about {amount(_num(estimate / 100), y_unit)} in {y}{caveat}, {HELD}."
         if outcome.is_log_like:
             return f"A 1 % higher {x} goes with about {_signed_pct(estimate)} in {y} (an elasticity){caveat}, {HELD}."
         return f"A 1 % higher {x} moves the {outcome.label(y)} by about {_num(estimate / 100)}{caveat}, {HELD}."

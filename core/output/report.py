@@ -23,10 +23,10 @@ from core.analysis import analyze
 from core.model.transforms import parse_transform
 from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
-from core.output.readings import spec_units
 from core.output.sweep_figure import sweep_figure
 from core.output.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, from_frame
 from core.output.text import small_sample
+from core.output.unit_words import units_of
 
 CAUTION_REVIEW = (
     "For decisions with consequences, have the analysis reviewed by a qualified statistician and follow "
@@ -103,7 +103,7 @@ def report_figures(result: dict[str, Any], spec: dict[str, Any], size: str = "fu
         r["column"]: parse_transform(r.get("transform", "level"), "regressor", r["column"]).label(r["column"])
         for r in spec.get("regressors", [])
     }
-    units = spec_units(spec)
+    units = units_of(result, spec)
     out = [
         (f"gap{i}", figures.gap_figure(c, y, y_label, size=size, units=units), GAP_CAPTION)
         for i, c in enumerate(result.get("gap_curves", []))

@@ -15,6 +15,7 @@ import numpy as np
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import variable_label
 from core.output.numbers import compact, p_text, signed
+from core.output.unit_words import amount, plural
 
 # Fewer rows than this, or fewer than ROWS_PER_COEFFICIENT rows per coefficient (intercept
 # included), and every figure is flagged as fragile (common practice, no source).
@@ -393,17 +394,19 @@ def outside_words(prediction: dict[str, Any], inputs: list[dict[str, Any]]) -> l
     return out
 
 
-def curve_sentence(curve: dict[str, Any], outcome: str, show_naive: bool) -> str:
-    """What an effect curve says, in one or two sentences."""
+def curve_sentence(curve: dict[str, Any], outcome: str, show_naive: bool, units: dict[str, str] | None = None) -> str:
+    """What an effect curve says, in one or two sentences; values in the columns' ``units``
+    where they are named."""
 
     def floats(key: str) -> np.ndarray:
         return np.array([np.nan if v is None else float(v) for v in curve.get(key) or []], dtype=float)
 
     smear, naive = floats("smearing"), floats("naive")
     column = curve["column"]
+    y_unit, x_unit = (units or {}).get(outcome), (units or {}).get(column)
     if curve["kind"] == "levels":
         parts = [
-            f"{v if not isinstance(v, float) else f'{column} = {v:g}'}: {compact(s)}"
+            f"{v if not isinstance(v, float) else f'{column} = {v:g}'}: {amount(compact(s), y_unit)}"
             for v, s in zip(curve["x"], smear, strict=True)
         ]
         text = f"Expected {outcome} with the other regressors at their reference values: " + "; ".join(parts) + "."
@@ -414,8 +417,8 @@ def curve_sentence(curve: dict[str, Any], outcome: str, show_naive: bool) -> str
         change = (end / start - 1) * 100 if start else float("nan")
         move = "rises" if end > start else "falls"
         text = (
-            f"Across the observed {column} ({compact(low)} to {compact(high)}), expected {outcome} {move} from "
-            f"{compact(start)} to {compact(end)}"
+            f"Across the observed {column} ({compact(low)} to {amount(compact(high), x_unit)}), expected {outcome} "
+            f"{move} from {amount(compact(start), y_unit)} to {amount(compact(end), y_unit)}"
             + (f" ({change:+.0f} %)".replace("-", "\u2212") if math.isfinite(change) else "")
             + ", the other regressors held at their reference values."
         )
@@ -448,5 +451,8 @@ def model_footer(result: dict[str, Any], today: str | None = None) -> list[str]:
             text += f"; {signed(original, 3).lstrip('+')} on the original scale of {outcome['column']}"
         lines.append(text + ".")
     lines.append(f"Standard errors: {kind.short if kind else result.get('covariance')}.")
+    units = result.get("column_units") or {}
+    if units:
+        lines.append("Units: " + "; ".join(f"{column} in {plural(unit)}" for column, unit in units.items()) + ".")
     lines.append(f"Formwise, {today or datetime.date.today().isoformat()}. Effects are associations in this data.")
     return lines
