@@ -216,7 +216,8 @@ def style(
 
 def x_title_axis(fig: go.Figure) -> str:
     """The layout key of the x axis that carries the x title (see ``style``)."""
-    return (fig.layout.meta or {}).get("x_axis", "xaxis") if isinstance(fig.layout.meta, dict) else "xaxis"
+    meta = fig.layout.meta
+    return meta.get("x_axis", "xaxis") if isinstance(meta, dict) else "xaxis"
 
 
 # --- export at slide size -----------------------------------------------------------------------

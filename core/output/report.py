@@ -23,7 +23,6 @@ from core.analysis import analyze
 from core.model.transforms import parse_transform
 from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
-from core.output.sweep_figure import sweep_figure
 from core.output.tables import Table, coefficient_table, comparison_table, diagnostics_table, effects_table, from_frame
 from core.output.text import small_sample
 from core.output.unit_words import units_of
@@ -116,7 +115,7 @@ def report_figures(result: dict[str, Any], spec: dict[str, Any], size: str = "fu
     if result.get("boxcox"):
         out.append(("boxcox", figures.boxcox_figure(result["boxcox"], y, size=size), boxcox_caption(result["boxcox"])))
     if result.get("sweep"):
-        out.append(("sweep", sweep_figure(result["sweep"], size=size), SWEEP_CAPTION))
+        out.append(("sweep", figures.sweep_figure(result["sweep"], size=size), SWEEP_CAPTION))
     return out
 
 
