@@ -209,7 +209,7 @@ def _one_effect(
         average=_average_effect(model, block, x0, x1, text, exact) if with_average else None,
         gap=approximate - exact,
         interval_method=method,
-        extrapolated=_outside(design.values[column], x0, x1) if not block.is_category else False,
+        extrapolated=_outside(design.observed_range(column), x0, x1) if not block.is_category else False,
     )
     if entry["extrapolated"]:
         warnings.append(
@@ -259,8 +259,8 @@ def elasticity(model: Model, block: Block, point: dict[str, Any]) -> float | Non
     return float(derivative[0] / level[0] * slope * x)
 
 
-def _outside(x: np.ndarray, x0: float, x1: float) -> bool:
-    low, high = float(np.min(x)), float(np.max(x))
+def _outside(observed: tuple[float, float], x0: float, x1: float) -> bool:
+    low, high = observed
     return bool(min(x0, x1) < low or max(x0, x1) > high)
 
 

@@ -74,8 +74,7 @@ def _outside(model: Model, changes: list[dict[str, Any]]) -> bool:
     for entry in changes:
         if model.design.encoder.block(entry["column"]).is_category:
             continue
-        x = model.design.values[entry["column"]]
-        low, high = float(np.min(x)), float(np.max(x))
+        low, high = model.design.observed_range(entry["column"])
         if min(entry["from"], entry["to"]) < low or max(entry["from"], entry["to"]) > high:
             return True
     return False

@@ -436,8 +436,8 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
         out = np.zeros((4, m))
         for lo in range(0, stop - start, _SUB_ROWS):
             rows = block[lo : lo + _SUB_ROWS]
-            u = rows @ resid_map  # sqrt(w)·e, every model
-            s = rows @ proj_map
+            u = np.dot(rows, resid_map)  # sqrt(w)·e, every model (np.dot releases the GIL; @ does not)
+            s = np.dot(rows, proj_map)
             np.multiply(s, u, out=s)
             out[0] += np.einsum("ij,ij->j", s, s)
             e = u if root_w is None else u / root_w[start + lo : start + lo + len(rows), None]
@@ -451,7 +451,7 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
             logs *= y[:, None]
             out[1] += e.sum(0)
             out[2] += np.einsum("ij,ij->j", e, e)
-            out[3] += y @ e
+            out[3] += np.dot(y, e)
         return out
 
     sums = sum(engine.map_blocks(shift, one))

@@ -52,6 +52,7 @@ import numpy as np
 import pandas as pd
 
 from core.errors import DataError
+from core.model import engine
 from core.model.ols import CHUNK_ROWS, OLSFit, row_chunks
 
 
@@ -133,10 +134,7 @@ class HeteroskedasticityRobust(CovarianceKind):
                     "(leverage 1). Use HC1 or classical standard errors, or drop those rows."
                 )
             factor = factor / (1.0 - h) ** (self.power / 2.0)
-        meat = np.zeros((k, k))
-        for start in row_chunks(n):
-            scores = rows.X[start : start + CHUNK_ROWS] * factor[start : start + CHUNK_ROWS, None]
-            meat += scores.T @ scores
+        meat = engine.scaled_cross_products(rows.X, factor)
         correction = n / (n - k) if self.small_sample else 1.0
         return correction * (rows.bread @ meat @ rows.bread), n - k
 

@@ -13,6 +13,7 @@ of the fit read every column of a chunk; with no row dropped no column is gather
 
 from __future__ import annotations
 
+import functools
 import math
 import threading
 import weakref
@@ -25,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from core.errors import DataError
+from core.model import engine
 from core.model.spec import ModelSpec, RegressorSpec
 from core.model.transforms import Category, Transform
 
@@ -105,8 +107,8 @@ class Encoder:
         """
         X = np.empty((n, self.width), order="F")
         X[:, 0] = 1.0
-        for block in self.blocks:
-            self.fill(X, block, values, codes, bases)
+        # Blocks write disjoint columns, so long ones are written on the passes' threads.
+        engine.each_column([functools.partial(self.fill, X, block, values, codes, bases) for block in self.blocks], n)
         return X
 
     def fill(
@@ -138,7 +140,7 @@ class Encoder:
             X[:, block.start : block.stop] = bases[column]
         else:
             numbers = np.broadcast_to(np.asarray(values[column], dtype=float), (n,))
-            X[:, block.start : block.stop] = block.spec.transform.basis(numbers)
+            block.spec.transform.write_basis(numbers, X[:, block.start : block.stop])
 
     def basis_derivative(self, column: str, x: np.ndarray) -> tuple[slice, np.ndarray]:
         """Slice of X for ``column`` and d(basis)/dx at x, shape (len(x), width)."""
@@ -169,6 +171,13 @@ class Design:
     reference: dict[str, Any]
     time: np.ndarray | None = None  # period number of each used row (0 = the first used), see ``periods``
     resample_groups: np.ndarray | None = None  # the bootstrap's cluster labels, used rows
+    ranges: dict[str, tuple[float, float]] = field(default_factory=dict)  # numeric regressors, used rows
+
+    def observed_range(self, column: str) -> tuple[float, float]:
+        """The smallest and largest value of a numeric regressor on the rows used."""
+        if column not in self.ranges:
+            self.ranges[column] = _value_range(np.asarray(self.values[column], dtype=float))
+        return self.ranges[column]
 
 
 def _numeric(series: pd.Series, column: str) -> np.ndarray:
@@ -244,7 +253,7 @@ class ColumnCache:
     that changes one transform at a time: per column its numbers and finite mask, or its
     category codes; per (column, transform) the rows the transform cannot take and the
     transformed values over all rows. Every cached array is read-only, so no caller can alter
-    a cached value, and ``build_design`` copies what it hands on.
+    a cached value (a design hands them on as they are, read-only).
 
     It serves one table at a time, which must not be edited in place while cached (the app
     never edits a loaded table); given another table object it starts afresh. At most
@@ -292,14 +301,49 @@ def _freeze(value: Any) -> int:
         return value.nbytes
     if isinstance(value, Coded):
         return _freeze(value.codes) + _freeze(value.names)
+    if isinstance(value, Numbers):
+        return _freeze(value.values) + (0 if value.finite is None else _freeze(value.finite))
     if isinstance(value, tuple):
         return sum(_freeze(v) for v in value)
     return 0
 
 
-def _numbers_and_finite(series: pd.Series, column: str) -> tuple[np.ndarray, np.ndarray]:
+@dataclass(frozen=True)
+class Numbers:
+    """A numeric column over every row: its values, the mask of finite ones (None when every
+    value is finite) and the smallest and largest value.
+
+    The range answers most questions about a column in one pass and without a row mask: a
+    finite minimum and maximum mean every value is finite (numpy's min and max propagate
+    NaN, and an infinity is an extreme), and every transform's domain is an interval, so a
+    range inside it means no row falls outside (``_drop_outside_domains``)."""
+
+    values: np.ndarray
+    finite: np.ndarray | None
+    low: float
+    high: float
+
+    @property
+    def all_finite(self) -> bool:
+        return self.finite is None
+
+
+def _numbers_and_finite(series: pd.Series, column: str) -> Numbers:
     values = _numeric(series, column)
-    return values, np.isfinite(values)
+    low, high = _value_range(values)
+    if math.isfinite(low) and math.isfinite(high):
+        return Numbers(values, None, low, high)
+    finite = np.isfinite(values)
+    kept = values[finite]
+    low, high = _value_range(kept) if len(kept) else (math.nan, math.nan)
+    return Numbers(values, finite, low, high)
+
+
+def _value_range(x: np.ndarray) -> tuple[float, float]:
+    if len(x) == 0:
+        return math.nan, math.nan
+    with np.errstate(invalid="ignore"):
+        return float(np.min(x)), float(np.max(x))
 
 
 def _basis_all_rows(transform: Transform, x: np.ndarray) -> np.ndarray:
@@ -352,7 +396,7 @@ class _Columns:
     the cluster labels (kept apart: the cluster column may also be a numeric regressor)."""
 
     raw: dict[str, np.ndarray] = field(default_factory=dict)
-    finite: dict[str, np.ndarray] = field(default_factory=dict)
+    numbers: dict[str, Numbers] = field(default_factory=dict)
     coded: dict[str, Coded] = field(default_factory=dict)
     groups: np.ndarray | None = None
     resample_groups: np.ndarray | None = None
@@ -373,10 +417,16 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         if resample != spec.cluster:
             drops.drop(labels.isna().to_numpy(), resample, "missing value")
     others = {spec.outcome_column, spec.weights, spec.time, *(r.column for r in spec.regressors)}
-    for column in spec.columns:
+    wanted = [c for c in spec.columns if not (c in (spec.cluster, resample) and c not in others)]
+    numeric = [c for c in wanted if c not in categories]
+    # Each numeric column's conversion and range (a million-row pass or two) on the passes' threads.
+    converted = engine.each_column(
+        [functools.partial(cached, ("numbers", c), functools.partial(_numbers_and_finite, data[c], c)) for c in numeric],
+        len(data),
+    )
+    prepared = dict(zip(numeric, converted, strict=True))
+    for column in wanted:
         series = data[column]
-        if column in (spec.cluster, resample) and column not in others:
-            continue
         if column in categories:
             found.coded[column] = cached(("codes", column), lambda series=series: _category_codes(series))
             drops.drop(found.coded[column].codes < 0, column, "missing value")
@@ -386,35 +436,39 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
                     "they count as missing and were dropped. Give those cells a level name to keep them."
                 )
             continue
-        values, found.finite[column] = cached(
-            ("numbers", column), lambda series=series, column=column: _numbers_and_finite(series, column)
-        )
-        found.raw[column] = values
-        if not found.finite[column].all():
+        numbers = prepared[column]
+        found.numbers[column] = numbers
+        found.raw[column] = values = numbers.values
+        if not numbers.all_finite:
             drops.drop(np.isnan(values), column, "missing value")
             drops.drop(np.isinf(values), column, "infinite value")
     if spec.time and spec.time not in found.raw:  # a time column also used as a category
-        found.raw[spec.time], finite = cached(("numbers", spec.time), lambda: _numbers_and_finite(data[spec.time], spec.time))
-        drops.drop(~finite & (found.coded[spec.time].codes >= 0), spec.time, "infinite value")
+        numbers = cached(("numbers", spec.time), lambda: _numbers_and_finite(data[spec.time], spec.time))
+        found.raw[spec.time] = numbers.values
+        if not numbers.all_finite:
+            drops.drop(~numbers.finite & (found.coded[spec.time].codes >= 0), spec.time, "infinite value")
     return found
 
 
 def _drop_outside_domains(spec: ModelSpec, found: _Columns, drops: _Drops, cached: Callable[..., Any]) -> None:
     """Drop the rows each transform cannot take, and rows whose weight is not above zero."""
 
-    def invalid(column: str, transform: Transform) -> tuple[np.ndarray, str]:
-        return cached(("invalid", column, transform), lambda: transform.invalid(found.raw[column]))
+    def drop_invalid(column: str, transform: Transform) -> None:
+        numbers = found.numbers[column]
+        if numbers.all_finite and not transform.invalid(np.array([numbers.low, numbers.high]))[0].any():
+            return  # the range lies inside the transform's domain (an interval): no row to drop
+        bad, reason = cached(("invalid", column, transform), lambda: transform.invalid(numbers.values))
+        drops.drop(bad if numbers.all_finite else bad & numbers.finite, column, reason)
 
-    bad, reason = invalid(spec.outcome_column, spec.outcome_transform)
-    drops.drop(bad & found.finite[spec.outcome_column], spec.outcome_column, reason)
+    drop_invalid(spec.outcome_column, spec.outcome_transform)
     for reg in spec.regressors:
-        if reg.column in found.coded:
-            continue
-        bad, reason = invalid(reg.column, reg.transform)
-        drops.drop(bad & found.finite[reg.column], reg.column, reason)
+        if reg.column not in found.coded:
+            drop_invalid(reg.column, reg.transform)
     if spec.weights:
-        w = found.raw[spec.weights]
-        drops.drop(found.finite[spec.weights] & ~(w > 0), spec.weights, "weights must be above zero")
+        weights = found.numbers[spec.weights]
+        if not (weights.all_finite and weights.low > 0):
+            positive = weights.values > 0
+            drops.drop(~positive if weights.all_finite else weights.finite & ~positive, spec.weights, "weights must be above zero")
 
 
 def _category_block(
@@ -454,9 +508,10 @@ def _category_block(
     return block, terms, Coded(codes, names), names[codes], mode
 
 
-def _numeric_block(reg: RegressorSpec, x: np.ndarray, start: int) -> tuple[Block, list[Term]]:
-    """A numeric regressor's block and terms (a quadratic has two)."""
-    if len(x) and float(np.ptp(x)) == 0:
+def _numeric_block(reg: RegressorSpec, x: np.ndarray, start: int, low: float, high: float) -> tuple[Block, list[Term]]:
+    """A numeric regressor's block and terms (a quadratic has two); ``low`` and ``high`` the
+    range of x."""
+    if len(x) and high == low:
         raise DataError(
             f"regressor '{reg.column}' has the same value ({x[0]:g}) in every row used, so its effect "
             "cannot be estimated; remove it from the regressors."
@@ -471,6 +526,39 @@ def _numeric_block(reg: RegressorSpec, x: np.ndarray, start: int) -> tuple[Block
             name = reg.column
         terms.append(Term(name, reg.column, reg.transform.code, power=power))
     return block, terms
+
+
+@dataclass
+class _Layout:
+    """The design's blocks and terms, and what laying them out learnt of the used rows: the
+    categories' codes and modes, the numeric regressors' ranges."""
+
+    blocks: list[Block] = field(default_factory=list)
+    terms: list[Term] = field(default_factory=lambda: [Term(name="intercept", column=None, transform=None)])
+    width: int = 1
+    codes: dict[str, Coded] = field(default_factory=dict)
+    modes: dict[str, str] = field(default_factory=dict)
+    ranges: dict[str, tuple[float, float]] = field(default_factory=dict)
+
+
+def _lay_out(spec: ModelSpec, found: _Columns, values: dict[str, np.ndarray], rows: np.ndarray | None) -> _Layout:
+    """Blocks and terms for the used rows (``rows``; None for every row); adds each category's
+    level names per row to ``values``."""
+    layout = _Layout()
+    for reg in spec.regressors:
+        column = reg.column
+        if isinstance(reg.transform, Category):
+            block, new_terms, layout.codes[column], values[column], layout.modes[column] = _category_block(
+                reg, found.coded[column], rows, layout.width
+            )
+        else:
+            numbers = found.numbers[column]
+            layout.ranges[column] = (numbers.low, numbers.high) if rows is None else _value_range(values[column])
+            block, new_terms = _numeric_block(reg, values[column], layout.width, *layout.ranges[column])
+        layout.blocks.append(block)
+        layout.terms.extend(new_terms)
+        layout.width = block.stop
+    return layout
 
 
 def build_design(
@@ -501,28 +589,22 @@ def build_design(
     every_row = n == n_total
 
     def used(array: np.ndarray) -> np.ndarray:
-        """The used rows of a column, never a view of the caller's frame (which may be edited
-        later); with no row dropped an array made here is taken as it is, not gathered."""
+        """The used rows of a column; with no row dropped the column itself, read-only (it may
+        be a view of the caller's frame: a design is valid while its table is unchanged, as
+        the column cache's entries are, and nothing may write through it)."""
         if not every_row:
             return array[rows]
-        return array if array.flags.owndata and array.flags.writeable else array.copy()
+        if not array.flags.writeable:
+            return array
+        view = array.view()
+        view.flags.writeable = False
+        return view
 
-    values = {reg.column: used(raw[reg.column]) for reg in spec.regressors if reg.column not in found.coded}
-    codes_used: dict[str, Coded] = {}
-    modes: dict[str, str] = {}
-    blocks: list[Block] = []
-    terms = [Term(name="intercept", column=None, transform=None)]
-    width = 1
-    for reg in spec.regressors:
-        if isinstance(reg.transform, Category):
-            block, new_terms, codes_used[reg.column], values[reg.column], modes[reg.column] = _category_block(
-                reg, found.coded[reg.column], None if every_row else rows, width
-            )
-        else:
-            block, new_terms = _numeric_block(reg, values[reg.column], width)
-        blocks.append(block)
-        terms.extend(new_terms)
-        width = block.stop
+    numeric = [reg.column for reg in spec.regressors if reg.column not in found.coded]
+    outcome = spec.outcome_column
+    values = {column: used(raw[column]) for column in numeric}
+    layout = _lay_out(spec, found, values, None if every_row else rows)
+    blocks, terms, width = layout.blocks, layout.terms, layout.width
 
     if n <= width:
         raise DataError(
@@ -532,14 +614,15 @@ def build_design(
     check_budget(blocks, n, width)
     encoder = Encoder(blocks, width)
     bases = None if columns is None else _cached_bases(blocks, raw, cached, None if every_row else rows)
-    X = encoder.encode(values, n, codes_used, bases)
-    y_raw = used(raw[spec.outcome_column])
-    if float(np.ptp(y_raw)) == 0:
+    X = encoder.encode(values, n, layout.codes, bases)
+    y_raw = used(raw[outcome])
+    y_low, y_high = (found.numbers[outcome].low, found.numbers[outcome].high) if every_row else _value_range(y_raw)
+    if y_high == y_low:
         raise DataError(
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
             "there is nothing to explain. Pick another outcome."
         )
-    y_transform, outcome = spec.outcome_transform, spec.outcome_column
+    y_transform = spec.outcome_transform
     if columns is not None:
         y = used(cached(("forward", outcome, y_transform), lambda: _forward_all_rows(y_transform, raw[outcome])))
     else:
@@ -560,7 +643,8 @@ def build_design(
         n_total=n_total,
         dropped=drops.dropped,
         warnings=drops.warnings(spec.weights),
-        reference=reference_point(spec, blocks, values, modes),
+        reference=reference_point(spec, blocks, values, layout.modes),
+        ranges=layout.ranges,
     )
 
 
@@ -686,7 +770,11 @@ def reference_point(
 ) -> dict[str, Any]:
     """Where effects are evaluated: ``at`` values, else sample means (modes for categories; the
     first in sorted order on ties). ``modes`` may give the modes already counted."""
-    return {block.spec.column: reference_value(spec, block, values[block.spec.column], modes) for block in blocks}
+    means = engine.each_column(
+        [functools.partial(reference_value, spec, block, values[block.spec.column], modes) for block in blocks],
+        max((len(np.atleast_1d(v)) for v in values.values()), default=0),
+    )
+    return {block.spec.column: mean for block, mean in zip(blocks, means, strict=True)}
 
 
 def reference_value(spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[str, str] | None = None) -> Any:
@@ -753,4 +841,8 @@ def rescaled_design(
     values[column] = x
     reference = dict(design.reference)
     reference[column] = reference_value(spec, changed, x)
-    return replace(design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference)
+    ranges = dict(design.ranges)
+    ranges[column] = _value_range(x)
+    return replace(
+        design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference, ranges=ranges
+    )

@@ -57,6 +57,10 @@ class Transform:
     menu_word: ClassVar[str] = "level (as is)"
     # Whether a regressor's coefficient reads per 1 % higher x (the log-like readings).
     reads_per_percent: ClassVar[bool] = False
+    # The numpy ufunc that computes ``forward``, where one does: the design column is then
+    # written in place (``write_basis``) instead of through a temporary (at a million rows the
+    # temporary and its copy cost as much as the logarithm).
+    ufunc: ClassVar[np.ufunc | None] = None
 
     # --- words -------------------------------------------------------------------------
     @property
@@ -113,6 +117,16 @@ class Transform:
         """d basis / dx, shape (n, width)."""
         return self.derivative(x).reshape(-1, 1)
 
+    def write_basis(self, x: np.ndarray, out: np.ndarray) -> None:
+        """``basis(x)`` written into ``out`` (n x width, the regressor's columns of a design)."""
+        if self.ufunc is not None and out.shape[1] == 1:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                self.ufunc(x, out=out[:, 0])
+        elif type(self).basis is Transform.basis and type(self).forward is Transform.forward:
+            np.copyto(out[:, 0], x)  # the identity
+        else:
+            out[...] = self.basis(x)
+
     def powers(self) -> list[int | None]:
         return [None]
 
@@ -128,6 +142,7 @@ class Log(Transform):
     relative_change: ClassVar[bool] = True
     menu_code: ClassVar[str | None] = "log"
     menu_word: ClassVar[str] = "log"
+    ufunc: ClassVar[np.ufunc | None] = np.log
     reads_per_percent: ClassVar[bool] = True
 
     def label(self, column: str) -> str:
@@ -169,6 +184,7 @@ class IHS(Transform):
     relative_change: ClassVar[bool] = True
     menu_code: ClassVar[str | None] = "ihs"
     menu_word: ClassVar[str] = "IHS (asinh)"
+    ufunc: ClassVar[np.ufunc | None] = np.arcsinh
     reads_per_percent: ClassVar[bool] = True
 
     def label(self, column: str) -> str:
@@ -241,6 +257,7 @@ class Sqrt(Transform):
     relative_change: ClassVar[bool] = True
     menu_code: ClassVar[str | None] = "sqrt"
     menu_word: ClassVar[str] = "square root"
+    ufunc: ClassVar[np.ufunc | None] = np.sqrt
 
     def label(self, column: str) -> str:
         return f"square root of {column}"
