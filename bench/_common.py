@@ -140,16 +140,26 @@ class Timing:
         return statistics.median(self.cpu)
 
 
+# Untimed pause before each timed call. After a call that ran BLAS on several threads, OpenBLAS's
+# idle threads keep busy-waiting for more work for a while and hold a core: measured on the
+# two-core machine, a core refit straight after the numpy floor took 95 ms, 78 ms after a 0.3 s
+# pause, 72 ms after another core refit. A user's edit never follows a threaded BLAS call that
+# closely, so each timed call starts on a settled machine, whichever job ran before it.
+SETTLE_S = 0.3
+
+
 def round_robin(jobs: dict[str, tuple[str, Callable[[], object]]], repeats: int) -> dict[str, Timing]:
     """Time every job ``repeats`` times, interleaved (a, b, c, a, b, c, ...), after one untimed
-    warm-up call of each. Interleaving spreads any drift in the machine's load over all jobs
-    alike, so ratios measured in one run stay fair. Wall time (perf_counter) and this process's
-    CPU time (process_time, all threads) are both kept; the last result of each job too."""
+    warm-up call of each and a pause of ``SETTLE_S`` before each timed call. Interleaving spreads
+    any drift in the machine's load over all jobs alike, so ratios measured in one run stay fair.
+    Wall time (perf_counter) and this process's CPU time (process_time, all threads) are both
+    kept; the last result of each job too."""
     out = {key: Timing(label) for key, (label, _) in jobs.items()}
     for key, (_, fn) in jobs.items():
         out[key].result = fn()
     for _ in range(repeats):
         for key, (_, fn) in jobs.items():
+            time.sleep(SETTLE_S)
             wall, cpu = time.perf_counter(), time.process_time()
             out[key].result = fn()
             out[key].wall.append(time.perf_counter() - wall)

@@ -4,8 +4,9 @@
     .venv/bin/python bench/refit.py --rows 200000 --repeats 3 --no-profile --workload logs
 
 Two workloads (bench/_common.py, seeded invented data), each timed in this one process on the
-same DataFrame, interleaved round-robin after one untimed warm-up call of each, median of
---repeats calls (wall and CPU time):
+same DataFrame, interleaved round-robin after one untimed warm-up call of each, each timed call
+after an untimed pause (bench/_common.py SETTLE_S: BLAS threads left busy-waiting by the job before
+must not be billed to the next), median of --repeats calls (wall and CPU time):
 
   bench   4 log, 1 ihs (with zeros), 4 level regressors and a text category with 4 levels; log
           outcome; 13 coefficients
@@ -64,6 +65,7 @@ from _common import (
     LOG_COLUMNS,
     OUTCOME,
     ROOT,
+    SETTLE_S,
     Timing,
     load_line,
     machine_line,
@@ -378,8 +380,8 @@ def main() -> None:
     print(machine_line())
     print(f"at start: {load_line()}")
     print(
-        f"timing: {args.repeats} timed calls of each, interleaved round-robin after 1 warm-up call of each; "
-        "median wall time (perf_counter) and median CPU time of this process (process_time, all threads)"
+        f"timing: {args.repeats} timed calls of each, interleaved round-robin after 1 warm-up call of each, "
+        f"a {SETTLE_S} s pause before each; median wall time (perf_counter) and median CPU time of this process (process_time, all threads)"
     )
     workloads = []
     if args.workload in ("bench", "both"):

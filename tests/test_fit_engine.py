@@ -249,3 +249,29 @@ def test_weighted_ill_conditioned_fit_matches_exact_arithmetic():
     exact = np.array([float(system[i][k] / system[i][i]) for i in range(k)])
     # Measured 1.2e-15 (numpy.linalg.lstsq on the sqrt(w)-scaled rows: 3e-11).
     assert np.max(np.abs(fit.coef - exact) / np.abs(exact)) < 1e-13
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_the_meat_summed_in_the_residual_pass_is_the_covariance_s_own(big, weighted):
+    """HC0/HC1: the score Gram the last residual pass sums in the shifted parametrisation and
+    maps back (engine.residual_pass) equals Σ (wᵢeᵢ)² xᵢxᵢ' summed over the raw rows, and the
+    HC1 errors built on it are statsmodels' (reference library)."""
+    X, y = big
+    w = np.random.default_rng(5).uniform(0.5, 2.0, len(y)) if weighted else None
+    fused = fit_ols(X, y, w, score_gram=True)
+    plain = fit_ols(X, y, w)
+    assert plain.score_gram is None and fused.score_gram is not None
+    factor = fused.resid * (w if weighted else 1.0)
+    direct = (X * factor[:, None]).T @ (X * factor[:, None])
+    assert _rel(fused.score_gram, direct) < 1e-11
+    assert np.array_equal(fused.coef, plain.coef) and np.array_equal(fused.resid, plain.resid)
+    ref = (sm.WLS(y, X, weights=w) if weighted else sm.OLS(y, X)).fit(cov_type="HC1")  # statsmodels as reference library
+    n, k = X.shape
+    cov = n / (n - k) * fused.xtx_inv @ fused.score_gram @ fused.xtx_inv
+    assert _rel(np.sqrt(np.diag(cov)), ref.bse) < 1e-10
+
+
+def test_the_residual_pass_writes_the_fitted_values(big):
+    X, y = big
+    fit = fit_ols(X, y)
+    assert np.array_equal(fit.fitted, y - fit.resid)

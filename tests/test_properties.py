@@ -247,3 +247,42 @@ def test_category_switch_is_the_models_own_prediction_change(y_t, seed):
     row = effect(result, "grp")
     assert _close(row["exact"], expected, 1e-8, 1e-10), (row["exact"], expected)
     assert row["ci_low"] <= row["exact"] <= row["ci_high"]
+
+
+_NUMERIC_REGRESSOR_CODES = ["level", "log", "ihs", "shifted_log:1", "sqrt", "quadratic"]
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    code=st.sampled_from(_NUMERIC_REGRESSOR_CODES),
+    kind=st.sampled_from(["units", "percent"]),
+    amount=st.floats(-50.0, 200.0).filter(lambda a: abs(a) > 1e-3),
+    seed=st.integers(0, 10_000),
+)
+def test_a_transform_s_even_step_moves_every_row_alike(code, kind, amount, seed):
+    """Transform.even_step (the effect engine skips the sample average under it) holds: the
+    basis moves by the same amount at every x; and a transform that declares none really moves
+    rows differently (so a wrong declaration either way fails)."""
+    from core.model.spec import Change
+    from core.model.transforms import parse_transform
+
+    transform = parse_transform(code, "regressor", "x")
+    change = Change(text="t", kind=kind, amount=amount)
+    x = np.random.default_rng(seed).lognormal(1.0, 1.0, 200)
+    moved = transform.basis(change.apply(x)) - transform.basis(x)
+    spread = np.max(np.abs(moved - moved[0]))
+    if transform.even_step() == kind:
+        assert spread <= 1e-12 * (1.0 + np.max(np.abs(moved)))
+    else:
+        assert spread > 1e-9 * (1.0 + np.max(np.abs(moved)))
+
+
+def test_the_log_outcome_s_jacobian_read_off_the_outcome_is_the_direct_sum():
+    from core.model.transforms import parse_transform
+
+    y = np.random.default_rng(3).lognormal(2.0, 1.5, 10_000)
+    for code in ("log", "ihs", "sqrt", "shifted_log:1", "level"):
+        g = parse_transform(code, "outcome", "y")
+        direct = float(np.sum(g.log_jacobian(y)))
+        assert rel_err(g.log_jacobian_sum(y, g.forward(y)), direct) < 1e-12
+        assert rel_err(g.log_jacobian_sum(y), direct) < 1e-12

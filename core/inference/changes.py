@@ -59,9 +59,11 @@ def default_change_text(
         return "+10%"
     sample = x[:: max(1, len(x) // _SPREAD_ROWS)]
     with np.errstate(all="ignore"):
-        spread = _typical_spread(sample)
         # Every row is checked only when the sample is all whole numbers (most columns fail on it).
-        whole = bool(len(x)) and bool(np.all(sample == np.round(sample))) and bool(np.all(x == np.round(x)))
+        whole = bool(len(x)) and bool(np.all(sample == np.rint(sample))) and bool(np.all(x == np.rint(x)))
+        if relative and not whole:
+            return "+10%"  # whatever the spread
+        spread = _typical_spread(sample)
     if whole and relative and len(x):
         # On a log-type scale a step reads against the level: at most about a tenth of a typical
         # value, like the +10 % of an amount (100 square feet for houses of 1,800).

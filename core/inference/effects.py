@@ -144,7 +144,7 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
 
             raise SpecError(f"spec.regressors ({column}): '{change.text}' must go between two numbers for a numeric column.")
         x0, x1 = _start_end(change, design.reference[column])
-        out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average))
+        out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average, change))
     return out, warnings
 
 
@@ -155,7 +155,14 @@ def raise_level(column: str, level: str, known: set[str]) -> None:
 
 
 def _one_effect(
-    model: Model, block: Block, x0: Any, x1: Any, text: str, warnings: list[str], with_average: bool = True
+    model: Model,
+    block: Block,
+    x0: Any,
+    x1: Any,
+    text: str,
+    warnings: list[str],
+    with_average: bool = True,
+    change: Change | None = None,
 ) -> dict[str, Any]:
     design = model.design
     column = block.spec.column
@@ -206,7 +213,7 @@ def _one_effect(
         ci_low=float(min(low, high)),
         ci_high=float(max(low, high)),
         adjusted=adjusted,
-        average=_average_effect(model, block, x0, x1, text, exact) if with_average else None,
+        average=_average_effect(model, block, x0, x1, text, exact, change) if with_average else None,
         gap=approximate - exact,
         interval_method=method,
         extrapolated=_outside(design.observed_range(column), x0, x1) if not block.is_category else False,
@@ -273,15 +280,19 @@ def _average_rows(n: int, limit: int) -> np.ndarray:
     return rows
 
 
-def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float) -> float | None:
+def _average_effect(
+    model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float, change: Change | None = None
+) -> float | None:
     """The effect averaged over the sample's rows (each row's own values, the change applied
     to it), where it differs from the effect at the reference point; else None. Large samples
     are averaged over a seeded random sample of rows (see ``_AVERAGE_ROWS``).
 
     For level and log outcomes a row's exact effect depends on that row only through the
     changed regressor's own columns: Δηᵢ = (basis(x1ᵢ) - basis(x0ᵢ))·b_block. A category
-    change or an A->B switch moves every row by the same Δη, so the average equals the effect
-    at the reference point and None is returned without evaluating any row.
+    change, an A->B switch, and a change the transform steps evenly (``Transform.even_step``: +10 %
+    of a log, +1 in levels) move every row by the same Δη, so the average equals the effect at
+    the reference point and None is returned without evaluating any row. ``change`` is the
+    regressor's change when the caller has it (``default_change`` reads the column).
     """
     design = model.design
     column = block.spec.column
@@ -289,10 +300,13 @@ def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_
     switch = block.is_category or text.find("->") >= 0
     if closed_form and switch:
         return None
+    if not switch:
+        change = change or block.spec.change or default_change(block, design.values[column])
+        if closed_form and block.spec.transform.even_step() == change.kind:
+            return None
     n = len(design.y)
     rows = _average_rows(n, _AVERAGE_ROWS_SMEARING if model.kind == "smearing" else _AVERAGE_ROWS)
     if closed_form:
-        change = block.spec.change or default_change(block, design.values[column])
         start = design.values[column][rows].astype(float)
         end = change.apply(start)
         bad, _ = block.spec.transform.invalid(end)
@@ -315,7 +329,6 @@ def _average_effect(model: Model, block: Block, x0: Any, x1: Any, text: str, at_
         start = np.full(m, x0, dtype=object if block.is_category else float)
         end = np.full(m, x1, dtype=object if block.is_category else float)
     else:
-        change = block.spec.change or default_change(block, design.values[column])
         start = base[column].astype(float)
         end = change.apply(start)
         bad, _ = block.spec.transform.invalid(end)

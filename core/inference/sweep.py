@@ -392,7 +392,7 @@ def _exact(setup: _Setup, fit: _Fit) -> None:
     )
     _, ols, model = fit_design(design, spec)
     fit.model = model
-    fit.measures = fit_on_original_scale(model, design.y_raw, ols.fitted, ols.loglik, ols.k)
+    fit.measures = fit_on_original_scale(model, design.y_raw, ols.fitted, ols.loglik, ols.k, design.y)
     arrays, eta0 = _focus_arrays(setup, model)
     interval = None if arrays is None else exact_interval(model, arrays, float(arrays.exact[0]))
     fit.effect = _effect(model, arrays, interval, eta0)

@@ -84,6 +84,12 @@ class CovarianceKind:
         """V and the degrees of freedom for t intervals."""
         raise NotImplementedError
 
+    @property
+    def reads_score_gram(self) -> bool:
+        """Whether the meat is the score Gram Σ (rᵢuᵢ)² xᵢxᵢ' alone, which the fit's last
+        residual pass can sum while it has each block in cache (``Rows.score_gram``)."""
+        return False
+
 
 @dataclass(frozen=True)
 class Rows:
@@ -101,6 +107,8 @@ class Rows:
     time: np.ndarray | None = None
     lags: int | None = None
     notes: dict = field(default_factory=dict)
+    # Σ (rᵢuᵢ)² XᵢXᵢ' when the fit summed it already (see CovarianceKind.reads_score_gram).
+    score_gram: np.ndarray | None = None
 
     @property
     def factor(self) -> np.ndarray:
@@ -121,8 +129,15 @@ class HeteroskedasticityRobust(CovarianceKind):
     power: float = 0.0
     small_sample: bool = False
 
+    @property
+    def reads_score_gram(self) -> bool:
+        return not self.power
+
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
         n, k = rows.X.shape
+        correction = n / (n - k) if self.small_sample else 1.0
+        if not self.power and rows.score_gram is not None:
+            return correction * (rows.bread @ rows.score_gram @ rows.bread), n - k
         factor = rows.factor
         if self.power:
             weights = None if rows.row_scale is None else rows.row_scale * rows.row_scale
@@ -135,7 +150,6 @@ class HeteroskedasticityRobust(CovarianceKind):
                 )
             factor = factor / (1.0 - h) ** (self.power / 2.0)
         meat = engine.scaled_cross_products(rows.X, factor)
-        correction = n / (n - k) if self.small_sample else 1.0
         return correction * (rows.bread @ meat @ rows.bread), n - k
 
 
@@ -325,7 +339,7 @@ def covariance(
     ``time``, ``lags`` and ``notes`` as in ``Rows``."""
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid if root_w is None else fit.resid * root_w
-    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, row_scale=root_w, time=time, lags=lags, notes=notes)
+    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, root_w, time, lags, notes, score_gram=fit.score_gram)
 
 
 def sandwich(
@@ -339,13 +353,14 @@ def sandwich(
     time: np.ndarray | None = None,
     lags: int | None = None,
     notes: dict | None = None,
+    score_gram: np.ndarray | None = None,
 ) -> tuple[np.ndarray, int]:
     """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
-    ``scale`` is s² for the classical type; ``time``, ``lags`` and ``notes`` as in ``Rows``."""
+    ``scale`` is s² for the classical type; ``time``, ``lags``, ``notes`` and ``score_gram`` as in ``Rows``."""
     found = COVARIANCE_KINDS.get(kind)
     if found is None:
         raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
-    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale, time, lags, {} if notes is None else notes))
+    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale, time, lags, {} if notes is None else notes, score_gram))
 
 
 def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

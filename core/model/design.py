@@ -339,6 +339,14 @@ def _numbers_and_finite(series: pd.Series, column: str) -> Numbers:
     return Numbers(values, finite, low, high)
 
 
+@functools.lru_cache(maxsize=4)
+def _every_row(n: int) -> np.ndarray:
+    """0, 1, ..., n-1, read-only and kept: the rows of a design that dropped none (most refits)."""
+    rows = np.arange(n)
+    rows.flags.writeable = False
+    return rows
+
+
 def _value_range(x: np.ndarray) -> tuple[float, float]:
     if len(x) == 0:
         return math.nan, math.nan
@@ -468,7 +476,9 @@ def _drop_outside_domains(spec: ModelSpec, found: _Columns, drops: _Drops, cache
         weights = found.numbers[spec.weights]
         if not (weights.all_finite and weights.low > 0):
             positive = weights.values > 0
-            drops.drop(~positive if weights.all_finite else weights.finite & ~positive, spec.weights, "weights must be above zero")
+            drops.drop(
+                ~positive if weights.all_finite else weights.finite & ~positive, spec.weights, "weights must be above zero"
+            )
 
 
 def _category_block(
@@ -584,9 +594,9 @@ def build_design(
         drops.keep &= within
     raw = found.raw
 
-    rows = np.flatnonzero(drops.keep)
-    n = len(rows)
+    n = int(np.count_nonzero(drops.keep))
     every_row = n == n_total
+    rows = _every_row(n_total) if every_row else np.flatnonzero(drops.keep)
 
     def used(array: np.ndarray) -> np.ndarray:
         """The used rows of a column; with no row dropped the column itself, read-only (it may
@@ -843,6 +853,4 @@ def rescaled_design(
     reference[column] = reference_value(spec, changed, x)
     ranges = dict(design.ranges)
     ranges[column] = _value_range(x)
-    return replace(
-        design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference, ranges=ranges
-    )
+    return replace(design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference, ranges=ranges)

@@ -291,62 +291,103 @@ def _square(r: np.ndarray, size: int) -> np.ndarray:
     return out
 
 
+@dataclass
+class ResidualPass:
+    """What one residual pass gives: Z'We and Σwe² (see ``residual_pass``), and, when asked
+    for, the score Gram Σ (wᵢeᵢ)² xᵢxᵢ' of the original design (the meat of HC0/HC1)."""
+
+    grad: np.ndarray
+    ssr: float
+    score_gram: np.ndarray | None = None
+
+
 def residual_pass(
-    shift: Shift, gamma: np.ndarray, beta: np.ndarray, resid: np.ndarray, extended: bool
-) -> tuple[np.ndarray, float]:
-    """Residuals into ``resid`` (unweighted, y - Xβ), and (Z'We, Σwe²).
+    shift: Shift,
+    gamma: np.ndarray,
+    beta: np.ndarray,
+    resid: np.ndarray,
+    extended: bool,
+    fitted: np.ndarray | None = None,
+    scores: bool = False,
+) -> ResidualPass:
+    """Residuals into ``resid`` (unweighted, y - Xβ), the fitted values y - e into ``fitted``
+    when given, and (Z'We, Σwe²); with ``scores`` also the score Gram.
 
     ``gamma`` are the coefficients in the shifted parametrisation (y - c_y ≈ Zγ, Z = [1, X₂ - c])
     and ``beta`` the same in the original one; the residuals come from γ in working precision, or
-    from β in extended precision when ``extended``.
+    from β in extended precision when ``extended`` (no score Gram then: the caller's covariance
+    makes its own pass). The score Gram is summed in the shifted parametrisation while each
+    block is in cache, S = Σ (wᵢeᵢ)² zᵢzᵢ', and mapped back exactly: x = M'z with
+    M = [[1, c₂'], [0, I]], so Σ (wᵢeᵢ)² xᵢxᵢ' = M'SM. That spares the covariance a pass of its
+    own over X.
     """
     X, y, k = shift.X, shift.y, shift.k
     weights = shift.w
     beta_ext = beta.astype(np.longdouble)
     slope = np.ascontiguousarray(gamma[1:])
     offset = shift.c_y + float(gamma[0])
+    scores = scores and not extended
 
     def buffer() -> np.ndarray:
-        return np.empty((min(BLOCK_ROWS, shift.n), k - 1), order="F")
+        # Z's slope columns, then (with scores) a block of k columns for the scores [1, z]·we.
+        return np.empty((min(BLOCK_ROWS, shift.n), 2 * k - 1 if scores else k - 1), order="F")
 
-    def one(z: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, float]:
-        zc = z[: stop - start]
+    def one(z: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, float, np.ndarray | None]:
+        rows = stop - start
+        zc = z[:rows, : k - 1]
         e = resid[start:stop]
         if extended:
             # y - Xβ and X'We with a 64-bit significand: both are small differences of large
             # terms near the solution, and working precision would bound the refinement at
             # the κ²u·|e| level of a QR solution.
-            rows = X[start:stop].astype(np.longdouble)
-            e_ext = y[start:stop] - rows @ beta_ext
+            x_ext = X[start:stop].astype(np.longdouble)
+            e_ext = y[start:stop] - x_ext @ beta_ext
             we_ext = e_ext if weights is None else weights[start:stop] * e_ext
             e[:] = e_ext
-            return rows.T @ we_ext, float(e_ext @ we_ext)
+            if fitted is not None:
+                np.subtract(y[start:stop], e, out=fitted[start:stop])
+            return x_ext.T @ we_ext, float(e_ext @ we_ext), None
         np.subtract(X[start:stop, 1:], shift.c[1:], out=zc)
         np.subtract(y[start:stop], offset, out=e)
         e -= np.dot(zc, slope)
+        if fitted is not None:
+            np.subtract(y[start:stop], e, out=fitted[start:stop])
         we = e if weights is None else weights[start:stop] * e
         grad = np.empty(k)
         grad[0] = we.sum()
         grad[1:] = np.dot(zc.T, we)
-        return grad, float(np.dot(e, we))
+        gram = None
+        if scores:
+            s = z[:rows, k - 1 :]
+            s[:, 0] = we
+            np.multiply(zc, we[:, None], out=s[:, 1:])
+            gram = np.dot(s.T, s)  # BLAS syrk, as in gram_pass
+        return grad, float(np.dot(e, we)), gram
 
     parts = _run(shift.n, buffer, one)
     ssr = 0.0
     if extended:
         total = np.zeros(k, dtype=np.longdouble)
-        for g, s in parts:
+        for g, s, _ in parts:
             total += g
             ssr += s
         # X'We to Z'We = T⁻ᵀX'We: (Z'We)₂ = (X'We)₂ - c·(X'We)₀, still in extended precision.
         grad = np.empty(k)
         grad[0] = total[0]
         grad[1:] = total[1:] - shift.c[1:].astype(np.longdouble) * total[0]
-        return grad, ssr
+        return ResidualPass(grad, ssr)
     grad = np.zeros(k)
-    for g, s in parts:
+    shifted_scores = np.zeros((k, k)) if scores else None
+    for g, s, gram in parts:
         grad += g
         ssr += s
-    return grad, ssr
+        if shifted_scores is not None:
+            shifted_scores += gram
+    if shifted_scores is None:
+        return ResidualPass(grad, ssr)
+    back = np.eye(k)
+    back[0, 1:] = shift.c[1:]
+    return ResidualPass(grad, ssr, back.T @ shifted_scores @ back)
 
 
 def scaled_cross_products(X: np.ndarray, factor: np.ndarray) -> np.ndarray:

@@ -104,6 +104,8 @@ class OLSFit:
     refinements: int = 0
     # Warnings about the numerics of this fit, for the user (analysis words the collinearity one).
     warnings: list[str] = field(default_factory=list)
+    # Σ (wᵢeᵢ)² xᵢxᵢ' (the HC0/HC1 meat), formed in the last residual pass when asked for.
+    score_gram: np.ndarray | None = None
 
     @property
     def df_resid(self) -> int:
@@ -115,17 +117,25 @@ def row_chunks(n: int, size: int | None = None) -> range:
     return range(0, n, size or CHUNK_ROWS)
 
 
-def fit_ols(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None, names: list[str] | None = None) -> OLSFit:
+def fit_ols(
+    X: np.ndarray,
+    y: np.ndarray,
+    weights: np.ndarray | None = None,
+    names: list[str] | None = None,
+    score_gram: bool = False,
+) -> OLSFit:
     """Least squares of y on X (first column the intercept), optionally weighted (see the module
     docstring for the method). X is read in row blocks and never copied whole; Fortran order
-    suits it best. Raises ``DataError`` naming the columns when the design is rank deficient."""
+    suits it best. Raises ``DataError`` naming the columns when the design is rank deficient.
+    With ``score_gram`` the last residual pass also sums the HC0/HC1 meat (``OLSFit.score_gram``;
+    None on designs refined in extended precision)."""
     # Every BLAS/LAPACK call here is on k x k matrices or inside the passes' own threads: BLAS's
     # threads would only contend with them (engine.single_threaded_blas).
     with engine.single_threaded_blas:
-        return _fit(X, y, weights, names)
+        return _fit(X, y, weights, names, score_gram)
 
 
-def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[str] | None) -> OLSFit:
+def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[str] | None, scores: bool) -> OLSFit:
     n, k = X.shape
     shift = engine.shift_for(X, y, weights)
     gram = engine.gram_pass(shift)
@@ -152,12 +162,14 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
     lengths = np.sqrt(np.einsum("ij,ij->j", R, R))
     y_length = float(np.sqrt(max(gram[k, k] + 2 * shift.c_y * gram[0, k] + shift.c_y**2 * gram[0, 0], 0.0)))
     resid = np.empty(n)
+    fitted = np.empty(n)
     # Extended-precision residuals only where they pay: on designs flagged as nearly collinear.
     extended = solver != "normal equations" and kappa > EXTENDED_REFINEMENT
     refinements = 0
     previous = np.inf
     while True:
-        grad, ssr = engine.residual_pass(shift, gamma, beta, resid, extended)
+        residuals = engine.residual_pass(shift, gamma, beta, resid, extended, fitted, scores)
+        grad, ssr = residuals.grad, residuals.ssr
         step = sla.cho_solve((R, False), grad, check_finite=False)
         size = float(np.linalg.norm(lengths * step))
         scale = float(np.linalg.norm(lengths * gamma)) + y_length
@@ -182,7 +194,6 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
     xtx_inv = m.T @ m
     _check_range(gram, xtx_inv, shift, names)
 
-    fitted = y - resid
     sst = float(q[1:] @ q[1:]) + rho * rho
     r2 = 1.0 - ssr / sst if sst > 0 else float("nan")
     adj_r2 = 1.0 - (n - 1) / (n - k) * (1.0 - r2)
@@ -213,6 +224,7 @@ def _fit(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None, names: list[s
         solver=solver,
         refinements=refinements,
         warnings=notes,
+        score_gram=residuals.score_gram,
     )
 
 

@@ -99,6 +99,10 @@ class Transform:
         """ln|g'(y)| per observation (Box & Cox 1964, eq. 7)."""
         return np.log(np.abs(self.derivative(y)))
 
+    def log_jacobian_sum(self, y: np.ndarray, transformed: np.ndarray | None = None) -> float:
+        """Σ ln|g'(yᵢ)|; ``transformed`` is g(y) when the caller has it (a log reads the sum off it)."""
+        return float(np.sum(self.log_jacobian(y)))
+
     # --- domain ------------------------------------------------------------------------
     def invalid(self, x: np.ndarray) -> tuple[np.ndarray, str]:
         """Rows this transform cannot take, and the reason in plain words."""
@@ -122,10 +126,19 @@ class Transform:
         if self.ufunc is not None and out.shape[1] == 1:
             with np.errstate(divide="ignore", invalid="ignore"):
                 self.ufunc(x, out=out[:, 0])
-        elif type(self).basis is Transform.basis and type(self).forward is Transform.forward:
-            np.copyto(out[:, 0], x)  # the identity
+        elif self._is_identity():
+            np.copyto(out[:, 0], x)
         else:
             out[...] = self.basis(x)
+
+    def even_step(self) -> str | None:
+        """The kind of change ('units', 'percent'; see ``core.model.spec.Change``) that moves the
+        basis by the same amount at every x, or None: x + a in levels, and x·(1 + p) on a log,
+        where log(x·(1 + p)) - log(x) = log(1 + p). Under it every row's effect is the same."""
+        return "units" if self._is_identity() else None
+
+    def _is_identity(self) -> bool:
+        return type(self).basis is Transform.basis and type(self).forward is Transform.forward
 
     def powers(self) -> list[int | None]:
         return [None]
@@ -166,11 +179,18 @@ class Log(Transform):
         with np.errstate(divide="ignore", invalid="ignore"):
             return -np.log(np.asarray(y, dtype=float))
 
+    def log_jacobian_sum(self, y: np.ndarray, transformed: np.ndarray | None = None) -> float:
+        # Σ ln|1/yᵢ| = -Σ log yᵢ, which the model's outcome already holds.
+        return -float(np.sum(transformed)) if transformed is not None else float(np.sum(self.log_jacobian(y)))
+
     def inverse_derivative(self, z):
         return np.exp(np.asarray(z, dtype=float))
 
     def invalid(self, x):
         return ~(np.asarray(x, dtype=float) > 0), "log needs values above zero"
+
+    def even_step(self) -> str | None:
+        return "percent"
 
     @property
     def is_log_like(self) -> bool:
