@@ -76,17 +76,25 @@ def fit_on_original_scale(
     n = len(y_raw)
     with np.errstate(all="ignore"):
         if model.kind == "log":
-            # Three independent million-row jobs, on the row passes' threads.
-            naive_rows, smear_factor, centred = engine.each_column(
-                [lambda: np.exp(fitted), lambda: float(np.mean(np.exp(model.resid))), lambda: _centred(y_raw)], n
+            # Every million-row reduction as one of five independent jobs on the row passes' threads.
+            naive_rows, smear_factor, centred, jacobian, squares = engine.each_column(
+                [
+                    lambda: _centred(np.exp(fitted), own=True),
+                    lambda: float(np.mean(np.exp(model.resid))),
+                    lambda: _centred(y_raw),
+                    lambda: model.outcome.log_jacobian_sum(y_raw, y),
+                    lambda: float(np.dot(model.resid, model.resid)),
+                ],
+                n,
             )
-            naive = float(np.mean(naive_rows))
-            r2 = _squared_correlation(centred, naive_rows, naive)
+            r2 = _squared_correlation(centred, naive_rows)
         else:
             smeared = smear_rows(model, fitted)
             smeared_mean = float(smeared.mean())
-            r2 = _squared_correlation(_centred(y_raw), smeared.copy(), smeared_mean)
-        ll = loglik + model.outcome.log_jacobian_sum(y_raw, y)
+            r2 = _squared_correlation(_centred(y_raw), _centred(smeared))
+            jacobian = model.outcome.log_jacobian_sum(y_raw, y)
+            squares = float(np.dot(model.resid, model.resid))
+        ll = loglik + jacobian
     measures = {
         "r2_original_scale": r2,
         "loglik_original_scale": ll,
@@ -95,7 +103,7 @@ def fit_on_original_scale(
     }
     if model.kind == "level":
         return {**measures, "retransform": None}
-    sigma = float(np.sqrt(np.dot(model.resid, model.resid) / (n - k)))
+    sigma = float(np.sqrt(squares / (n - k)))
     if model.kind == "log":
         factors = {"smearing": smear_factor, "normal": float(np.exp(0.5 * sigma**2))}
     else:
@@ -108,22 +116,23 @@ def fit_on_original_scale(
     return {**measures, "retransform": factors}
 
 
-def _centred(a: np.ndarray) -> tuple[np.ndarray, float]:
-    """a - mean(a), and its sum of squares."""
-    centred = a - a.mean()
-    return centred, float(np.dot(centred, centred))
+def _centred(a: np.ndarray, own: bool = False) -> tuple[np.ndarray, float]:
+    """``a`` centred at its mean (in place when it is the caller's ``own`` array, else a new
+    one), and its sum of squares."""
+    if own:
+        a -= a.mean()
+    else:
+        a = a - a.mean()
+    return a, float(np.dot(a, a))
 
 
-def _squared_correlation(a: tuple[np.ndarray, float], b: np.ndarray, b_mean: float) -> float:
-    """corr(a, b)² as numpy.corrcoef gives it, without stacking copies of the two columns; ``a``
-    comes centred with its sum of squares (``_centred``), ``b`` (the caller's own array) is
-    centred here, in place."""
-    centred, a_squares = a
-    b -= b_mean
-    spread = float(np.dot(b, b))
-    if not spread > 0:
+def _squared_correlation(a: tuple[np.ndarray, float], b: tuple[np.ndarray, float]) -> float:
+    """corr(a, b)² as numpy.corrcoef gives it, for two columns centred by ``_centred``, without
+    stacking copies of them."""
+    (a, a_squares), (b, b_squares) = a, b
+    if not b_squares > 0:
         return float("nan")
-    return float(np.clip(float(np.dot(centred, b)) / np.sqrt(a_squares) / np.sqrt(spread), -1.0, 1.0) ** 2)
+    return float(np.clip(float(np.dot(a, b)) / np.sqrt(a_squares) / np.sqrt(b_squares), -1.0, 1.0) ** 2)
 
 
 def _orthonormal_basis(X: np.ndarray, root: np.ndarray | None) -> np.ndarray:

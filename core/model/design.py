@@ -105,11 +105,24 @@ class Encoder:
         has), so the dummies come from integer comparisons instead of string ones. ``bases``
         may give, per numeric column, its design columns for these n rows already computed.
         """
+        return self.encode_beside(values, n, codes, bases)[0]
+
+    def encode_beside(
+        self,
+        values: dict[str, Any],
+        n: int,
+        codes: dict[str, Coded] | None = None,
+        bases: dict[str, np.ndarray] | None = None,
+        beside: Callable[[], Any] | None = None,
+    ) -> tuple[np.ndarray, Any]:
+        """``encode``, with one more job (``beside``, such as the outcome's transform) run on the
+        same threads as the blocks; X and that job's result (None without one)."""
         X = np.empty((n, self.width), order="F")
         X[:, 0] = 1.0
         # Blocks write disjoint columns, so long ones are written on the passes' threads.
-        engine.each_column([functools.partial(self.fill, X, block, values, codes, bases) for block in self.blocks], n)
-        return X
+        jobs = [functools.partial(self.fill, X, block, values, codes, bases) for block in self.blocks]
+        done = engine.each_column([*jobs, beside or (lambda: None)], n)
+        return X, done[-1]
 
     def fill(
         self,
@@ -624,20 +637,19 @@ def build_design(
     check_budget(blocks, n, width)
     encoder = Encoder(blocks, width)
     bases = None if columns is None else _cached_bases(blocks, raw, cached, None if every_row else rows)
-    X = encoder.encode(values, n, layout.codes, bases)
+    y_transform = spec.outcome_transform
     y_raw = used(raw[outcome])
+    if columns is not None:
+        X = encoder.encode(values, n, layout.codes, bases)
+        y = used(cached(("forward", outcome, y_transform), lambda: _forward_all_rows(y_transform, raw[outcome])))
+    else:
+        X, y = encoder.encode_beside(values, n, layout.codes, bases, functools.partial(_forward_all_rows, y_transform, y_raw))
     y_low, y_high = (found.numbers[outcome].low, found.numbers[outcome].high) if every_row else _value_range(y_raw)
     if y_high == y_low:
         raise DataError(
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
             "there is nothing to explain. Pick another outcome."
         )
-    y_transform = spec.outcome_transform
-    if columns is not None:
-        y = used(cached(("forward", outcome, y_transform), lambda: _forward_all_rows(y_transform, raw[outcome])))
-    else:
-        with np.errstate(all="ignore"):
-            y = y_transform.forward(y_raw)
     return Design(
         y=y,
         y_raw=y_raw,
