@@ -59,8 +59,15 @@ def default_change_text(
         return "+10%"
     sample = x[:: max(1, len(x) // _SPREAD_ROWS)]
     with np.errstate(all="ignore"):
-        # Every row is checked only when the sample is all whole numbers (most columns fail on it).
-        whole = bool(len(x)) and bool(np.all(sample == np.rint(sample))) and bool(np.all(x == np.rint(x)))
+        # The first rows (contiguous, so cheap), then the sample, then every row, each only when
+        # the one before is all whole numbers (most columns fail on their first rows).
+        head = x[:256]
+        whole = (
+            bool(len(x))
+            and bool(np.all(head == np.rint(head)))
+            and bool(np.all(sample == np.rint(sample)))
+            and bool(np.all(x == np.rint(x)))
+        )
         if relative and not whole:
             return "+10%"  # whatever the spread
         spread = _typical_spread(sample)

@@ -335,6 +335,9 @@ class Numbers:
     finite: np.ndarray | None
     low: float
     high: float
+    # numpy.mean over every row when every value is finite (taken while the column is fresh in
+    # cache after its range; a reference point over every row reads it), else NaN.
+    mean: float = math.nan
 
     @property
     def all_finite(self) -> bool:
@@ -345,7 +348,7 @@ def _numbers_and_finite(series: pd.Series, column: str) -> Numbers:
     values = _numeric(series, column)
     low, high = _value_range(values)
     if math.isfinite(low) and math.isfinite(high):
-        return Numbers(values, None, low, high)
+        return Numbers(values, None, low, high, float(np.mean(values)))
     finite = np.isfinite(values)
     kept = values[finite]
     low, high = _value_range(kept) if len(kept) else (math.nan, math.nan)
@@ -665,7 +668,9 @@ def build_design(
         n_total=n_total,
         dropped=drops.dropped,
         warnings=drops.warnings(spec.weights),
-        reference=reference_point(spec, blocks, values, layout.modes),
+        reference=reference_point(
+            spec, blocks, values, layout.modes, {c: found.numbers[c].mean for c in numeric} if every_row else None
+        ),
         ranges=layout.ranges,
     )
 
@@ -788,18 +793,29 @@ def _level_order(level: str) -> tuple[int, float, str]:
 
 
 def reference_point(
-    spec: ModelSpec, blocks: list[Block], values: dict[str, np.ndarray], modes: dict[str, str] | None = None
+    spec: ModelSpec,
+    blocks: list[Block],
+    values: dict[str, np.ndarray],
+    modes: dict[str, str] | None = None,
+    means: dict[str, float] | None = None,
 ) -> dict[str, Any]:
     """Where effects are evaluated: ``at`` values, else sample means (modes for categories; the
-    first in sorted order on ties). ``modes`` may give the modes already counted."""
-    means = engine.each_column(
-        [functools.partial(reference_value, spec, block, values[block.spec.column], modes) for block in blocks],
+    first in sorted order on ties). ``modes`` and ``means`` may give the modes already counted and
+    the means (numpy.mean of the same values) already taken."""
+    means = means or {}
+    found = engine.each_column(
+        [
+            functools.partial(reference_value, spec, block, values[block.spec.column], modes, means.get(block.spec.column))
+            for block in blocks
+        ],
         max((len(np.atleast_1d(v)) for v in values.values()), default=0),
     )
-    return {block.spec.column: mean for block, mean in zip(blocks, means, strict=True)}
+    return {block.spec.column: value for block, value in zip(blocks, found, strict=True)}
 
 
-def reference_value(spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[str, str] | None = None) -> Any:
+def reference_value(
+    spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[str, str] | None = None, mean: float | None = None
+) -> Any:
     """The reference point's value for one regressor (see ``reference_point``); x its values."""
     column = block.spec.column
     if column in spec.at:
@@ -821,7 +837,7 @@ def reference_value(spec: ModelSpec, block: Block, x: np.ndarray, modes: dict[st
             return modes[column]
         labels, counts = np.unique(np.asarray(x).astype(str), return_counts=True)
         return str(labels[int(np.argmax(counts))])
-    return float(np.mean(x))
+    return mean if mean is not None else float(np.mean(x))
 
 
 def rescaled_design(
