@@ -803,13 +803,15 @@ def reference_point(
     first in sorted order on ties). ``modes`` and ``means`` may give the modes already counted and
     the means (numpy.mean of the same values) already taken."""
     means = means or {}
-    found = engine.each_column(
-        [
-            functools.partial(reference_value, spec, block, values[block.spec.column], modes, means.get(block.spec.column))
-            for block in blocks
-        ],
-        max((len(np.atleast_1d(v)) for v in values.values()), default=0),
-    )
+    jobs = [
+        functools.partial(reference_value, spec, block, values[block.spec.column], modes, means.get(block.spec.column))
+        for block in blocks
+    ]
+    # Threads only when some value is still to be read off its column (waking them costs more
+    # than looking up means already taken).
+    reads = any(block.is_category or block.spec.column not in means for block in blocks)
+    rows = max((len(np.atleast_1d(v)) for v in values.values()), default=0) if reads else 0
+    found = engine.each_column(jobs, rows)
     return {block.spec.column: value for block, value in zip(blocks, found, strict=True)}
 
 
