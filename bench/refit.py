@@ -51,6 +51,7 @@ import cProfile
 import io
 import pstats
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -227,6 +228,18 @@ def toggled(spec: dict, column: str, transform: str) -> dict:
     return out
 
 
+def toggle(data: pd.DataFrame, spec: dict, column: str, columns: core.ColumnCache | None = None) -> Callable[[], dict]:
+    """A refit that alternates ``column`` between the spec's transform and level at each call."""
+    spec_level = toggled(spec, column, "level")
+    flip = {"state": False}
+
+    def refit() -> dict:
+        flip["state"] = not flip["state"]
+        return core.analyze(data, spec_level if flip["state"] else spec, parts=REFIT_PARTS, columns=columns)
+
+    return refit
+
+
 def agreement(core_result: dict, sm, floor: tuple[np.ndarray, np.ndarray, list[str]]) -> tuple[float, float, float, float]:
     core_est = {statsmodels_name(term): term["estimate"] for term in core_result["terms"]}
     core_se = {statsmodels_name(term): term["std_error"] for term in core_result["terms"]}
@@ -257,23 +270,11 @@ def print_ratios(t: dict[str, Timing], rows: list[tuple[str, str, str, float | N
 
 def run_bench(work: Workload, repeats: int, columns_check: bool) -> dict[str, Timing]:
     data, spec = work.data, work.spec
-    # (a4): what a transform toggle in the app costs: every call is a spec core has not just seen.
-    flip = {"state": False}
-    spec_level = toggled(spec, LOG_COLUMNS[0], "level")
-
-    def toggle_refit():
-        flip["state"] = not flip["state"]
-        return core.analyze(data, spec_level if flip["state"] else spec, parts=REFIT_PARTS)
-
+    # (a4): what a transform toggle in the app costs: every call is a spec core has not just seen;
     # (a5): the same toggle through the app's column cache (both specs' columns stay cached).
     columns = core.ColumnCache()
-    flip_cached = {"state": False}
-
-    def toggle_refit_cached():
-        flip_cached["state"] = not flip_cached["state"]
-        chosen = spec_level if flip_cached["state"] else spec
-        return core.analyze(data, chosen, parts=REFIT_PARTS, columns=columns)
-
+    toggle_refit = toggle(data, spec, LOG_COLUMNS[0])
+    toggle_refit_cached = toggle(data, spec, LOG_COLUMNS[0], columns)
     jobs = {
         "a": ("(a)  core.analyze parts={terms,fit,effects}", lambda: core.analyze(data, spec, parts=REFIT_PARTS)),
         "a1": ("(a1) core.analyze parts={terms}", lambda: core.analyze(data, spec, parts={"terms"})),
@@ -315,15 +316,7 @@ def run_logs(work: Workload, repeats: int) -> dict[str, Timing]:
     data, spec = work.data, work.spec
     # (a5) as on the bench workload: a toggle of the first regressor through the app's column cache.
     first = spec["regressors"][0]["column"]
-    spec_level = toggled(spec, first, "level")
-    columns = core.ColumnCache()
-    flip = {"state": False}
-
-    def toggle_refit_cached():
-        flip["state"] = not flip["state"]
-        chosen = spec_level if flip["state"] else spec
-        return core.analyze(data, chosen, parts=REFIT_PARTS, columns=columns)
-
+    toggle_refit_cached = toggle(data, spec, first, core.ColumnCache())
     jobs = {
         "a": ("(a)  core.analyze parts={terms,fit,effects}", lambda: core.analyze(data, spec, parts=REFIT_PARTS)),
         "a1": ("(a1) core.analyze parts={terms}", lambda: core.analyze(data, spec, parts={"terms"})),
