@@ -355,6 +355,12 @@ def _numbers_and_finite(series: pd.Series, column: str) -> Numbers:
     return Numbers(values, finite, low, high)
 
 
+def _means_taken(found: _Columns, columns: list[str]) -> dict[str, float]:
+    """The means ``Numbers`` took over every row (only finite ones: a column with a missing or
+    infinite cell has none, and its reference value is then taken afresh)."""
+    return {c: found.numbers[c].mean for c in columns if math.isfinite(found.numbers[c].mean)}
+
+
 @functools.lru_cache(maxsize=4)
 def _every_row(n: int) -> np.ndarray:
     """0, 1, ..., n-1, read-only and kept: the rows of a design that dropped none (most refits)."""
@@ -668,9 +674,7 @@ def build_design(
         n_total=n_total,
         dropped=drops.dropped,
         warnings=drops.warnings(spec.weights),
-        reference=reference_point(
-            spec, blocks, values, layout.modes, {c: found.numbers[c].mean for c in numeric} if every_row else None
-        ),
+        reference=reference_point(spec, blocks, values, layout.modes, _means_taken(found, numeric) if every_row else None),
         ranges=layout.ranges,
     )
 

@@ -338,6 +338,10 @@ def residual_pass(
         # Z's slope columns, then (with scores) a block of k columns for the scores [1, z]·we.
         return np.empty((min(BLOCK_ROWS, shift.n), 2 * k - 1 if scores else k - 1), order="F")
 
+    def _write_fitted(start: int, stop: int) -> None:
+        if fitted is not None:
+            np.subtract(y[start:stop], resid[start:stop], out=fitted[start:stop])
+
     def one(z: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, float, np.ndarray | None]:
         rows = stop - start
         zc = z[:rows, : k - 1]
@@ -350,14 +354,12 @@ def residual_pass(
             e_ext = y[start:stop] - x_ext @ beta_ext
             we_ext = e_ext if weights is None else weights[start:stop] * e_ext
             e[:] = e_ext
-            if fitted is not None:
-                np.subtract(y[start:stop], e, out=fitted[start:stop])
+            _write_fitted(start, stop)
             return x_ext.T @ we_ext, float(e_ext @ we_ext), None
         np.subtract(X[start:stop, 1:], shift.c[1:], out=zc)
         np.subtract(y[start:stop], offset, out=e)
         e -= np.dot(zc, slope)
-        if fitted is not None:
-            np.subtract(y[start:stop], e, out=fitted[start:stop])
+        _write_fitted(start, stop)
         we = e if weights is None else weights[start:stop] * e
         grad = np.empty(k)
         grad[0] = we.sum()
