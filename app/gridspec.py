@@ -17,7 +17,7 @@ from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import lookup, menu_codes, menu_word
 from core.output.numbers import compact
 
-GRID_COLUMNS = ["column", "about", "role", "transform", "change", "reference", "unit"]
+GRID_COLUMNS = ["column", "about", "role", "transform", "change", "by", "reference", "unit"]
 
 
 ROLES = ["outcome", "regressor", "not used"]
@@ -75,7 +75,15 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
     rows = []
     for name in first + [c for c in names if c not in first]:
         series = frame[name]
-        row = {"column": name, "about": describe_column(series), "role": "not used", "change": "", "reference": "", "unit": ""}
+        row = {
+            "column": name,
+            "about": describe_column(series),
+            "role": "not used",
+            "change": "",
+            "by": "",
+            "reference": "",
+            "unit": "",
+        }
         advice = entries.get(name) or {}
         if advice.get("kind") in LOCKED_KINDS:
             row["about"] = f"{LOCKED_KINDS[advice['kind']]} · {row['about']}"
@@ -87,6 +95,7 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
                 role="regressor",
                 transform=entry.get("transform", "level"),
                 change=_text(entry.get("change")),
+                by=_text(entry.get("by")),
                 reference=_text(entry.get("reference")),
                 unit=_text(entry.get("unit")),
             )
@@ -187,6 +196,7 @@ def grid_to_spec(
             entry["unit"] = _text(row.get("unit"))
         regressors.append(entry)
     used = {r["column"] for r in regressors}
+    notes += _moderators(grid, regressors, used)
     outcome_entry = {"column": _text(outcome["column"]), "transform": outcome_transform}
     if _text(outcome.get("unit")):
         outcome_entry["unit"] = _text(outcome.get("unit"))
@@ -200,6 +210,26 @@ def grid_to_spec(
         "at": {k: v for k, v in (at or {}).items() if k in used},
     }
     return spec, notes
+
+
+def _moderators(grid: pd.DataFrame, regressors: list[dict[str, Any]], used: set[str]) -> list[str]:
+    """Each regressor's 'varies by' cell into its entry's ``by`` when it names another regressor
+    (a moderator needs its own effect in the model); a note for each one set aside."""
+    by_row = {_text(r["column"]): _text(r.get("by")) for r in grid.to_dict("records")}
+    notes = []
+    for entry in regressors:
+        by = by_row.get(entry["column"], "")
+        if not by:
+            continue
+        if by in used and by != entry["column"]:
+            entry["by"] = by
+        else:
+            why = "itself" if by == entry["column"] else f"'{by}', which is not a regressor now"
+            notes.append(
+                f"The effect of '{entry['column']}' is set to vary by {why}; that is set aside until "
+                f"{'another regressor is named' if by == entry['column'] else f'{by} is a regressor too'}."
+            )
+    return notes
 
 
 def with_time_and_scenarios(

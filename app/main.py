@@ -214,6 +214,13 @@ def variables_grid() -> pd.DataFrame:
                 help="The outcome takes level, log, IHS, log(x + 1) or square root.",
             ),
             "change": st.column_config.TextColumn("Change", width=95, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
+            "by": st.column_config.SelectboxColumn(
+                "Varies by",
+                options=["", *ss[keys.GRID_BASE]["column"].map(str)],
+                width=110,
+                help="Another regressor the effect of this one may depend on: the model adds their products, and "
+                "the effect is given for each level of a category (or at the quartiles of a number).",
+            ),
             "reference": st.column_config.TextColumn(
                 "Reference", width=95, help="For categories: the reference level, the one the others are compared with."
             ),

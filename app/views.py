@@ -106,8 +106,16 @@ def effects_view(ctx: Context) -> None:
         "“Small-sample adjusted” applies to 0/1 and category effects in log models; “Average over rows” "
         "applies the change to every row and averages, where that differs from the effect at the reference."
         + (" The model is fitted by PPML, so effects read as % changes in the mean of the outcome." if ctx.ppml else "")
+        + (
+            " A regressor whose effect varies by another has a row per value of that one (“Read at”: every level, "
+            "or the quartiles of a number), the moderator held there."
+            if any(e.get("group") for e in result.get("effects") or [])
+            else ""
+        )
     )
     st.table(tables.styled(table, display.extrapolated_rows(result)), hide_index=True)
+    for line in core_tables.slope_test_lines(result, spec):
+        st.markdown(plain(line))
     exports.table_downloads(core_tables.effects_table(result, spec), "effects", "effects")
     point = result.get("reference_point") or {}
     if point:
@@ -171,10 +179,11 @@ def approximation_view(ctx: Context) -> None:
             "range of change sizes to compare. Their exact and approximate effects are in the effects table."
         )
         return
-    names = [c["column"] for c in curves]
+    names = list(dict.fromkeys(c["column"] for c in curves))
     left, right = st.columns([2, 3])
     with left:
         pick = regressor_pick(ctx, names, "gap_pick")
+        curve = group_pick([c for c in curves if c["column"] == pick], "gap_group")
     with right:
         tolerance = st.slider(
             "Tolerance: largest acceptable relative error (%)",
@@ -184,12 +193,12 @@ def approximation_view(ctx: Context) -> None:
             key=keys.GAP_TOLERANCE,
             help="Marks the change sizes where |approximation − exact| / |exact| exceeds this share.",
         )
-    curve = curves[names.index(pick)]
     outcome = result["outcome"]
     figure = charts.gap_figure(
         curve,
         tolerance,
-        regressor_label=variable_label(pick, ctx.transforms.get(pick)),
+        regressor_label=variable_label(pick, ctx.transforms.get(pick))
+        + (f" at {display.group_text(curve['group'])}" if curve.get("group") else ""),
         outcome_label=variable_label(outcome["column"], outcome["transform"], "outcome"),
         outcome_column=outcome["column"],
         units=units_of(ctx.result, ctx.spec),
@@ -207,11 +216,15 @@ def curves_view(ctx: Context) -> None:
         st.info("Add a regressor to see how the predicted outcome moves with it.")
         return
     transforms = ctx.transforms
-    names = [c["column"] for c in curves]
+    names = list(dict.fromkeys(c["column"] for c in curves))
     left, right = st.columns([2, 3])
     with left:
         pick = regressor_pick(ctx, names, "curve_pick")
-    curve = curves[names.index(pick)]
+    picked = [c for c in curves if c["column"] == pick]
+    if picked[0].get("group"):
+        group_curves_view(ctx, picked)
+        return
+    curve = picked[0]
     current = transforms.get(pick, "level")
     overlay, overlay_label = None, None
     with right:
@@ -268,3 +281,41 @@ def curves_view(ctx: Context) -> None:
     elif not ctx.ppml and ctx.result["outcome"]["transform"] == "level":
         notes.append(f"{ctx.outcome} is modelled in levels, so no back-transform is needed.")
     st.caption(plain(" ".join(notes)))
+
+
+def group_pick(curves: list[dict], key: str) -> dict:
+    """The one curve of an unmoderated regressor, or a chooser of the moderator's value."""
+    if len(curves) == 1:
+        return curves[0]
+    names = [display.group_text(c["group"]) for c in curves]
+    if st.session_state.get(key) not in names:
+        st.session_state[key] = names[len(names) // 2]
+    return curves[names.index(st.selectbox("Read at", names, key=key))]
+
+
+def group_curves_view(ctx: Context, curves: list[dict]) -> None:
+    """A regressor crossed with a moderator: one expected-value curve per value of it."""
+    column = curves[0]["column"]
+    moderator = next(iter(curves[0]["group"]))
+    names = [display.group_text(c["group"]) for c in curves]
+    figure = charts.group_curves_figure(
+        curves,
+        names,
+        regressor_label=variable_label(column, ctx.transforms.get(column)),
+        moderator=moderator,
+        outcome_column=ctx.outcome,
+        outcome_label=ctx.outcome_label,
+        ppml=ctx.ppml,
+        units=units_of(ctx.result, ctx.spec),
+    )
+    chart(figure, key="group_curve_chart")
+    notes = [
+        f"Each curve holds {moderator} at one value and moves {column} alone; the gaps between the curves are the "
+        f"differences the model's products with {moderator} allow.",
+        "The expected value is the smearing mean (Duan 1983) where the outcome is transformed."
+        if ctx.result["outcome"]["transform"] != "level" and not ctx.ppml
+        else "",
+    ]
+    if curves[0]["kind"] == "continuous":
+        notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
+    st.caption(plain(" ".join(n for n in notes if n)))

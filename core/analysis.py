@@ -14,9 +14,9 @@ from scipy import stats
 
 from core.errors import DataError, FormwiseError
 from core.inference.bootstrap import Progress, Target, effect_target, intervals, prediction_target, replicate, scenario_target
-from core.inference.curves import effect_curve
+from core.inference.curves import effect_curves
 from core.inference.diagnostics import diagnostics
-from core.inference.effects import compute_effects, gap_curve
+from core.inference.effects import compute_effects, gap_curves, slope_tests
 from core.inference.residuals import residual_sample, variable_distributions
 from core.inference.retransform import boxcox_profile, fit_on_original_scale, predict
 from core.inference.scenarios import compute_scenarios
@@ -196,7 +196,7 @@ def _effects_section(run: _Run) -> dict[str, Any]:
     effects, warnings = compute_effects(run.model)
     run.warnings.extend(warnings)
     _wait_for_bootstrap(run, effects, effect_target)
-    return {"effects": effects}
+    return {"effects": effects, "slope_tests": slope_tests(run.model)}
 
 
 def _units_section(run: _Run) -> dict[str, Any]:
@@ -257,8 +257,9 @@ def _bootstrap_section(run: _Run) -> dict[str, Any]:
     return {}
 
 
-def _blocks(run: _Run, make: Callable[[Model, Any], Any]) -> list[Any]:
-    return [found for block in run.design.encoder.blocks if (found := make(run.model, block)) is not None]
+def _blocks(run: _Run, make: Callable[[Model, Any], list[Any]]) -> list[Any]:
+    """Every block's entries (one per value of the moderator for a crossed regressor)."""
+    return [entry for block in run.design.encoder.blocks for entry in make(run.model, block)]
 
 
 # Sections whose large matrix products (n x k and wider) run faster on BLAS's own threads
@@ -283,8 +284,8 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"predictions"}), _predictions_section),
     (frozenset({"effects"}), _effects_section),
     (frozenset({"scenarios"}), _scenarios_section),
-    (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curve)}),
-    (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curve)}),
+    (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curves)}),
+    (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curves)}),
     (frozenset({"units_check"}), _units_section),
     (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, base=r.design)}),
     # Last: it fills in the entries the three sections above produced.
@@ -308,6 +309,8 @@ def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:
                 "transform": term.transform,
                 "level": term.level,
                 "power": term.power,
+                "by": term.by,
+                "by_level": term.by_level,
                 "estimate": coef[i],
                 "std_error": se[i],
                 "statistic": statistic[i],

@@ -7,7 +7,21 @@ from typing import Any
 import numpy as np
 import plotly.graph_objects as go
 
-from app.charts.base import BEYOND_NAME, BLUE, GREY, ORANGE, SHADE, VERMILLION, floats, legend_dot, legend_square, style
+from app.charts.base import (
+    BEYOND_NAME,
+    BLUE,
+    GREEN,
+    GREY,
+    ORANGE,
+    PURPLE,
+    SHADE,
+    SKY,
+    VERMILLION,
+    floats,
+    legend_dot,
+    legend_square,
+    style,
+)
 from core.output import unit_words
 from core.output.escape import html
 from core.output.theme import NAIVE_NAME, SMEARING_NAME
@@ -298,4 +312,97 @@ def _levels_figure(
         xaxis={"tickmode": "array", "tickvals": positions.tolist(), "ticktext": ticks, "range": [-0.6, len(levels) - 0.4]},
         yaxis={"range": [y_low, y_high]},
     )
+    return fig
+
+
+# --- one curve per value of a moderator ----------------------------------------------------------------
+# Okabe–Ito colours in a fixed order, with dash patterns, so groups read apart in greyscale too.
+GROUP_LOOKS = [
+    (BLUE, "solid"),
+    (VERMILLION, "dash"),
+    (GREEN, "dot"),
+    (PURPLE, "dashdot"),
+    (ORANGE, "longdash"),
+    (SKY, "longdashdot"),
+]
+
+
+def _band_colour(colour: str, alpha: float = 0.16) -> str:
+    red, green, blue = (int(colour.lstrip("#")[i : i + 2], 16) for i in (0, 2, 4))
+    return f"rgba({red}, {green}, {blue}, {alpha})"
+
+
+def group_curves_figure(
+    curves: list[dict[str, Any]],
+    group_names: list[str],
+    *,
+    regressor_label: str,
+    moderator: str,
+    outcome_column: str,
+    outcome_label: str,
+    ppml: bool = False,
+    units: dict[str, str] | None = None,
+) -> go.Figure:
+    """The expected outcome across one regressor, one curve (with its 95 % band) per value of the
+    moderator it is crossed with; for a category or 0/1 regressor one marker per level and group."""
+    units = units or {}
+    first = curves[0]
+    column, moderator = html(first["column"]), html(moderator)
+    y_title = html(unit_words.label(outcome_column, units.get(outcome_column), "original units"))
+    fig = go.Figure()
+    values: list[np.ndarray] = []
+    levels = first["kind"] == "levels"
+    for i, (curve, name) in enumerate(zip(curves, group_names, strict=True)):
+        colour, dash = GROUP_LOOKS[i % len(GROUP_LOOKS)]
+        x, smear = floats(curve["x"]) if not levels else np.arange(len(curve["x"])), floats(curve["smearing"])
+        low, high = floats(curve["ci_low"]), floats(curve["ci_high"])
+        values += [smear, low, high]
+        if levels:
+            offset = (i - (len(curves) - 1) / 2) * min(0.6 / len(curves), 0.15)
+            fig.add_trace(
+                go.Scatter(
+                    x=x + offset,
+                    y=smear,
+                    mode="markers",
+                    name=html(name),
+                    marker={"color": colour, "size": 12, "symbol": i % 12, "line": {"color": "white", "width": 1}},
+                    error_y={"type": "data", "symmetric": False, "array": high - smear, "arrayminus": smear - low},
+                    hovertemplate=f"{html(name)}<br>%{{y:,.4g}}<extra></extra>",
+                )
+            )
+            continue
+        fig.add_trace(go.Scatter(x=x, y=high, mode="lines", line={"width": 0}, showlegend=False, hoverinfo="skip"))
+        fig.add_trace(
+            go.Scatter(
+                x=x, y=low, mode="lines", line={"width": 0}, fill="tonexty", fillcolor=_band_colour(colour),
+                showlegend=False, hoverinfo="skip",
+            )
+        )  # fmt: skip
+        fig.add_trace(
+            go.Scatter(
+                x=x,
+                y=smear,
+                mode="lines",
+                name=html(name),
+                line={"color": colour, "width": 3, "dash": dash},
+                hovertemplate=f"{html(name)}<br>{column} %{{x:.4g}}<br>expected %{{y:,.4g}}<extra></extra>",
+            )
+        )
+    if not levels:
+        x = floats(first["x"])
+        _shade_beyond(fig, float(np.nanmin(x)), float(np.nanmax(x)), float(first["observed_min"]), float(first["observed_max"]))
+    y_low, y_high = _y_range(values, np.array([], dtype=float))
+    style(
+        fig,
+        title=f"Predicted {html(outcome_column)} as {column} varies, by {moderator}",
+        subtitle=f"{_model_words(html(outcome_label), ppml)} on {html(regressor_label)} crossed with {moderator}; "
+        "other regressors at their reference values; shaded bands: 95 % confidence",
+        x_title=html(unit_words.label(first["column"], units.get(first["column"]), "as recorded")),
+        y_title=y_title,
+        height=660,
+    )
+    fig.update_layout(yaxis={"range": [y_low, y_high]})
+    if levels:
+        ticks = [html(str(v)) for v in first["x"]]
+        fig.update_layout(xaxis={"tickmode": "array", "tickvals": list(range(len(ticks))), "ticktext": ticks})
     return fig

@@ -21,6 +21,7 @@ from typing import Any
 
 import numpy as np
 
+from core.inference.effects import moderator_groups
 from core.model.design import Block
 from core.model.fitted import Model
 
@@ -40,18 +41,19 @@ def _residuals_for_display(model: Model) -> np.ndarray:
     return np.interp(position, np.arange(len(ordered)), ordered)
 
 
-def index_variance(model: Model, X: np.ndarray, columns: slice) -> np.ndarray:
-    """Var(x'b) for rows of X that differ only in ``columns`` (one regressor's block, the rest at
+def index_variance(model: Model, X: np.ndarray, columns: slice | np.ndarray) -> np.ndarray:
+    """Var(x'b) for rows of X that differ only in ``columns`` (one regressor's block and its
+    products, the rest at
     the reference point): with x = x₀ + d, x'Vx = x₀'Vx₀ + 2d'(Vx₀) + d'Vd, where d lives in the
     block, so m rows cost m·b² instead of m·k² (hundreds of regressors, one curve each)."""
     x0 = X[0]
     d = X[:, columns] - x0[columns]
     v_x0 = model.cov @ x0
-    cov_block = model.cov[columns, columns]
+    cov_block = model.cov[columns, columns] if isinstance(columns, slice) else model.cov[np.ix_(columns, columns)]
     return float(x0 @ v_x0) + 2.0 * (d @ v_x0[columns]) + np.einsum("ij,ij->i", d @ cov_block, d)
 
 
-def _predict(model: Model, X: np.ndarray, resid: np.ndarray, columns: slice) -> dict[str, list[float]]:
+def _predict(model: Model, X: np.ndarray, resid: np.ndarray, columns: slice | np.ndarray) -> dict[str, list[float]]:
     eta = X @ model.coef
     se = np.sqrt(np.clip(index_variance(model, X, columns), 0, None))
     t = model.t_crit
@@ -73,21 +75,29 @@ def _predict(model: Model, X: np.ndarray, resid: np.ndarray, columns: slice) -> 
     }
 
 
-def effect_curve(model: Model, block: Block) -> dict[str, Any]:
-    """The curve for one regressor (levels with their predictions for categories and dummies)."""
+def effect_curves(model: Model, block: Block) -> list[dict[str, Any]]:
+    """The regressor's curve, or one per value of its moderator (``moderator_groups``)."""
+    return [effect_curve(model, block, group) for group in moderator_groups(model, block)]
+
+
+def effect_curve(model: Model, block: Block, group: dict[str, Any] | None = None) -> dict[str, Any]:
+    """The curve for one regressor (levels with their predictions for categories and dummies),
+    at the moderator's value ``group`` for a crossed regressor (docs/contract.md §3.9)."""
     design = model.design
     column = block.spec.column
     resid = _residuals_for_display(model)
-    base = dict(design.reference)
+    base = dict(design.reference, **(group or {}))
+    columns = design.encoder.columns_of(column)
     if block.is_category or block.binary:
         levels = ([block.reference_level] + block.levels) if block.is_category else [0.0, 1.0]
         X = model.encode(dict(base, **{column: np.array(levels, dtype=object if block.is_category else float)}), len(levels))
         return {
             "column": column,
+            "group": group,
             "kind": "levels",
             "x": [str(v) if block.is_category else v for v in levels],
             "outside": [False] * len(levels),
-            **_predict(model, X, resid, slice(block.start, block.stop)),
+            **_predict(model, X, resid, columns),
         }
     x = design.values[column]
     low, high = float(np.min(x)), float(np.max(x))
@@ -102,10 +112,11 @@ def effect_curve(model: Model, block: Block) -> dict[str, Any]:
     X = model.encode(dict(base, **{column: grid}), len(grid))
     return {
         "column": column,
+        "group": group,
         "kind": "continuous",
         "x": grid.tolist(),
         "observed_min": low,
         "observed_max": high,
         "outside": ((grid < low) | (grid > high)).tolist(),
-        **_predict(model, X, resid, slice(block.start, block.stop)),
+        **_predict(model, X, resid, columns),
     }

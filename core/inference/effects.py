@@ -37,6 +37,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from scipy import stats
 
 from core.inference.changes import default_change_text
 from core.model.design import Block, match_level, unknown_level
@@ -73,9 +74,30 @@ def effect_arrays(
     if block.is_category or block.binary:
         first_order = X1 @ b - X0 @ b  # the index change itself, as outcome_change computes it
     else:
-        cols, d_basis = model.design.encoder.basis_derivative(column, np.asarray(x0, dtype=float))
-        first_order = (d_basis @ b[cols]) * (np.asarray(x1, dtype=float) - np.asarray(x0, dtype=float))
+        slope = model.design.encoder.index_slope(column, x0, X0, b)
+        first_order = slope * (np.asarray(x1, dtype=float) - np.asarray(x0, dtype=float))
     return outcome_change(model, X0, X1, first_order, resid)
+
+
+def moderator_groups(model: Model, block: Block) -> list[dict[str, Any] | None]:
+    """Where the effects of a crossed regressor are read: each value of its moderator as
+    ``{moderator: value}`` (every level of a category, reference first; 0 and 1 of a dummy;
+    else the spec's ``at`` values or the quartiles), or ``[None]`` for a regressor without one."""
+    by = block.spec.by
+    if by is None:
+        return [None]
+    moderator = model.design.encoder.block(by)
+    if moderator.is_category:
+        known = [moderator.reference_level, *moderator.levels]
+        chosen = [match_level(v, known) for v in block.spec.by_at] if block.spec.by_at else known
+        return [{by: level} for level in chosen]
+    if block.spec.by_at:
+        values = [float(v) for v in block.spec.by_at]
+    elif moderator.binary:
+        values = [0.0, 1.0]
+    else:
+        values = list(dict.fromkeys(float(v) for v in np.quantile(model.design.values[by], [0.25, 0.5, 0.75])))
+    return [{by: value} for value in values]
 
 
 def outcome_change(
@@ -135,8 +157,9 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
                 pairs = [(ends[0], ends[1], block.spec.change.text)]
             else:
                 pairs = [(block.reference_level, lv, f"{block.reference_level}->{lv}") for lv in block.levels]
-            for start, end, text in pairs:
-                out.append(_one_effect(model, block, start, end, text, warnings, with_average))
+            for group in moderator_groups(model, block):
+                for start, end, text in pairs:
+                    out.append(_one_effect(model, block, start, end, text, warnings, with_average, group=group))
             continue
         change = block.spec.change or default_change(block, design.values[column])
         if change.kind == "switch" and not all(isinstance(v, float) for v in (change.start, change.end)):
@@ -144,7 +167,8 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
 
             raise SpecError(f"spec.regressors ({column}): '{change.text}' must go between two numbers for a numeric column.")
         x0, x1 = _start_end(change, design.reference[column])
-        out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average, change))
+        for group in moderator_groups(model, block):
+            out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average, change, group))
     return out, warnings
 
 
@@ -163,10 +187,13 @@ def _one_effect(
     warnings: list[str],
     with_average: bool = True,
     change: Change | None = None,
+    group: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
+    """One effect entry (docs/contract.md §3.7); ``group`` holds the moderator's value for a
+    crossed regressor, read into the reference point."""
     design = model.design
     column = block.spec.column
-    base = dict(design.reference)
+    base = dict(design.reference, **(group or {}))
     base[column] = x0
     entry: dict[str, Any] = {
         "column": column,
@@ -175,6 +202,7 @@ def _one_effect(
         "from": x0,
         "to": x1,
         "level": x1 if block.is_category else None,
+        "group": group,
         "reference": base,
     }
     if not block.is_category:
@@ -213,15 +241,12 @@ def _one_effect(
         ci_low=float(min(low, high)),
         ci_high=float(max(low, high)),
         adjusted=adjusted,
-        average=_average_effect(model, block, x0, x1, text, exact, change) if with_average else None,
+        average=_average_effect(model, block, x0, x1, text, exact, change, group) if with_average else None,
         gap=approximate - exact,
         interval_method=method,
         extrapolated=_outside(design.observed_range(column), x0, x1) if not block.is_category else False,
     )
-    if entry["extrapolated"]:
-        warnings.append(
-            f"the effect of {text} in '{column}' reaches outside the observed range of '{column}'; it is an extrapolation."
-        )
+    _mark_outside(model, entry, warnings)
     if not np.isfinite(exact):
         warnings.append(
             f"the exact effect of {text} in '{column}' cannot be computed: it is too large for floating-point numbers or "
@@ -255,15 +280,32 @@ def elasticity(model: Model, block: Block, point: dict[str, Any]) -> float | Non
     log y, ξ = dη/dx · x; any other g, ξ = S'(η)/S(η) · dη/dx · x with S the smearing mean."""
     column = block.spec.column
     x = float(point[column])
-    eta = float((model.encode(point, 1) @ model.coef)[0])
-    cols, d_basis = model.design.encoder.basis_derivative(column, np.array([x]))
-    slope = float(d_basis[0] @ model.coef[cols])
+    row = model.encode(point, 1)
+    eta = float((row @ model.coef)[0])
+    slope = float(model.design.encoder.index_slope(column, np.array([x]), row, model.coef)[0])
     if model.kind == "level":
         return slope * x / eta if eta != 0 else None
     if model.kind == "log":
         return slope * x
     level, derivative = model.smear(np.array([eta]))
     return float(derivative[0] / level[0] * slope * x)
+
+
+def _mark_outside(model: Model, entry: dict[str, Any], warnings: list[str]) -> None:
+    """Warn of an effect that reaches outside the observed range of its regressor, or is read at
+    a numeric moderator's value outside that one's range (then marked extrapolated too)."""
+    text, column = entry["change"], entry["column"]
+    if entry["extrapolated"]:
+        warnings.append(
+            f"the effect of {text} in '{column}' reaches outside the observed range of '{column}'; it is an extrapolation."
+        )
+    for by, value in (entry["group"] or {}).items():
+        if not model.design.encoder.block(by).is_category and _outside(model.design.observed_range(by), value, value):
+            entry["extrapolated"] = True
+            warnings.append(
+                f"the effect of {text} in '{column}' at {by} = {value:g} reads the model outside the observed range of "
+                f"'{by}'; it is an extrapolation."
+            )
 
 
 def _outside(observed: tuple[float, float], x0: float, x1: float) -> bool:
@@ -281,7 +323,14 @@ def _average_rows(n: int, limit: int) -> np.ndarray:
 
 
 def _average_effect(
-    model: Model, block: Block, x0: Any, x1: Any, text: str, at_reference: float, change: Change | None = None
+    model: Model,
+    block: Block,
+    x0: Any,
+    x1: Any,
+    text: str,
+    at_reference: float,
+    change: Change | None = None,
+    group: dict[str, Any] | None = None,
 ) -> float | None:
     """The effect averaged over the sample's rows (each row's own values, the change applied
     to it), where it differs from the effect at the reference point; else None. Large samples
@@ -293,10 +342,13 @@ def _average_effect(
     of a log, +1 in levels) move every row by the same Δη, so the average equals the effect at
     the reference point and None is returned without evaluating any row. ``change`` is the
     regressor's change when the caller has it (``default_change`` reads the column).
+
+    A crossed regressor's Δηᵢ also depends on the row's other factor, so it takes the general
+    path: every sampled row's own values, with the moderator held at ``group``.
     """
     design = model.design
     column = block.spec.column
-    closed_form = model.kind in ("level", "log")
+    closed_form = model.kind in ("level", "log") and not design.encoder.crossed(column)
     switch = block.is_category or text.find("->") >= 0
     if closed_form and switch:
         return None
@@ -321,10 +373,12 @@ def _average_effect(
             return None
         return float(np.mean(exact))
     resid = None
-    if n > _AVERAGE_RESIDUALS:
+    if model.kind == "smearing" and n > _AVERAGE_RESIDUALS:
         resid = np.quantile(model.resid, (np.arange(_AVERAGE_RESIDUALS) + 0.5) / _AVERAGE_RESIDUALS)
     base = {col: vals[rows] for col, vals in design.values.items()}
     m = len(rows)
+    for by, value in (group or {}).items():
+        base[by] = np.full(m, value, dtype=object if isinstance(value, str) else float)
     if switch:
         start = np.full(m, x0, dtype=object if block.is_category else float)
         end = np.full(m, x1, dtype=object if block.is_category else float)
@@ -346,7 +400,13 @@ def _average_effect(
     return average
 
 
-def gap_curve(model: Model, block: Block, points: int = 61) -> dict[str, Any] | None:
+def gap_curves(model: Model, block: Block) -> list[dict[str, Any]]:
+    """The regressor's gap curve, or one per value of its moderator (``moderator_groups``)."""
+    found = [gap_curve(model, block, group=group) for group in moderator_groups(model, block)]
+    return [curve for curve in found if curve is not None]
+
+
+def gap_curve(model: Model, block: Block, points: int = 61, group: dict[str, Any] | None = None) -> dict[str, Any] | None:
     """Approximate and exact effect across change sizes, for the gap chart.
 
     Percent changes run from -50 % to +100 %; unit changes from -L to +2L with L the larger
@@ -372,9 +432,10 @@ def gap_curve(model: Model, block: Block, points: int = 61) -> dict[str, Any] | 
         x1 = x_ref + sizes
     bad, _ = block.spec.transform.invalid(x1)
     sizes, x1 = sizes[~bad & (sizes != 0)], x1[~bad & (sizes != 0)]
-    arrays = effect_arrays(model, block, np.full(len(sizes), x_ref), x1, design.reference, len(sizes))
+    arrays = effect_arrays(model, block, np.full(len(sizes), x_ref), x1, dict(design.reference, **(group or {})), len(sizes))
     return {
         "column": column,
+        "group": group,
         "kind": "percent" if change.kind == "percent" else "units",
         "units": model.units,
         "from": x_ref,
@@ -383,3 +444,33 @@ def gap_curve(model: Model, block: Block, points: int = 61) -> dict[str, Any] | 
         "approximate": arrays.approximate.tolist(),
         "exact": arrays.exact.tolist(),
     }
+
+
+def slope_tests(model: Model) -> list[dict[str, Any]]:
+    """For each crossed regressor, the Wald test that its slope is the same at every value of
+    its moderator: H₀ all its product coefficients are zero, W = b_R'(V_RR)⁻¹b_R with V the
+    model's chosen covariance, reported as F = W/q on (q, df) degrees of freedom, df the one the
+    model's t intervals use (Greene, Econometric Analysis, 8th ed., §5.3.2 and eq. 5-16)."""
+    out = []
+    for product in model.design.encoder.products:
+        cols = np.arange(product.start, product.stop)
+        b = model.coef[cols]
+        V = model.cov[np.ix_(cols, cols)]
+        q = len(cols)
+        try:
+            wald = float(b @ np.linalg.solve(V, b))
+        except np.linalg.LinAlgError:
+            wald = float(b @ np.linalg.pinv(V) @ b)
+        statistic = wald / q
+        out.append(
+            {
+                "column": product.column,
+                "by": product.by,
+                "statistic": statistic,
+                "chi2": wald,
+                "df_num": q,
+                "df_denom": model.df,
+                "p_value": float(stats.f.sf(statistic, q, model.df)),
+            }
+        )
+    return out

@@ -162,6 +162,13 @@ def _default(values: np.ndarray, role: str, binary: bool) -> list[Transform]:
 def _setup(
     data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None, base: Design | None = None
 ) -> _Setup:
+    crossed = [r.column for r in model_spec.regressors if r.by]
+    if crossed:
+        # The sweep's shared table holds each candidate's basis columns, not products of them.
+        raise SpecError(
+            f"spec.sweep: the sweep compares forms of models without moderators; '{crossed[0]}' has one ('by'). "
+            "Remove 'by' to sweep the forms, then add it back to the form you keep."
+        )
     focus, given = _parse(raw_spec, model_spec)
     # A cache of its own when the caller keeps none: the common rows' design reuses the columns
     # the base design converted.

@@ -46,13 +46,16 @@ WORK_PER_SECOND = 2.3e9
 
 @dataclass(frozen=True)
 class Term:
-    """One design column: the intercept, a transformed regressor, a square or a dummy."""
+    """One design column: the intercept, a transformed regressor, a square, a dummy, or (with
+    ``by``) one of those times a column of the moderator ``by`` (its level ``by_level``)."""
 
     name: str
     column: str | None
     transform: str | None
     level: str | None = None
     power: int | None = None
+    by: str | None = None
+    by_level: str | None = None
 
 
 @dataclass
@@ -71,6 +74,18 @@ class Block:
         return isinstance(self.spec.transform, Category)
 
 
+@dataclass(frozen=True)
+class Product:
+    """The design columns of a regressor crossed with its moderator ``by``: column
+    ``start + i*q + j`` is the regressor's design column i times the moderator's column j, row
+    by row (q the moderator's width), so any transform pair crosses the same way."""
+
+    column: str
+    by: str
+    start: int
+    stop: int
+
+
 @dataclass
 class Coded:
     """A category column as integer codes, one per row, and the level name of each code.
@@ -85,10 +100,12 @@ class Coded:
 
 @dataclass
 class Encoder:
-    """Maps original-unit regressor values to design rows (intercept first)."""
+    """Maps original-unit regressor values to design rows (intercept first, then one block per
+    regressor, then the products of crossed regressors)."""
 
     blocks: list[Block]
     width: int
+    products: list[Product] = field(default_factory=list)
 
     def encode(
         self,
@@ -122,7 +139,44 @@ class Encoder:
         # Blocks write disjoint columns, so long ones are written on the passes' threads.
         jobs = [functools.partial(self.fill, X, block, values, codes, bases) for block in self.blocks]
         done = engine.each_column([*jobs, beside or (lambda: None)], n)
+        if self.products:  # read the blocks just written
+            engine.each_column([functools.partial(self.fill_product, X, p) for p in self.products], n)
         return X, done[-1]
+
+    def fill_product(self, X: np.ndarray, product: Product) -> None:
+        """Write a product's columns of X from the two blocks' columns already in X."""
+        left, right = self.block(product.column), self.block(product.by)
+        q = right.stop - right.start
+        for i in range(left.stop - left.start):
+            start = product.start + i * q
+            np.multiply(X[:, right.start : right.stop], X[:, left.start + i, None], out=X[:, start : start + q])
+
+    def crossed(self, column: str) -> list[Product]:
+        """The products ``column`` enters, as the regressor or as the moderator."""
+        return [p for p in self.products if column in (p.column, p.by)]
+
+    def columns_of(self, column: str) -> np.ndarray:
+        """Every design column that moves with ``column``: its block and its products."""
+        block = self.block(column)
+        spans = [range(block.start, block.stop), *(range(p.start, p.stop) for p in self.crossed(column))]
+        return np.array([i for span in spans for i in span], dtype=np.intp)
+
+    def basis_coefficients(self, column: str, X: np.ndarray, coef: np.ndarray) -> np.ndarray:
+        """Per row of X, the coefficient on each of ``column``'s design columns once its products
+        are read at that row's other factor: ∂η/∂basisₖ = b_k + Σ_products b_(k,j)·other_j,
+        shape (rows, block width). Without products every row is the block's coefficients."""
+        block = self.block(column)
+        width = block.stop - block.start
+        out = np.tile(coef[block.start : block.stop], (X.shape[0], 1))
+        for p in self.crossed(column):
+            left, right = self.block(p.column), self.block(p.by)
+            q = right.stop - right.start
+            b = coef[p.start : p.stop].reshape(left.stop - left.start, q)  # row i: left column i
+            if p.column == column:
+                out += X[:, right.start : right.stop] @ b.T
+            else:
+                out += X[:, left.start : left.stop] @ b
+        return out.reshape(X.shape[0], width)
 
     def fill(
         self,
@@ -155,10 +209,11 @@ class Encoder:
             numbers = np.broadcast_to(np.asarray(values[column], dtype=float), (n,))
             block.spec.transform.write_basis(numbers, X[:, block.start : block.stop])
 
-    def basis_derivative(self, column: str, x: np.ndarray) -> tuple[slice, np.ndarray]:
-        """Slice of X for ``column`` and d(basis)/dx at x, shape (len(x), width)."""
-        block = self.block(column)
-        return slice(block.start, block.stop), block.spec.transform.basis_derivative(np.asarray(x, dtype=float))
+    def index_slope(self, column: str, x: np.ndarray, X: np.ndarray, coef: np.ndarray) -> np.ndarray:
+        """dη/dx of a numeric regressor at x (one value per row of X, the design rows at x):
+        d(basis)/dx times the coefficients its products give at each row."""
+        d_basis = self.block(column).spec.transform.basis_derivative(np.asarray(x, dtype=float))
+        return np.einsum("ij,ij->i", d_basis, self.basis_coefficients(column, X, coef))
 
     def block(self, column: str) -> Block:
         for block in self.blocks:
@@ -571,6 +626,7 @@ class _Layout:
     codes: dict[str, Coded] = field(default_factory=dict)
     modes: dict[str, str] = field(default_factory=dict)
     ranges: dict[str, tuple[float, float]] = field(default_factory=dict)
+    products: list[Product] = field(default_factory=list)
 
 
 def _lay_out(spec: ModelSpec, found: _Columns, values: dict[str, np.ndarray], rows: np.ndarray | None) -> _Layout:
@@ -590,7 +646,31 @@ def _lay_out(spec: ModelSpec, found: _Columns, values: dict[str, np.ndarray], ro
         layout.blocks.append(block)
         layout.terms.extend(new_terms)
         layout.width = block.stop
+    _cross(spec, layout)
     return layout
+
+
+def _cross(spec: ModelSpec, layout: _Layout) -> None:
+    """After the blocks, each crossed regressor's products with its moderator, named from the
+    two terms ('log(price) × region[Inland]'); a category moderator's ``at`` levels checked."""
+    by_column = {b.spec.column: b for b in layout.blocks}
+    for reg in spec.regressors:
+        if reg.by is None:
+            continue
+        left, right = by_column[reg.column], by_column[reg.by]
+        if right.is_category and reg.by_at:
+            known = [right.reference_level, *right.levels]
+            for value in reg.by_at:
+                if match_level(value, known) is None:
+                    raise DataError(unknown_level(f"spec.regressors ({reg.column}).at", value, reg.by, known))
+        width = (left.stop - left.start) * (right.stop - right.start)
+        layout.products.append(Product(reg.column, reg.by, layout.width, layout.width + width))
+        for a in layout.terms[left.start : left.stop]:
+            for b in layout.terms[right.start : right.stop]:
+                layout.terms.append(
+                    Term(f"{a.name} × {b.name}", a.column, a.transform, a.level, a.power, by=b.column, by_level=b.level)
+                )
+        layout.width += width
 
 
 def build_design(
@@ -644,7 +724,7 @@ def build_design(
             "coefficients. Use fewer regressors or categories, or load more data."
         )
     check_budget(blocks, n, width)
-    encoder = Encoder(blocks, width)
+    encoder = Encoder(blocks, width, layout.products)
     bases = None if columns is None else _cached_bases(blocks, raw, cached, None if every_row else rows)
     y_transform = spec.outcome_transform
     y_raw = used(raw[outcome])
@@ -858,7 +938,7 @@ def rescaled_design(
     the clusters or the outcome), and the design must be built afresh. ``work``, a copy of
     ``design.X`` that may be overwritten, saves allocating one.
     """
-    if column in (spec.weights, spec.cluster, spec.outcome_column):
+    if column in (spec.weights, spec.cluster, spec.outcome_column) or design.encoder.crossed(column):
         return None
     block = design.encoder.block(column)
     regressor = next(r for r in spec.regressors if r.column == column)
@@ -887,4 +967,4 @@ def rescaled_design(
     reference[column] = reference_value(spec, changed, x)
     ranges = dict(design.ranges)
     ranges[column] = _value_range(x)
-    return replace(design, X=X, encoder=Encoder(blocks, design.encoder.width), values=values, reference=reference, ranges=ranges)
+    return replace(design, X=X, encoder=replace(design.encoder, blocks=blocks), values=values, reference=reference, ranges=ranges)

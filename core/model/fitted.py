@@ -78,6 +78,10 @@ class Model:
         X[:] = self._reference_row
         for block in changed:
             encoder.fill(X, block, point)
+        moved = {b.spec.column for b in changed}
+        for product in encoder.products:
+            if moved & {product.column, product.by}:
+                encoder.fill_product(X, product)
         return X
 
     # --- smearing estimate of E[y | x] and its derivative in the index -------------------

@@ -36,7 +36,9 @@ TOP_KEYS = {
     "sweep",  # validated by core.inference.sweep (docs/contract.md §2.13)
 }
 OUTCOME_KEYS = {"column", "transform", "unit"}
-REGRESSOR_KEYS = {"column", "transform", "change", "reference", "unit"}
+REGRESSOR_KEYS = {"column", "transform", "change", "reference", "unit", "by", "at"}
+# The most values of a moderator the effects of one regressor are given at (docs/contract.md §2.4).
+MAX_GROUPS = 24
 UNIT_MAX_CHARS = 40
 ESTIMATORS = ("ols", "ppml")
 SCENARIO_KEYS = {"name", "changes"}
@@ -83,10 +85,16 @@ class Change:
 
 @dataclass(frozen=True)
 class RegressorSpec:
+    """One regressor entry. ``by`` names a moderator (another regressor): the design then holds
+    the products of the two blocks' columns, and effects are given per value of the moderator:
+    each level of a category, else ``by_at`` (default: its quartiles)."""
+
     column: str
     transform: Transform
     change: Change | None
     reference: str | None
+    by: str | None = None
+    by_at: tuple[Any, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -226,9 +234,62 @@ def _parse_regressors(spec: dict, data: pd.DataFrame, outcome_column: str) -> li
             raise SpecError(f"{where}: 'reference' applies to category regressors only; remove it or use transform 'category'.")
         if isinstance(transform, Category) and parsed_change is not None and parsed_change.kind != "switch":
             raise SpecError(f"{where}: a category changes from one level to another, e.g. 'Coast->Inland'.")
-        regressors.append(RegressorSpec(column, transform, parsed_change, None if reference is None else str(reference)))
-
+        by, by_at = _parse_moderator(entry, data, column, outcome_column, where)
+        regressors.append(
+            RegressorSpec(column, transform, parsed_change, None if reference is None else str(reference), by, by_at)
+        )
+    _check_moderators(regressors)
     return regressors
+
+
+def _parse_moderator(
+    entry: dict, data: pd.DataFrame, column: str, outcome_column: str, where: str
+) -> tuple[str | None, tuple[Any, ...]]:
+    """The moderator a regressor entry names (``by``) and the values its effects are given at
+    (``at``); checked against the other regressors by ``_check_moderators``."""
+    by, at = entry.get("by"), entry.get("at")
+    if by in (None, ""):
+        if at not in (None, []):
+            raise SpecError(f"{where}: 'at' lists the values of a moderator; name the moderator with 'by' or remove 'at'.")
+        return None, ()
+    by = _require_column(by, data, f"{where}.by")
+    if by == column:
+        raise SpecError(f"{where}.by: a regressor cannot moderate itself; name another regressor, or use 'quadratic'.")
+    if by == outcome_column:
+        raise SpecError(f"{where}.by: the outcome cannot moderate a regressor; name another regressor.")
+    if at in (None, []):
+        return by, ()
+    if not isinstance(at, list) or len(at) > MAX_GROUPS:
+        raise SpecError(f"{where}.at: must be a list of at most {MAX_GROUPS} values of '{by}', e.g. [10, 20, 40].")
+    for value in at:
+        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+            raise SpecError(f"{where}.at: each value must be a number of '{by}' (or a level name for a category).")
+        if isinstance(value, float) and not math.isfinite(value):
+            raise SpecError(f"{where}.at: each value must be a finite number.")
+    return by, tuple(dict.fromkeys(at))
+
+
+def _check_moderators(regressors: list[RegressorSpec]) -> None:
+    """Each moderator is a regressor of the model (its main effect), and each pair is crossed once."""
+    by_column = {r.column: r for r in regressors}
+    for reg in regressors:
+        if reg.by is None:
+            continue
+        where = f"spec.regressors ({reg.column}).by"
+        moderator = by_column.get(reg.by)
+        if moderator is None:
+            raise SpecError(
+                f"{where}: '{reg.by}' must also be a regressor of the model (its own effect, the main effect); "
+                "add it to the regressors."
+            )
+        if moderator.by == reg.column:
+            raise SpecError(
+                f"{where}: '{reg.column}' and '{reg.by}' name each other as moderator; the product enters once, "
+                f"so keep 'by' on one of the two."
+            )
+        if reg.by_at and not isinstance(moderator.transform, Category):
+            for value in reg.by_at:
+                _point_value(value, moderator, f"spec.regressors ({reg.column}).at")
 
 
 def _parse_estimation(

@@ -25,6 +25,10 @@ def term_label(term: dict[str, Any], references: dict[str, str]) -> str:
     column = term["column"]
     if column is None:
         return "Intercept"
+    if term.get("by"):
+        own = term_label({**term, "by": None}, references)
+        other = f"{term['by']} = {term['by_level']}" if term.get("by_level") is not None else term["name"].split(" × ", 1)[1]
+        return f"{own} × {other}"
     if term["level"] is not None:
         ref = references.get(column)
         return f"{column} = {term['level']}" + (f" (vs {ref})" if ref else "")
@@ -98,6 +102,7 @@ def change_text(effect: dict[str, Any], unit: str | None = None) -> str:
 
 EFFECT_COLUMNS = [
     "Variable",
+    "Read at",
     "Change",
     "First-order approximation",
     "Exact",
@@ -134,6 +139,7 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
         rows.append(
             {
                 "Variable": variable_label(column, transforms.get(column)),
+                "Read at": group_text(effect.get("group")),
                 "Change": change_text(effect, units.get(column)),
                 "First-order approximation": show(effect.get("approximate")),
                 "Exact": show(effect.get("exact")),
@@ -146,9 +152,15 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
             }
         )
     table = pd.DataFrame(rows, columns=EFFECT_COLUMNS)
-    if not table.empty and not table["Note"].astype(bool).any():
-        table = table.drop(columns="Note")
+    for optional in ("Note", "Read at"):
+        if not table.empty and not table[optional].astype(bool).any():
+            table = table.drop(columns=optional)
     return table
+
+
+def group_text(group: dict[str, Any] | None) -> str:
+    """Where a moderated effect is read: 'region = Inland', 'foot_traffic = 1,250'; '' without."""
+    return ", ".join(f"{by} = {_value_text(value)}" for by, value in (group or {}).items())
 
 
 def _bootstrap_text(entry: dict[str, Any], method: str, digits: int, suffix: str) -> str:

@@ -67,6 +67,8 @@ def reading(
             "often outside the data and not meaningful on its own."
         )
     x = term.column
+    if term.by is not None:
+        return _product_reading(term, estimate)
     if term.level is not None:
         ref = block.reference_level if block else "the reference level"
         return f"Compared with {x} = {ref}, {x} = {term.level} goes with {_outcome_move(outcome, y, estimate, y_unit)}, {HELD}."
@@ -91,3 +93,17 @@ def reading(
             return f"A 1 % higher {x} goes with about {_signed_pct(estimate)} in {y} (an elasticity){caveat}, {HELD}."
         return f"A 1 % higher {x} moves the {outcome.label(y)} by about {_num(estimate / 100)}{caveat}, {HELD}."
     return f"One more unit of the {transform.label(x)} goes with {_outcome_move(outcome, y, estimate, y_unit)}, {HELD}."
+
+
+def _product_reading(term: Term, estimate: float) -> str:
+    """A product term: how much the regressor's own coefficient differs with its moderator."""
+    own, other = term.name.split(" × ", 1)
+    if term.by_level is not None:
+        where = f"for {term.by} = {term.by_level} than for {term.by} at its reference level"
+    else:
+        where = f"per unit more of {other}"
+    direction = "higher" if estimate >= 0 else "lower"
+    return (
+        f"The coefficient of {own} is {_num(abs(estimate))} {direction} {where} (on the model's scale); "
+        f"the effects table gives the effect at each value of {term.by}."
+    )

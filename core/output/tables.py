@@ -21,7 +21,7 @@ import pandas as pd
 
 from core.output import display, escape
 from core.output.numbers import format_cell, p_value, sig
-from core.output.text import model_footer
+from core.output.text import model_footer, slope_test_sentence
 
 Cell = float | int | str | None
 
@@ -50,7 +50,14 @@ def coefficient_table(result: dict[str, Any], spec: dict[str, Any] | None = None
 
 def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) -> Table:
     title = "Effects of changes (other regressors at the reference point)"
-    return from_frame(title, display.effects_table(result, spec), model_footer(result))
+    return from_frame(title, display.effects_table(result, spec), slope_test_lines(result, spec) + model_footer(result))
+
+
+def slope_test_lines(result: dict[str, Any], spec: dict[str, Any] | None = None) -> list[str]:
+    """The equal-slopes test of each moderated regressor, in words (shown under its effects)."""
+    transforms = {r["column"]: r.get("transform", "level") for r in (spec or {}).get("regressors", [])}
+    covariance = result.get("covariance") or ""
+    return [slope_test_sentence(t, transforms.get(t["column"]), covariance) for t in result.get("slope_tests") or []]
 
 
 def scenarios_table(result: dict[str, Any]) -> Table:

@@ -14,7 +14,7 @@ import numpy as np
 
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import variable_label
-from core.output.numbers import compact, p_text, signed
+from core.output.numbers import compact, p_text, sig, signed
 from core.output.unit_words import amount, plural
 
 # Fewer rows than this, or fewer than ROWS_PER_COEFFICIENT rows per coefficient (intercept
@@ -456,3 +456,19 @@ def model_footer(result: dict[str, Any], today: str | None = None) -> list[str]:
         lines.append("Units: " + "; ".join(f"{column} in {plural(unit)}" for column, unit in units.items()) + ".")
     lines.append(f"Formwise, {today or datetime.date.today().isoformat()}. Effects are associations in this data.")
     return lines
+
+
+def slope_test_sentence(test: dict[str, Any], transform: str | None, covariance: str) -> str:
+    """The equal-slopes Wald test of a moderated regressor (docs/contract.md §3.7) in words."""
+    kind = COVARIANCE_KINDS.get(covariance)
+    what = variable_label(test["column"], transform)
+    verdict = (
+        f"the slope of {what} differs with {test['by']} at the 5 % level"
+        if test["p_value"] is not None and test["p_value"] < 0.05
+        else f"no clear difference in the slope of {what} across {test['by']} at the 5 % level"
+    )
+    return (
+        f"Same slope of {what} at every value of {test['by']}? Wald test of the {test['df_num']} product "
+        f"coefficient(s) with {kind.short if kind else covariance} errors: F = {sig(test['statistic'], 4)} on "
+        f"{test['df_num']} and {test['df_denom']:,} df, {p_text(test['p_value'])}: {verdict}."
+    )
