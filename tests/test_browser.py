@@ -131,6 +131,27 @@ def test_undo_and_redo_a_transform_edit(page) -> None:
     assert page.problems == []
 
 
+def test_an_effect_that_varies_by_region(page) -> None:
+    """drink_price's "Varies by" set to region in the grid: the effects view gives the +10 %
+    effect per region with the equal-slopes test, the curves view one curve per region."""
+    _set_grid_cell(page, row=1, column=5, text="region")  # drink_price's "Varies by"
+    _wait_for_rerun(page)
+    page.wait_for_function("() => document.body.innerText.includes('× region = Inland')", timeout=120_000)
+    page.get_by_role("radio", name="Effects", exact=True).first.click()
+    _wait_for_rerun(page)
+    page.get_by_text("Same slope of log of drink_price").first.wait_for(timeout=60_000)
+    for region in ("Coast", "Inland", "Mountain"):
+        assert page.get_by_text(f"region\u00a0=\u00a0{region}", exact=True).count() >= 1
+    _no_error_text(page)
+    _shot(page, "effects-by-region")
+    page.get_by_role("radio", name="Curves", exact=True).first.click()
+    _wait_for_rerun(page)
+    page.get_by_text("Each curve holds region at one value").first.wait_for(timeout=60_000)
+    _no_error_text(page)
+    _shot(page, "curves-by-region")
+    assert page.problems == []
+
+
 def test_the_forms_view_draws_on_the_demo(page) -> None:
     page.get_by_role("radio", name="Forms", exact=True).first.click()
     page.get_by_text("combinations of forms").first.wait_for(timeout=60_000)

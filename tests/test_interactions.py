@@ -309,3 +309,41 @@ def test_group_approximation_meets_the_exact_effect_for_small_changes(x_t, seed)
     for e in core.analyze(data, spec, parts={"effects"})["effects"]:
         if e["column"] == "x":
             assert abs(e["approximate"] / e["exact"] - 1.0) <= 1e-3, e
+
+
+# --- the grid and the tables ---------------------------------------------------------------------------
+def test_the_grid_carries_the_moderator_and_sets_aside_one_that_is_not_a_regressor():
+    from app.gridspec import grid_to_spec, spec_to_grid
+
+    frame = pd.DataFrame({"y": [1.0, 2.0, 3.0], "price": [1.0, 2.0, 4.0], "region": ["a", "b", "a"]})
+    spec = {
+        "outcome": {"column": "y"},
+        "regressors": [{"column": "price", "transform": "log", "by": "region"}, {"column": "region", "transform": "category"}],
+    }
+    grid = spec_to_grid(spec, frame)
+    assert grid.set_index("column").at["price", "by"] == "region"
+    back, notes = grid_to_spec(grid)
+    assert back["regressors"][0]["by"] == "region" and notes == []
+    grid.loc[grid["column"] == "region", "role"] = "not used"
+    back, notes = grid_to_spec(grid)
+    assert "by" not in back["regressors"][0]
+    assert notes and "'region', which is not a regressor now" in notes[0]
+
+
+def test_tables_name_the_group_and_the_slope_test(hprice2):
+    from core.output import display, tables
+    from core.output.numbers import sig
+
+    result = core.analyze(hprice2, dict(HOUSE_SPEC, covariance="HC1"), parts={"terms", "effects"})
+    table = display.effects_table(result, HOUSE_SPEC)
+    assert table["Read at"].tolist()[:3] == [
+        f"rooms\u00a0=\u00a0{sig(v, 4)}" for v in np.quantile(hprice2["rooms"], [0.25, 0.5, 0.75])
+    ]
+    assert table["Read at"].tolist()[3:] == ["", ""]  # rooms (quadratic) gives one row, stratio one
+    lines = tables.slope_test_lines(result, HOUSE_SPEC)
+    assert len(lines) == 1 and "F = " in lines[0] and "on 2 and 499 df" in lines[0]  # 506 rows, 7 coefficients
+    assert any(line == lines[0] for line in tables.effects_table(result, HOUSE_SPEC).notes)
+    labels = display.coefficient_table(result, HOUSE_SPEC)["Term"].tolist()
+    assert labels[-2:] == ["log of nox × rooms", "log of nox × rooms^2"]
+    plain = display.effects_table(core.analyze(hprice2, {"outcome": {"column": "price"}, "regressors": [{"column": "rooms"}]}))
+    assert "Read at" not in plain.columns

@@ -139,7 +139,7 @@ def effects_table(result: dict[str, Any], spec: dict[str, Any] | None = None) ->
         rows.append(
             {
                 "Variable": variable_label(column, transforms.get(column)),
-                "Read at": group_text(effect.get("group")),
+                "Read at": group_text(effect.get("group")).replace(" = ", f"{NBSP}={NBSP}"),
                 "Change": change_text(effect, units.get(column)),
                 "First-order approximation": show(effect.get("approximate")),
                 "Exact": show(effect.get("exact")),

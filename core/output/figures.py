@@ -32,6 +32,7 @@ from matplotlib.ticker import MaxNLocator
 from matplotlib.transforms import Bbox
 
 from core.output import numbers, theme, unit_words
+from core.output.display import group_text
 from core.output.theme import (
     BEYOND_NAME,
     BLUE,
@@ -342,6 +343,11 @@ def _line(colour: str, width: float, style: str = "-") -> Line2D:
 # --- the charts -----------------------------------------------------------------------------------------
 
 
+def _at(curve: dict[str, Any]) -> str:
+    """' at region = Inland' for a curve read at a moderator's value (docs/contract.md §3.8-3.9)."""
+    return f" at {group_text(curve['group'])}" if curve.get("group") else ""
+
+
 def effect_subtitle(outcome_column: str, outcome_label: str, percent_effect: bool, unit: str | None = None) -> str:
     """The effect is on the outcome itself, whatever its transform: the subtitle says so."""
     what = (
@@ -397,7 +403,7 @@ def gap_figure(
         labels = ["Exact effect", "First-order approximation", "Gap between them"]
         top = _header(
             canvas,
-            f"How far the shortcut drifts: changing {column}",
+            f"How far the shortcut drifts: changing {column}{_at(curve)}",
             effect_subtitle(outcome_column, outcome_label, percent_effect, (units or {}).get(outcome_column)),
             handles,
             labels,
@@ -458,10 +464,10 @@ def curve_figure(
         )
         if curve["kind"] == "levels":
             handles, labels, x_axis = _levels(ax, curve, smear, naive, low, high, show_naive, main)
-            title = f"Predicted {outcome_column} by {column}"
+            title = f"Predicted {outcome_column} by {column}{_at(curve)}"
         else:
             handles, labels, x_axis = _continuous(ax, curve, smear, naive, low, high, show_naive, main)
-            title = f"Predicted {outcome_column} as {column} varies"
+            title = f"Predicted {outcome_column} as {column} varies{_at(curve)}"
         top = _header(canvas, title, subtitle, handles, labels)
         units = units or {}
         if curve["kind"] != "levels" and column in units:
