@@ -342,7 +342,7 @@ def test_tables_name_the_group_and_the_slope_test(hprice2):
     assert table["Read at"].tolist()[3:] == ["", ""]  # rooms (quadratic) gives one row, stratio one
     lines = tables.slope_test_lines(result, HOUSE_SPEC)
     assert len(lines) == 1 and "F = " in lines[0] and "on 2 and 499 df" in lines[0]  # 506 rows, 7 coefficients
-    assert any(line == lines[0] for line in tables.effects_table(result, HOUSE_SPEC).notes)
+    assert any(line == lines[0] for line in tables.effects_table(result, HOUSE_SPEC).footer)
     labels = display.coefficient_table(result, HOUSE_SPEC)["Term"].tolist()
     assert labels[-2:] == ["log of nox × rooms", "log of nox × rooms^2"]
     plain = display.effects_table(core.analyze(hprice2, {"outcome": {"column": "price"}, "regressors": [{"column": "rooms"}]}))
