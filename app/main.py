@@ -200,8 +200,8 @@ def variables_grid() -> pd.DataFrame:
         disabled=["column", "about"],
         width="stretch",
         column_config={
-            "column": st.column_config.TextColumn("Column", width=140, pinned=True),
-            "about": st.column_config.TextColumn("What it holds", width=150),
+            "column": st.column_config.TextColumn("Column", width=117, pinned=True),
+            "about": st.column_config.TextColumn("What it holds", width=132),
             "role": st.column_config.SelectboxColumn(
                 "Role", options=ROLES, required=True, width=95, help="Exactly one outcome; any number of regressors."
             ),
@@ -209,24 +209,24 @@ def variables_grid() -> pd.DataFrame:
                 "Transform",
                 options=options,
                 required=True,
-                width=140,
+                width=125,
                 format_func=lambda t: menu_word(t),
                 help="The outcome takes level, log, IHS, log(x + 1) or square root.",
             ),
-            "change": st.column_config.TextColumn("Change", width=95, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
+            "change": st.column_config.TextColumn("Change", width=80, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
             "by": st.column_config.SelectboxColumn(
                 "Varies by",
                 options=["", *ss[keys.GRID_BASE]["column"].map(str)],
-                width=110,
+                width=95,
                 help="Another regressor the effect of this one may depend on: the model adds their products, and "
                 "the effect is given for each level of a category (or at the quartiles of a number).",
             ),
             "reference": st.column_config.TextColumn(
-                "Reference", width=95, help="For categories: the reference level, the one the others are compared with."
+                "Reference", width=88, help="For categories: the reference level, the one the others are compared with."
             ),
             "unit": st.column_config.TextColumn(
                 "Unit",
-                width=95,
+                width=85,
                 help="What one unit of the column is. A noun in the singular (square foot, year) reads 'one more "
                 "square foot'; a symbol or rate (kg, °C, $ per week) reads '+1 kg'. Readings, axes and tables name it.",
             ),
