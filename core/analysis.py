@@ -22,7 +22,7 @@ from core.inference.retransform import boxcox_profile, fit_on_original_scale, pr
 from core.inference.scenarios import compute_scenarios
 from core.inference.sweep import sweep_section
 from core.inference.units import needs_units_check, units_check
-from core.model.design import ColumnCache, Design
+from core.model.design import SINGLETON, ColumnCache, Design
 from core.model.engine import single_threaded_blas
 from core.model.fitted import Model, fit_model
 from core.model.ols import NEAR_COLLINEAR, OLSFit
@@ -120,8 +120,10 @@ def analyze(
         "reference_point": design.reference,
         "time_series": model.time_series,
         "column_units": dict(model_spec.units),
+        "absorb": _absorb_header(design, model_spec),
     }
     run.warnings.extend(fit.warnings)
+    run.warnings.extend(_absorb_warnings(model_spec))
     run.warnings.extend(_time_series_warnings(model.time_series, model_spec.covariance))
     if small_sample(fit.n, fit.k):
         run.warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
@@ -137,6 +139,36 @@ def analyze(
     result["warnings"] = list(dict.fromkeys(run.warnings))
     result["cautions"] = CAUTIONS
     return json_safe(result)
+
+
+def _absorb_header(design: Design, model_spec: ModelSpec) -> dict[str, Any] | None:
+    """What was absorbed (docs/contract.md §3.1): the identifiers, their levels, the parameters
+    they take, the singletons dropped, the sweeps, and the fixed effect effects and curves use."""
+    absorbed = design.absorbed
+    if absorbed is None:
+        return None
+    chosen = {c: str(model_spec.at[c]) for c in absorbed.columns if c in model_spec.at}
+    singletons = sum(d["count"] for d in design.dropped if d["reason"] == SINGLETON)
+    return {
+        "columns": list(absorbed.columns),
+        "levels": list(absorbed.levels),
+        "dof": absorbed.dof,
+        "singletons": singletons,
+        "sweeps": absorbed.sweeps,
+        "read_at": dict(list(chosen.items())[:1]) or "average",
+    }
+
+
+def _absorb_warnings(model_spec: ModelSpec) -> list[str]:
+    """Absorbing an identifier without clustering by it: rows of one unit usually move together."""
+    if not model_spec.absorb or model_spec.covariance == "cluster":
+        return []
+    first = model_spec.absorb[0]
+    return [
+        f"the fixed effects of '{first}' are absorbed but the standard errors are {model_spec.covariance}: rows of the "
+        f"same {first} usually share more than their fixed effect, so clustered errors by '{first}' are the usual choice "
+        "(Cameron & Miller 2015, J. Human Resources 50(2))."
+    ]
 
 
 def _diagnostics(run: _Run) -> dict[str, Any] | None:
@@ -174,7 +206,7 @@ def _fit_section(run: _Run) -> dict[str, Any]:
             "pseudo-likelihood is not comparable with the least-squares models' original-scale likelihoods."
         )
     else:
-        measures = fit_on_original_scale(run.model, run.design.y_raw, fit.fitted, fit.loglik, fit.k, run.design.y)
+        measures = fit_on_original_scale(run.model, run.design.y_raw, fit.fitted, fit.loglik, fit.k + fit.absorbed, run.design.y)
     return {
         "fit": {
             "r2": fit.r2,
@@ -279,7 +311,12 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"distributions"}), lambda r: {"distributions": variable_distributions(r.data, r.spec)}),
     (
         frozenset({"boxcox"}),
-        lambda r: {"boxcox": None if r.ppml else boxcox_profile(r.design.y_raw, r.design.X, r.design.weights)},
+        # With absorbed fixed effects each λ would need its own sweep of the outcome: not profiled.
+        lambda r: {
+            "boxcox": None
+            if r.ppml or r.design.absorbed is not None
+            else boxcox_profile(r.design.y_raw, r.design.X, r.design.weights)
+        },
     ),
     (frozenset({"predictions"}), _predictions_section),
     (frozenset({"effects"}), _effects_section),

@@ -162,6 +162,11 @@ def _default(values: np.ndarray, role: str, binary: bool) -> list[Transform]:
 def _setup(
     data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec, columns: ColumnCache | None, base: Design | None = None
 ) -> _Setup:
+    if model_spec.absorb:
+        raise SpecError(
+            "spec.sweep: the sweep compares forms without absorbed fixed effects; remove 'absorb' to sweep the forms "
+            "(or enter the identifier as a category if it has few levels)."
+        )
     crossed = [r.column for r in model_spec.regressors if r.by]
     if crossed:
         # The sweep's shared table holds each candidate's basis columns, not products of them.

@@ -109,6 +109,17 @@ class Rows:
     notes: dict = field(default_factory=dict)
     # Σ (rᵢuᵢ)² XᵢXᵢ' when the fit summed it already (see CovarianceKind.reads_score_gram).
     score_gram: np.ndarray | None = None
+    # Absorbed fixed effects (core.model.absorb): the parameters they add to k, and whether the
+    # one absorbed identifier is nested in the clusters (then not counted in their factor).
+    absorbed: int = 0
+    nested: bool = False
+    groups_second: np.ndarray | None = None  # two-way clustering's second grouping
+
+    @property
+    def n_k(self) -> tuple[int, int]:
+        """Rows and parameters: the design's columns plus the absorbed fixed effects."""
+        n, k = self.X.shape
+        return n, k + self.absorbed
 
     @property
     def factor(self) -> np.ndarray:
@@ -118,7 +129,7 @@ class Rows:
 
 class Classical(CovarianceKind):
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
-        n, k = rows.X.shape
+        n, k = rows.n_k
         return rows.scale * rows.bread, n - k
 
 
@@ -134,11 +145,16 @@ class HeteroskedasticityRobust(CovarianceKind):
         return not self.power
 
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
-        n, k = rows.X.shape
+        n, k = rows.n_k
         correction = n / (n - k) if self.small_sample else 1.0
         if not self.power and rows.score_gram is not None:
             return correction * (rows.bread @ rows.score_gram @ rows.bread), n - k
         factor = rows.factor
+        if self.power and rows.absorbed:
+            raise DataError(
+                f"{self.name} needs each row's leverage in the model with the absorbed fixed effects, which sweeping them "
+                "out does not give; use HC1 or clustered standard errors."
+            )
         if self.power:
             weights = None if rows.row_scale is None else rows.row_scale * rows.row_scale
             h = leverage(rows.X, rows.bread, weights)
@@ -154,13 +170,36 @@ class HeteroskedasticityRobust(CovarianceKind):
 
 
 class Clustered(CovarianceKind):
-    """M = Σ_g (X̃_g'u_g)(X̃_g'u_g)' · G/(G-1) · (n-1)/(n-k); G-1 degrees of freedom."""
+    """M = Σ_g (X̃_g'u_g)(X̃_g'u_g)' · G/(G-1) · (n-1)/(n-k); G-1 degrees of freedom.
+
+    Two-way (a second grouping): V = V_a + V_b - V_ab, each from its own grouping (ab: the
+    pairs of groups met in the rows) with its own G/(G-1)·(n-1)/(n-k); where a variance comes
+    out negative, the sum's negative eigenvalues are set to zero; min(G_a, G_b) - 1 degrees of
+    freedom (Cameron, Gelbach & Miller 2011,
+    JBES 29(2), eqs. 2.11-2.13 and §2.3). With absorbed fixed effects k counts their levels,
+    except for one identifier nested in the clusters (``Rows.nested``)."""
 
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
-        n, k = rows.X.shape
         if rows.groups is None:
             raise DataError("cluster-robust standard errors need a cluster column; name one in 'cluster'.")
-        codes, uniques = _group_codes(rows.groups)
+        if rows.groups_second is None:
+            meat, n_groups = self._meat(rows, rows.groups)
+            return rows.bread @ meat @ rows.bread, n_groups - 1
+        meat_a, groups_a = self._meat(rows, rows.groups)
+        meat_b, groups_b = self._meat(rows, rows.groups_second)
+        pairs = pd.factorize(pd.MultiIndex.from_arrays([np.asarray(rows.groups), np.asarray(rows.groups_second)]))[0]
+        meat_ab, _ = self._meat(rows, pairs)
+        cov = rows.bread @ (meat_a + meat_b - meat_ab) @ rows.bread
+        if np.any(np.diag(cov) < 0):  # the eigenvalue fix of CGM 2011 §2.3, only when a variance is negative
+            values, vectors = np.linalg.eigh((cov + cov.T) / 2.0)
+            cov = (vectors * np.clip(values, 0.0, None)) @ vectors.T
+        return cov, min(groups_a, groups_b) - 1
+
+    def _meat(self, rows: Rows, groups: np.ndarray) -> tuple[np.ndarray, int]:
+        """Σ_g (X̃_g'u_g)(X̃_g'u_g)' times the grouping's small-sample factor, and its G."""
+        n, k = rows.X.shape
+        counted = k if rows.nested else k + rows.absorbed
+        codes, uniques = _group_codes(groups)
         n_groups = len(uniques)
         if n_groups < 2:
             raise DataError(
@@ -173,8 +212,8 @@ class Clustered(CovarianceKind):
             part = codes[start : start + CHUNK_ROWS]
             for j in range(k):
                 summed[:, j] += np.bincount(part, weights=scores[:, j], minlength=n_groups)
-        small_sample = n_groups / (n_groups - 1) * (n - 1) / (n - k)
-        return small_sample * (rows.bread @ (summed.T @ summed) @ rows.bread), n_groups - 1
+        small_sample = n_groups / (n_groups - 1) * (n - 1) / (n - counted)
+        return small_sample * (summed.T @ summed), n_groups
 
 
 def _scores(rows: Rows, positions: np.ndarray) -> np.ndarray:
@@ -221,7 +260,7 @@ class TimeSeriesRobust(CovarianceKind):
     per_period: bool = False
 
     def estimate(self, rows: Rows) -> tuple[np.ndarray, int]:
-        n, k = rows.X.shape
+        n, k = rows.n_k
         if rows.time is None:
             raise DataError(f"{self.name} standard errors need a time column; name one in 'time'.")
         time = np.asarray(rows.time, dtype=np.int64)
@@ -334,12 +373,22 @@ def covariance(
     time: np.ndarray | None = None,
     lags: int | None = None,
     notes: dict | None = None,
+    groups_second: np.ndarray | None = None,
+    nested: bool = False,
 ) -> tuple[np.ndarray, int]:
     """Covariance of least-squares coefficients and the degrees of freedom for t intervals;
-    ``time``, ``lags`` and ``notes`` as in ``Rows``."""
+    ``time``, ``lags``, ``notes``, ``groups_second`` and ``nested`` as in ``Rows`` (the fit's
+    absorbed fixed effects counted)."""
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid if root_w is None else fit.resid * root_w
-    return sandwich(fit.xtx_inv, X, u, kind, groups, fit.sigma**2, root_w, time, lags, notes, score_gram=fit.score_gram)
+    found = COVARIANCE_KINDS.get(kind)
+    if found is None:
+        raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
+    rows = Rows(
+        fit.xtx_inv, X, u, groups, fit.sigma**2, root_w, time, lags, {} if notes is None else notes, fit.score_gram,
+        fit.absorbed, nested, groups_second,
+    )  # fmt: skip
+    return found.estimate(rows)
 
 
 def sandwich(

@@ -27,6 +27,7 @@ import pandas as pd
 
 from core.errors import DataError
 from core.model import engine
+from core.model.absorb import Absorbed, absorb, singleton_rows
 from core.model.spec import ModelSpec, RegressorSpec
 from core.model.transforms import Category, Transform
 
@@ -238,6 +239,8 @@ class Design:
     warnings: list[str]
     reference: dict[str, Any]
     time: np.ndarray | None = None  # period number of each used row (0 = the first used), see ``periods``
+    groups_second: np.ndarray | None = None  # the second grouping of two-way clustered errors
+    absorbed: Absorbed | None = None  # the fixed effects swept out of X (core.model.absorb)
     resample_groups: np.ndarray | None = None  # the bootstrap's cluster labels, used rows
     ranges: dict[str, tuple[float, float]] = field(default_factory=dict)  # numeric regressors, used rows
 
@@ -443,6 +446,9 @@ def _forward_all_rows(transform: Transform, x: np.ndarray) -> np.ndarray:
         return np.asarray(transform.forward(x), dtype=float)
 
 
+SINGLETON = "alone in its level of an absorbed identifier (singleton)"
+
+
 class _Drops:
     """The rows kept so far, and each reason rows were dropped, counted per column."""
 
@@ -461,6 +467,8 @@ class _Drops:
         """A sentence per reason other than missing or infinite cells, and one for those."""
         out = []
         for entry in self.dropped:
+            if entry["reason"] == SINGLETON:
+                continue  # said in the notes
             if entry["column"] == weights and entry["reason"] == "weights must be above zero":
                 out.append(f"{entry['count']} row(s) dropped because their weight in '{weights}' is zero or negative.")
             elif entry["reason"] not in ("missing value", "infinite value"):
@@ -484,7 +492,9 @@ class _Columns:
     numbers: dict[str, Numbers] = field(default_factory=dict)
     coded: dict[str, Coded] = field(default_factory=dict)
     groups: np.ndarray | None = None
+    groups_second: np.ndarray | None = None
     resample_groups: np.ndarray | None = None
+    absorbed: dict[str, Coded] = field(default_factory=dict)  # the absorbed identifiers' codes
 
 
 def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Callable[..., Any]) -> _Columns:
@@ -495,6 +505,13 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         clusters = data[spec.cluster]
         found.groups = clusters.astype(str).to_numpy()
         drops.drop(clusters.isna().to_numpy(), spec.cluster, "missing value")
+    if spec.cluster_second:
+        second = data[spec.cluster_second]
+        found.groups_second = second.astype(str).to_numpy()
+        drops.drop(second.isna().to_numpy(), spec.cluster_second, "missing value")
+    for column in spec.absorb:
+        found.absorbed[column] = cached(("codes", column), lambda c=column: _category_codes(data[c]))
+        drops.drop(found.absorbed[column].codes < 0, column, "missing value")
     resample = spec.bootstrap.cluster if spec.bootstrap is not None else None
     if resample:
         labels = data[resample]
@@ -502,7 +519,8 @@ def _read_columns(data: pd.DataFrame, spec: ModelSpec, drops: _Drops, cached: Ca
         if resample != spec.cluster:
             drops.drop(labels.isna().to_numpy(), resample, "missing value")
     others = {spec.outcome_column, spec.weights, spec.time, *(r.column for r in spec.regressors)}
-    wanted = [c for c in spec.columns if not (c in (spec.cluster, resample) and c not in others)]
+    labels_only = (spec.cluster, spec.cluster_second, resample, *spec.absorb)
+    wanted = [c for c in spec.columns if not (c in labels_only and c not in others)]
     numeric = [c for c in wanted if c not in categories]
     # Each numeric column's conversion and range (a million-row pass or two) on the passes' threads.
     converted = engine.each_column(
@@ -694,6 +712,8 @@ def build_design(
     _drop_outside_domains(spec, found, drops, cached)
     if within is not None:
         drops.keep &= within
+    if spec.absorb:
+        _drop_singletons(spec, found, drops)
     raw = found.raw
 
     n = int(np.count_nonzero(drops.keep))
@@ -739,6 +759,8 @@ def build_design(
             f"the outcome '{spec.outcome_column}' has the same value ({y_raw[0]:g}) in every row used; "
             "there is nothing to explain. Pick another outcome."
         )
+    weights = used(raw[spec.weights]) if spec.weights else None
+    absorbed = _absorb(spec, found, X, y, weights, None if every_row else rows, terms, drops)
     return Design(
         y=y,
         y_raw=y_raw,
@@ -746,8 +768,10 @@ def build_design(
         terms=terms,
         encoder=encoder,
         values=values,
-        weights=used(raw[spec.weights]) if spec.weights else None,
+        weights=weights,
         groups=used(found.groups) if found.groups is not None else None,
+        groups_second=used(found.groups_second) if found.groups_second is not None else None,
+        absorbed=absorbed,
         time=periods(raw[spec.time], rows, spec.time) if spec.time else None,
         resample_groups=used(found.resample_groups) if found.resample_groups is not None else None,
         rows=rows,
@@ -757,6 +781,46 @@ def build_design(
         reference=reference_point(spec, blocks, values, layout.modes, _means_taken(found, numeric) if every_row else None),
         ranges=layout.ranges,
     )
+
+
+def _drop_singletons(spec: ModelSpec, found: _Columns, drops: _Drops) -> None:
+    """Rows alone in a level of an absorbed identifier, dropped repeatedly (core.model.absorb)."""
+    lonely = singleton_rows([found.absorbed[c].codes for c in spec.absorb], drops.keep)
+    count = int(np.count_nonzero(lonely))
+    if count:
+        drops.drop(lonely, spec.absorb[0], SINGLETON)
+        drops.notes.append(
+            f"{count:,} row(s) dropped because they are alone in their level of {' or '.join(spec.absorb)} (singletons): "
+            "their own fixed effect fits them exactly, so they tell nothing about the slopes."
+        )
+
+
+def _absorb(
+    spec: ModelSpec,
+    found: _Columns,
+    X: np.ndarray,
+    y: np.ndarray,
+    weights: np.ndarray | None,
+    rows: np.ndarray | None,
+    terms: list[Term],
+    drops: _Drops,
+) -> Absorbed | None:
+    """Sweep the absorbed identifiers' fixed effects out of X (in place) and y, on the used rows."""
+    if not spec.absorb:
+        return None
+    coded = []
+    for column in spec.absorb:
+        codes = found.absorbed[column].codes
+        coded.append((codes if rows is None else codes[rows], found.absorbed[column].names))
+    record, warnings = absorb(X, y, spec.absorb, coded, weights, [t.name for t in terms])
+    drops.notes.extend(warnings)
+    n, k = X.shape
+    if n <= k + record.dof:
+        raise DataError(
+            f"the model has {k} coefficients and {record.dof:,} absorbed fixed effects but only {n:,} usable rows; it needs "
+            "more rows than both together. Absorb fewer identifiers or load more data."
+        )
+    return record
 
 
 def _cached_bases(
@@ -938,7 +1002,7 @@ def rescaled_design(
     the clusters or the outcome), and the design must be built afresh. ``work``, a copy of
     ``design.X`` that may be overwritten, saves allocating one.
     """
-    if column in (spec.weights, spec.cluster, spec.outcome_column) or design.encoder.crossed(column):
+    if column in (spec.weights, spec.cluster, spec.outcome_column) or design.encoder.crossed(column) or design.absorbed:
         return None
     block = design.encoder.block(column)
     regressor = next(r for r in spec.regressors if r.column == column)

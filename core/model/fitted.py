@@ -16,8 +16,10 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from core.errors import DataError
+from core.model.absorb import Absorbed
 from core.model.covariance import COVARIANCE_KINDS, covariance, sandwich
-from core.model.design import ColumnCache, Design, build_design
+from core.model.design import ColumnCache, Design, build_design, match_level, unknown_level
 from core.model.ols import OLSFit, fit_ols
 from core.model.ppml import fit_ppml
 from core.model.spec import ModelSpec
@@ -124,15 +126,22 @@ def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, M
     kind = COVARIANCE_KINDS.get(model_spec.covariance)
     # The HC0/HC1 meat is summed in the fit's last residual pass (no pass of its own over X).
     scores = kind is not None and kind.reads_score_gram and model_spec.estimator != "ppml"
+    absorbed = design.absorbed
     with np.errstate(all="ignore"):
-        fit = fit_ols(design.X, design.y, design.weights, names, scores)  # also screens for collinearity
+        fit = fit_ols(design.X, design.y if absorbed is None else absorbed.y_within, design.weights, names, scores)
         if model_spec.estimator == "ppml":
             return _fit_ppml(design, model_spec, fit)
+        if absorbed is not None:
+            fit = _with_absorbed(fit, design)
         notes: dict[str, Any] = {}
-        cov, df = covariance(fit, design.X, model_spec.covariance, design.groups, design.time, model_spec.lags, notes)
+        nested = absorbed is not None and design.groups is not None and absorbed.nested_in(design.groups, design.groups_second)
+        cov, df = covariance(
+            fit, design.X, model_spec.covariance, design.groups, design.time, model_spec.lags, notes,
+            groups_second=design.groups_second, nested=nested,
+        )  # fmt: skip
     model = Model(
         design=design,
-        coef=fit.coef,
+        coef=fit.coef if absorbed is None else _at_level(fit.coef, absorbed, model_spec),
         cov=cov,
         df=df,
         outcome=model_spec.outcome_transform,
@@ -140,6 +149,44 @@ def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, M
         time_series=_time_series(model_spec, notes),
     )
     return design, fit, model
+
+
+def _with_absorbed(fit: OLSFit, design: Design) -> OLSFit:
+    """The fit on the swept data as the dummy-variable regression reports it: its degrees of
+    freedom (the absorbed levels counted), s², R² against g(y) itself, fitted values g(y) - e
+    (the fixed effects included). The residuals and slopes are already the same."""
+    d = design.absorbed.dof
+    n, k = fit.n, fit.k
+    y = design.y
+    w = design.weights
+    centred = y - np.average(y, weights=w)
+    sst = float(np.dot(centred * (w if w is not None else 1.0), centred))
+    r2 = 1.0 - fit.ssr / sst if sst > 0 else float("nan")
+    return replace(
+        fit,
+        absorbed=d,
+        fitted=y - fit.resid,
+        r2=r2,
+        adj_r2=1.0 - (n - 1) / (n - k - d) * (1.0 - r2),
+        sigma=float(np.sqrt(fit.ssr / (n - k - d))),
+    )
+
+
+def _at_level(coef: np.ndarray, absorbed: Absorbed, model_spec: ModelSpec) -> np.ndarray:
+    """The coefficients effects, curves and predictions read: the intercept is the rows' average
+    absorbed effect, or with ``at`` naming a level of an absorbed identifier that level's own
+    (``Absorbed.level_effect``)."""
+    chosen = [c for c in absorbed.columns if c in model_spec.at]
+    if not chosen:
+        return coef
+    column = chosen[0]
+    level = match_level(model_spec.at[column], absorbed.names[absorbed.columns.index(column)].tolist())
+    if level is None:
+        names = absorbed.names[absorbed.columns.index(column)].tolist()
+        raise DataError(unknown_level(f"spec.at.{column}", model_spec.at[column], column, names))
+    out = coef.copy()
+    out[0] = absorbed.level_effect(column, level, coef)
+    return out
 
 
 def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[Design, OLSFit, Model]:

@@ -106,10 +106,12 @@ class OLSFit:
     warnings: list[str] = field(default_factory=list)
     # Σ (wᵢeᵢ)² xᵢxᵢ' (the HC0/HC1 meat), formed in the last residual pass when asked for.
     score_gram: np.ndarray | None = None
+    # Parameters of fixed effects absorbed before the fit (core.model.absorb), beyond the k.
+    absorbed: int = 0
 
     @property
     def df_resid(self) -> int:
-        return self.n - self.k
+        return self.n - self.k - self.absorbed
 
 
 def row_chunks(n: int, size: int | None = None) -> range:

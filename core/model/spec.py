@@ -34,7 +34,10 @@ TOP_KEYS = {
     "scenarios",
     "bootstrap",
     "sweep",  # validated by core.inference.sweep (docs/contract.md §2.13)
+    "absorb",
 }
+# The most fixed-effect factors absorbed at once (each more adds sweeps of alternating projections).
+MAX_ABSORBED = 4
 OUTCOME_KEYS = {"column", "transform", "unit"}
 REGRESSOR_KEYS = {"column", "transform", "change", "reference", "unit", "by", "at"}
 # The most values of a moderator the effects of one regressor are given at (docs/contract.md §2.4).
@@ -131,12 +134,14 @@ class ModelSpec:
     scenarios: tuple[Scenario, ...] = ()
     bootstrap: Bootstrap | None = None
     units: dict[str, str] = field(default_factory=dict)  # column -> its unit, as the user named it
+    absorb: tuple[str, ...] = ()  # identifiers whose fixed effects are swept out (core.model.absorb)
+    cluster_second: str | None = None  # the second grouping of two-way clustered errors
 
     @property
     def columns(self) -> list[str]:
         """Every data column the model reads, outcome first, without repeats."""
         cols = [self.outcome_column] + [r.column for r in self.regressors]
-        cols += [c for c in (self.weights, self.cluster, self.time) if c]
+        cols += [c for c in (self.weights, self.cluster, self.cluster_second, self.time, *self.absorb) if c]
         if self.bootstrap is not None and self.bootstrap.cluster:
             cols.append(self.bootstrap.cluster)
         return list(dict.fromkeys(cols))
@@ -316,6 +321,14 @@ def _parse_estimation(
     if COVARIANCE_KINDS[covariance].needs_groups:
         if not cluster:
             raise SpecError("spec.cluster: covariance 'cluster' needs 'cluster' naming the column that defines the groups.")
+        if isinstance(cluster, list):
+            if not 1 <= len(cluster) <= 2 or len(set(map(str, cluster))) < len(cluster):
+                raise SpecError(
+                    "spec.cluster: name one grouping column, or a list of two different ones for two-way clustering "
+                    '(e.g. ["kiosk_id", "week"]).'
+                )
+            cluster = [_require_column(c, data, "spec.cluster") for c in cluster]
+            return estimator, covariance, cluster, *_parse_time(spec, data, covariance)  # type: ignore[return-value]
         cluster = _require_column(cluster, data, "spec.cluster")
     elif cluster:
         raise SpecError(
@@ -350,14 +363,21 @@ def _parse_time(spec: dict, data: pd.DataFrame, covariance: str) -> tuple[str | 
     return time, lags
 
 
-def _parse_points(spec: dict, regressors: list[RegressorSpec]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
-    """The reference values ``at`` and the prediction points, each naming regressors of the model."""
+def _parse_points(
+    spec: dict, regressors: list[RegressorSpec], absorb: tuple[str, ...] = ()
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """The reference values ``at`` (regressors, and a level of an absorbed identifier) and the
+    prediction points, each naming regressors of the model."""
     at = spec.get("at") or {}
     if not isinstance(at, dict):
         raise SpecError('spec.at: must be an object of reference values, e.g. {"drink_price": 4.5}.')
     at = dict(at)  # the caller's spec is never changed
     by_column = {r.column: r for r in regressors}
     for key, value in at.items():
+        if key in absorb:
+            if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+                raise SpecError(f"spec.at.{key}: name one level of the absorbed identifier '{key}'.")
+            continue
         if key not in by_column:
             raise SpecError(f"spec.at: '{key}' is not a regressor of this model; remove it or add the regressor.")
         at[key] = _point_value(value, by_column[key], f"spec.at.{key}")
@@ -419,7 +439,9 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
     estimator, covariance, cluster, time, lags = _parse_estimation(spec, data, outcome_transform)
     weights = _parse_weights(spec, data, regressors)
 
-    at, predict = _parse_points(spec, regressors)
+    absorb = _parse_absorb(spec, data, outcome_column, regressors, weights, estimator)
+    at, predict = _parse_points(spec, regressors, absorb)
+    clusters = cluster if isinstance(cluster, list) else [cluster]
     name = spec.get("name")
     if name is not None and not isinstance(name, str):
         raise SpecError("spec.name: must be text.")
@@ -430,7 +452,8 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         regressors=tuple(regressors),
         estimator=estimator,
         covariance=covariance,
-        cluster=cluster,
+        cluster=clusters[0],
+        cluster_second=clusters[1] if len(clusters) > 1 else None,
         weights=weights,
         at=dict(at),
         name=name,
@@ -440,7 +463,43 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         scenarios=_parse_scenarios(spec, regressors),
         bootstrap=_parse_bootstrap(spec, data, estimator),
         units=_parse_units(spec, outcome_column, regressors),
+        absorb=absorb,
     )
+
+
+def _parse_absorb(
+    spec: dict, data: pd.DataFrame, outcome_column: str, regressors: list[RegressorSpec], weights: str | None, estimator: str
+) -> tuple[str, ...]:
+    """The identifiers whose fixed effects are absorbed (docs/contract.md §2.15)."""
+    entries = spec.get("absorb")
+    if entries in (None, []):
+        return ()
+    if isinstance(entries, str):
+        entries = [entries]
+    if not isinstance(entries, list) or len(entries) > MAX_ABSORBED:
+        raise SpecError(f'spec.absorb: must be a list of at most {MAX_ABSORBED} identifier columns, e.g. ["kiosk_id", "week"].')
+    used = {r.column for r in regressors}
+    out: list[str] = []
+    for i, entry in enumerate(entries):
+        where = f"spec.absorb[{i}]"
+        column = _require_column(entry, data, where)
+        if column in out:
+            raise SpecError(f"{where}: '{column}' is listed twice; absorb each identifier once.")
+        if column == outcome_column or column == weights:
+            role = "the outcome" if column == outcome_column else "the weights"
+            raise SpecError(f"{where}: '{column}' is {role}; absorb an identifier such as a store, firm or week column.")
+        if column in used:
+            raise SpecError(
+                f"{where}: '{column}' is also a regressor; its fixed effects absorb it entirely. Keep it in one place."
+            )
+        out.append(column)
+    if estimator == "ppml":
+        raise SpecError(
+            "spec.absorb: absorbed fixed effects work with least squares only; use estimator 'ols' or enter them as a category."
+        )
+    if spec.get("bootstrap") is not None:
+        raise SpecError("spec.absorb: the bootstrap refits without the absorbed fixed effects; remove 'bootstrap' or 'absorb'.")
+    return tuple(out)
 
 
 def parse_unit(value: object, where: str) -> str | None:
