@@ -20,7 +20,7 @@ from core.output.numbers import compact
 GRID_COLUMNS = ["column", "about", "role", "transform", "change", "by", "reference", "unit"]
 
 
-ROLES = ["outcome", "regressor", "not used"]
+ROLES = ["outcome", "regressor", "absorb", "not used"]
 
 
 class GridError(ValueError):
@@ -68,6 +68,7 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
     entries = profile_entries(profile)
     outcome = spec.get("outcome") or {}
     by_column = {r["column"]: r for r in spec.get("regressors") or []}
+    absorbed = [str(c) for c in spec.get("absorb") or []]
     # The model's own variables first (outcome, then regressors in the spec's order), so the
     # grid reads like the spec; the unused columns follow in the file's order.
     names = [str(c) for c in frame.columns]
@@ -99,6 +100,8 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
                 reference=_text(entry.get("reference")),
                 unit=_text(entry.get("unit")),
             )
+        elif name in absorbed:
+            row.update(role="absorb", transform="category")
         elif advice.get("suggested_transform") in menu_codes("regressor"):
             row["transform"] = advice["suggested_transform"]
         else:
@@ -137,7 +140,7 @@ def _is_number(text: str) -> bool:
 def grid_to_spec(
     grid: pd.DataFrame,
     covariance: str = "HC1",
-    cluster: str | None = None,
+    cluster: str | list[str] | None = None,
     at: dict[str, Any] | None = None,
     estimator: str = "ols",
 ) -> tuple[dict[str, Any], list[str]]:
@@ -197,6 +200,7 @@ def grid_to_spec(
         regressors.append(entry)
     used = {r["column"] for r in regressors}
     notes += _moderators(grid, regressors, used)
+    absorbed = [_text(r["column"]) for r in grid.to_dict("records") if _text(r.get("role")) == "absorb"]
     outcome_entry = {"column": _text(outcome["column"]), "transform": outcome_transform}
     if _text(outcome.get("unit")):
         outcome_entry["unit"] = _text(outcome.get("unit"))
@@ -209,7 +213,34 @@ def grid_to_spec(
         "weights": None,
         "at": {k: v for k, v in (at or {}).items() if k in used},
     }
+    if absorbed:
+        spec["absorb"] = absorbed
     return spec, notes
+
+
+def constant_within(frame: pd.DataFrame, grid: pd.DataFrame, column: str) -> list[str]:
+    """The regressors of the grid that never change within a level of ``column``: absorbing its
+    fixed effects absorbs them too."""
+    regressors = [_text(r["column"]) for r in grid.to_dict("records") if _text(r.get("role")) == "regressor"]
+    regressors = [c for c in regressors if c in frame.columns and c != column]
+    if not regressors or column not in frame.columns:
+        return []
+    changes = frame.groupby(frame[column].astype(str), sort=False)[regressors].nunique(dropna=True).max()
+    return [c for c in regressors if int(changes[c]) <= 1]
+
+
+def with_absorbed(frame: pd.DataFrame, grid: pd.DataFrame, column: str) -> tuple[pd.DataFrame, list[str]]:
+    """The grid with ``column`` absorbed and the regressors constant within its levels set to
+    'not used' (their effect is in the fixed effects); the regressors so moved."""
+    moved = constant_within(frame, grid, column)
+    out = grid.copy()
+    for i in out.index:
+        name = _text(out.at[i, "column"])
+        if name == column:
+            out.at[i, "role"] = "absorb"
+        elif name in moved:
+            out.at[i, "role"] = "not used"
+    return out, moved
 
 
 def _moderators(grid: pd.DataFrame, regressors: list[dict[str, Any]], used: set[str]) -> list[str]:

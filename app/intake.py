@@ -28,7 +28,7 @@ import streamlit as st
 
 import core
 from app import keys
-from app.gridspec import LOCKED_KINDS, _text, profile_entries
+from app.gridspec import LOCKED_KINDS, _text, profile_entries, with_absorbed
 from core.intake.advisor import suggest_with_notes
 from core.intake.profile import profile_table
 from core.intake.reader import read_table_with_notes
@@ -177,7 +177,12 @@ def locked_columns(profile: dict[str, Any] | None) -> dict[str, str]:
 
 def lock_roles(grid: pd.DataFrame, locked: Mapping[str, str]) -> tuple[pd.DataFrame, list[str]]:
     """The grid with every locked column back to 'not used', and the columns that moved."""
-    moved = [i for i in grid.index if _text(grid.at[i, "column"]) in locked and _text(grid.at[i, "role"]) not in ("", "not used")]
+    # An identifier may be absorbed (its levels' fixed effects swept out) without unlocking it.
+    moved = [
+        i
+        for i in grid.index
+        if _text(grid.at[i, "column"]) in locked and _text(grid.at[i, "role"]) not in ("", "not used", "absorb")
+    ]
     if not moved:
         return grid, []
     fixed = grid.copy()
@@ -325,3 +330,60 @@ def unlock_checkbox() -> None:
         help=f"{names}: labels of rows rather than variables, so the grid keeps them 'not used'. An identifier can "
         "still group rows for clustered standard errors (sidebar).",
     )
+
+
+def absorb_offer(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) -> None:
+    """The advisor's panel proposal (absorb an identifier that repeats over time, cluster by it)
+    as one button, while that identifier is not absorbed yet."""
+    ss = st.session_state
+    data = ss.get(keys.DATA) or {}
+    note = next((n for n in data.get("advice") or [] if n.get("about") == "absorb"), None)
+    roles = dict(zip(grid["column"].map(_text), grid["role"].map(_text), strict=False))
+    if note is None or roles.get(note["column"]) == "absorb" or note["column"] not in roles:
+        return
+    column = note["column"]
+    left, right = st.columns([5, 2], vertical_alignment="center")
+    with left:
+        st.caption(plain(sentence_case(note["text"])))
+    with right:
+        if st.button(f"Absorb {column}", key="absorb_offer", help=f"Role 'absorb' for {column}; errors clustered by it."):
+            fixed, moved = with_absorbed(data["frame"], grid, column)
+            ss[keys.COVARIANCE] = "cluster"
+            ss[keys.CLUSTER_COLUMN] = column
+            ss[keys.ABSORBED_SEEN] = [column]
+            ss[keys.ABSORB_MESSAGE] = absorb_words(column, moved)
+            restart(fixed)
+            st.rerun()
+
+
+def absorb_words(column: str, moved: list[str]) -> str:
+    """What absorbing ``column`` changed: the errors now clustered by it, and the regressors that
+    left the model because they never change within its levels."""
+    text = f"The fixed effects of {column} are absorbed and the standard errors clustered by {column}."
+    if moved:
+        verb = "does" if len(moved) == 1 else "do"
+        text += (
+            f" {join_words(moved)} {verb} not change within a {column}, so {'its' if len(moved) == 1 else 'their'} effect "
+            f"is part of the fixed effects; {'it is' if len(moved) == 1 else 'they are'} set to 'not used'."
+        )
+    return text
+
+
+def cluster_by_new_absorbed(grid: pd.DataFrame) -> None:
+    """When an identifier is newly given the role 'absorb', cluster the errors by it (the usual
+    choice with absorbed fixed effects), once, and say so; the user may change it back."""
+    ss = st.session_state
+    absorbed = [_text(c) for c, r in zip(grid["column"], grid["role"], strict=False) if _text(r) == "absorb"]
+    new = [c for c in absorbed if c not in (ss.get(keys.ABSORBED_SEEN) or [])]
+    ss[keys.ABSORBED_SEEN] = absorbed
+    if new and ss.get(keys.COVARIANCE) != "cluster":
+        ss[keys.COVARIANCE] = "cluster"
+        ss[keys.CLUSTER_COLUMN] = new[0]
+        ss[keys.ABSORB_MESSAGE] = (
+            f"The standard errors are now clustered by {new[0]}: rows of the same {new[0]} usually share more than their "
+            "fixed effect. Change it under Standard errors if the design says otherwise."
+        )
+        st.rerun()
+    message = ss.pop(keys.ABSORB_MESSAGE, None)
+    if message:
+        st.info(plain(message))

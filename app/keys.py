@@ -50,3 +50,7 @@ SCENARIOS = "scenarios"
 SCENARIO_NAME = "scenario_name"
 SCENARIO_PICK = "scenario_pick"
 SCENARIO_REMOVE = "scenario_remove"
+# Absorbed identifiers of the last run (to cluster by a newly absorbed one) and the note saying so.
+ABSORBED_SEEN = "absorbed_seen"
+ABSORB_MESSAGE = "absorb_message"
+CLUSTER_SECOND = "cluster_second"  # the second grouping of two-way clustered errors, or "none"

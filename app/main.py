@@ -39,7 +39,15 @@ from core.inference.choices import suggest_cluster, suggest_time, time_columns, 
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import menu_word
 from core.output.escape import plain
-from core.output.text import dropped_lines, fit_sentence, model_sentence, rows_sentence, sentence_case, zero_sentence
+from core.output.text import (
+    dropped_lines,
+    fit_sentence,
+    join_words,
+    model_sentence,
+    rows_sentence,
+    sentence_case,
+    zero_sentence,
+)
 
 DEMO_CSV = ROOT / "demo_data" / "kiosks.csv"
 DEMO_SPEC = ROOT / "demo_data" / "default_spec.json"
@@ -72,7 +80,11 @@ def use_data(
     ss[keys.GRID_KEY] = f"variables_{ss[keys.GRID_VERSION]}"
     ss[keys.AT] = dict(spec.get("at") or {})
     ss[keys.COVARIANCE] = spec.get("covariance") or "HC1"
-    ss[keys.CLUSTER_COLUMN] = spec.get("cluster") or suggest_cluster(frame)
+    clusters = spec.get("cluster")
+    clusters = clusters if isinstance(clusters, list) else [clusters]
+    ss[keys.CLUSTER_COLUMN] = clusters[0] or suggest_cluster(frame)
+    ss[keys.CLUSTER_SECOND] = clusters[1] if len(clusters) > 1 else "none"
+    ss[keys.ABSORBED_SEEN] = list(spec.get("absorb") or [])
     ss[keys.TIME_COLUMN], ss[keys.LAGS] = spec.get("time") or suggest_time(frame), spec.get("lags")
     ss[keys.SCENARIOS] = list(spec.get("scenarios") or [])
     ss[keys.PPML] = spec.get("estimator") == "ppml"
@@ -166,6 +178,17 @@ def sidebar() -> None:
             if ss.get(keys.CLUSTER_COLUMN) not in columns:
                 ss[keys.CLUSTER_COLUMN] = suggest_cluster(frame) or columns[0]
             st.selectbox("Groups are defined by", columns, key=keys.CLUSTER_COLUMN)
+            others = ["none", *(c for c in columns if c != ss[keys.CLUSTER_COLUMN])]
+            if ss.get(keys.CLUSTER_SECOND) not in others:
+                ss[keys.CLUSTER_SECOND] = "none"
+            st.selectbox(
+                "And also by (two-way)",
+                others,
+                key=keys.CLUSTER_SECOND,
+                format_func=lambda c: "no second grouping" if c == "none" else c,
+                help="Rows that share either group may move together, such as a store's weeks and a week's stores "
+                "(Cameron, Gelbach & Miller 2011).",
+            )
         if COVARIANCE_KINDS[ss[keys.COVARIANCE]].needs_time and (times := time_columns(frame)):
             if ss.get(keys.TIME_COLUMN) not in times:
                 ss[keys.TIME_COLUMN] = suggest_time(frame) or times[0]
@@ -203,7 +226,12 @@ def variables_grid() -> pd.DataFrame:
             "column": st.column_config.TextColumn("Column", width=117, pinned=True),
             "about": st.column_config.TextColumn("What it holds", width=132),
             "role": st.column_config.SelectboxColumn(
-                "Role", options=ROLES, required=True, width=95, help="Exactly one outcome; any number of regressors."
+                "Role",
+                options=ROLES,
+                required=True,
+                width=95,
+                help="Exactly one outcome; any number of regressors. 'absorb' gives every level of an identifier "
+                "(store, firm, week) its own fixed effect, swept out rather than shown.",
             ),
             "transform": st.column_config.SelectboxColumn(
                 "Transform",
@@ -251,6 +279,8 @@ def variables_grid() -> pd.DataFrame:
             intake.unlock_checkbox()
     intake.advice_message()
     intake.keep_locked_out(grid, restart_grid)
+    intake.absorb_offer(grid, restart_grid)
+    intake.cluster_by_new_absorbed(grid)
     intake.advice_notes(ss[keys.DATA])
     levels = category_levels(ss[keys.DATA]["frame"], grid)
     if levels:
@@ -316,7 +346,7 @@ def show_results(good: dict[str, Any]) -> None:
                 f"{rows_sentence(result)} · data: {data_name} · "
                 + ("estimated by Poisson pseudo-maximum likelihood · " if estimator == "ppml" else "")
                 + f"standard errors: {COVARIANCE_KINDS[result['covariance']].short}"
-                + (f" by {spec.get('cluster')}" if result["covariance"] == "cluster" else "")
+                + (f" by {cluster_words(spec.get('cluster'))}" if result["covariance"] == "cluster" else "")
                 + (f" over {ts['time']}, {ts['lags']} lag(s)" if (ts := result.get("time_series")) else "")
                 + fit_sentence(result, estimator)
             )
@@ -349,6 +379,11 @@ def main() -> None:
         )
 
 
+def cluster_words(cluster: str | list[str] | None) -> str:
+    """'kiosk_id', or 'kiosk_id and week' for two-way clustering."""
+    return join_words([str(c) for c in cluster]) if isinstance(cluster, list) else str(cluster)
+
+
 def _page() -> None:
     st.set_page_config(page_title="Formwise", layout="wide", initial_sidebar_state="expanded")
     ss = st.session_state
@@ -365,7 +400,9 @@ def _page() -> None:
     notes: list[str] = []
     estimator = zeros_offer(grid)
     try:
-        spec, notes = grid_to_spec(grid, ss[keys.COVARIANCE], ss.get(keys.CLUSTER_COLUMN), ss.get(keys.AT), estimator)
+        second = ss.get(keys.CLUSTER_SECOND)
+        cluster = [ss.get(keys.CLUSTER_COLUMN), second] if second and second != "none" else ss.get(keys.CLUSTER_COLUMN)
+        spec, notes = grid_to_spec(grid, ss[keys.COVARIANCE], cluster, ss.get(keys.AT), estimator)
         spec, set_aside = with_time_and_scenarios(spec, ss.get(keys.TIME_COLUMN), ss.get(keys.LAGS), ss.get(keys.SCENARIOS))
         notes += set_aside
         result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)

@@ -145,7 +145,7 @@ def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None
     ``transform``, and ``change`` or, for categories, ``reference``), ``estimator``,
     ``covariance``, ``cluster``, ``weights`` and ``at``, and ``core.analyze`` fits it; each note
     is ``{"column": name or None, "about": "outcome" | "estimator" | "left_out" | "quadratic" |
-    "removed" | "limit" | "cluster", "text": plain words}``. Raises ``DataError`` when the
+    "removed" | "limit" | "cluster" | "absorb", "text": plain words}``. Raises ``DataError`` when the
     table has fewer than two columns a model can use.
     """
     if not isinstance(data, pd.DataFrame):
@@ -202,7 +202,8 @@ def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None
         else:
             text = f"'{column}' left out: it is {relation.words()}, which is not in the starting model."
             table.note(column, "left_out", text)
-    _cluster_hint(table)
+    if not _panel_hint(table, data):
+        _cluster_hint(table)
     return spec, table.notes
 
 
@@ -770,6 +771,37 @@ def _dependent(design: Any, order: dict[str, int]) -> tuple[str, str] | None:
         column,
         f"'{column}' left out: on the rows the model uses it is an exact linear combination of {', '.join(others)} and the constant.",
     )
+
+
+# A table is read as a panel when an identifier repeats over a time column and almost every
+# (identifier, period) pair is met once (common practice, no source).
+PANEL_UNIQUE_SHARE = 0.95
+
+
+def _panel_hint(table: _Table, data: pd.DataFrame) -> bool:
+    """Propose absorbing an identifier that repeats over a time column (a panel) and clustering
+    by it; True when proposed (the plain cluster hint is then said with it)."""
+    times = [c for c in table.names if set(table.entries[c].get("flags") or []) & {"time_index", "calendar_year"}]
+    times += [c for c in table.names if table.entries[c].get("kind") == "date" and c not in times]
+    for column in table.names:
+        e = table.entries[column]
+        groups = int(e.get("n_distinct") or 0)
+        present = int(e.get("n", 0)) - int(e.get("n_missing") or 0)
+        if e.get("kind") != "identifier" or not 2 <= groups <= present // 2:
+            continue
+        for time in times:
+            pairs = data[[column, time]].dropna()
+            if len(pairs) and 1 - pairs.duplicated().mean() >= PANEL_UNIQUE_SHARE:
+                periods = int(pairs[time].nunique())
+                table.note(
+                    column,
+                    "absorb",
+                    f"'{column}' repeats over '{time}' ({groups:,} units, {periods:,} periods): a panel. To compare each "
+                    f"{column} with itself over time, absorb '{column}' (role 'absorb': a fixed effect per level) and "
+                    f"cluster the standard errors by '{column}'.",
+                )
+                return True
+    return False
 
 
 def _cluster_hint(table: _Table) -> None:

@@ -56,9 +56,11 @@ def model_sentence(result: dict[str, Any]) -> str:
     for term in result.get("terms") or []:
         if term["column"] and term["column"] not in seen:
             seen[term["column"]] = variable_label(term["column"], term["transform"])
+    absorbed = (result.get("absorb") or {}).get("columns") or []
+    effects = f", with the fixed effects of {join_words(absorbed)} absorbed" if absorbed else ""
     if not seen:
-        return f"{y} with no regressors (a mean only)"
-    return f"{y} explained by {join_words(list(seen.values()))}"
+        return f"{y} with no regressors (a mean only){effects}"
+    return f"{y} explained by {join_words(list(seen.values()))}{effects}"
 
 
 def rows_sentence(result: dict[str, Any]) -> str:
