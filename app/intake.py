@@ -91,7 +91,8 @@ def advice_notes(data: dict[str, Any]) -> None:
     for note in advice:
         if note.get("about") == "no_model":
             st.warning(plain(sentence_case(note["text"])))
-    advice = [note for note in advice if note.get("about") != "no_model"]
+    # The panel proposal has its own button (``absorb_offer``).
+    advice = [note for note in advice if note.get("about") not in ("no_model", "absorb")]
     if not advice:
         return
     left_out = sum(1 for note in advice if note.get("about") in ("left_out", "removed"))
@@ -334,7 +335,7 @@ def unlock_checkbox() -> None:
 
 def absorb_offer(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) -> None:
     """The advisor's panel proposal (absorb an identifier that repeats over time, cluster by it)
-    as one button, while that identifier is not absorbed yet."""
+    as one button, while that identifier is not absorbed yet; ``grid`` the grid as last edited."""
     ss = st.session_state
     data = ss.get(keys.DATA) or {}
     note = next((n for n in data.get("advice") or [] if n.get("about") == "absorb"), None)
@@ -342,18 +343,18 @@ def absorb_offer(grid: pd.DataFrame, restart: Callable[[pd.DataFrame], None]) ->
     if note is None or roles.get(note["column"]) == "absorb" or note["column"] not in roles:
         return
     column = note["column"]
-    left, right = st.columns([5, 2], vertical_alignment="center")
-    with left:
-        st.caption(plain(sentence_case(note["text"])))
-    with right:
-        if st.button(f"Absorb {column}", key="absorb_offer", help=f"Role 'absorb' for {column}; errors clustered by it."):
-            fixed, moved = with_absorbed(data["frame"], grid, column)
-            ss[keys.COVARIANCE] = "cluster"
-            ss[keys.CLUSTER_COLUMN] = column
-            ss[keys.ABSORBED_SEEN] = [column]
-            ss[keys.ABSORB_MESSAGE] = absorb_words(column, moved)
-            restart(fixed)
-            st.rerun()
+    st.caption(plain(sentence_case(note["text"])))
+
+    def take() -> None:
+        # A callback runs before the next script run, so the sidebar's widgets may still be set.
+        fixed, moved = with_absorbed(data["frame"], grid, column)
+        ss[keys.COVARIANCE] = "cluster"
+        ss[keys.CLUSTER_COLUMN] = column
+        ss[keys.ABSORBED_SEEN] = [column]
+        ss[keys.ABSORB_MESSAGE] = absorb_words(column, moved)
+        restart(fixed)
+
+    st.button(f"Absorb {column}", key="absorb_offer", on_click=take, help=f"Role 'absorb' for {column}; errors clustered by it.")
 
 
 def absorb_words(column: str, moved: list[str]) -> str:
@@ -377,13 +378,22 @@ def cluster_by_new_absorbed(grid: pd.DataFrame) -> None:
     new = [c for c in absorbed if c not in (ss.get(keys.ABSORBED_SEEN) or [])]
     ss[keys.ABSORBED_SEEN] = absorbed
     if new and ss.get(keys.COVARIANCE) != "cluster":
-        ss[keys.COVARIANCE] = "cluster"
-        ss[keys.CLUSTER_COLUMN] = new[0]
-        ss[keys.ABSORB_MESSAGE] = (
-            f"The standard errors are now clustered by {new[0]}: rows of the same {new[0]} usually share more than their "
-            "fixed effect. Change it under Standard errors if the design says otherwise."
-        )
+        # The sidebar's widgets were drawn already in this run: set them at the start of the next.
+        ss[keys.PENDING_CLUSTER] = new[0]
         st.rerun()
     message = ss.pop(keys.ABSORB_MESSAGE, None)
     if message:
         st.info(plain(message))
+
+
+def apply_pending_cluster() -> None:
+    """Before the sidebar is drawn: cluster by the identifier ``cluster_by_new_absorbed`` named."""
+    ss = st.session_state
+    column = ss.pop(keys.PENDING_CLUSTER, None)
+    if column:
+        ss[keys.COVARIANCE] = "cluster"
+        ss[keys.CLUSTER_COLUMN] = column
+        ss[keys.ABSORB_MESSAGE] = (
+            f"The standard errors are now clustered by {column}: rows of the same {column} usually share more than their "
+            "fixed effect. Change it under Standard errors if the design says otherwise."
+        )

@@ -54,3 +54,4 @@ SCENARIO_REMOVE = "scenario_remove"
 ABSORBED_SEEN = "absorbed_seen"
 ABSORB_MESSAGE = "absorb_message"
 CLUSTER_SECOND = "cluster_second"  # the second grouping of two-way clustered errors, or "none"
+PENDING_CLUSTER = "pending_cluster"  # an identifier just absorbed: cluster by it at the next run

@@ -36,6 +36,7 @@ from app.gridspec import (
     with_time_and_scenarios,
 )
 from core.inference.choices import suggest_cluster, suggest_time, time_columns, zero_note
+from core.intake.advisor import panel_notes
 from core.model.covariance import COVARIANCE_KINDS
 from core.model.transforms import menu_word
 from core.output.escape import plain
@@ -92,7 +93,9 @@ def use_data(
 
 def load_demo() -> None:
     frame, notes, profile = intake.read_upload(DEMO_CSV.read_bytes(), DEMO_CSV.name)
-    use_data(DEMO_ID, "demo: coffee kiosks (invented)", frame, json.loads(DEMO_SPEC.read_text()), notes, profile)
+    # The demo's model is given, not suggested: of the advice only the panel proposal applies.
+    advice = panel_notes(frame, profile)
+    use_data(DEMO_ID, "demo: coffee kiosks (invented)", frame, json.loads(DEMO_SPEC.read_text()), notes, profile, advice)
 
 
 def take_upload(upload: Any) -> None:
@@ -193,6 +196,8 @@ def sidebar() -> None:
             if ss.get(keys.TIME_COLUMN) not in times:
                 ss[keys.TIME_COLUMN] = suggest_time(frame) or times[0]
             st.selectbox("Rows are ordered in time by", times, key=keys.TIME_COLUMN)
+        if ss.get(keys.PREVIOUS_GRID) is not None:
+            intake.absorb_offer(ss[keys.PREVIOUS_GRID], restart_grid)
         st.caption(
             "Intervals are 95 % confidence intervals and p-values test a zero coefficient, both using the "
             "standard errors chosen here. Robust (HC) errors allow the noise to differ between rows; "
@@ -279,7 +284,6 @@ def variables_grid() -> pd.DataFrame:
             intake.unlock_checkbox()
     intake.advice_message()
     intake.keep_locked_out(grid, restart_grid)
-    intake.absorb_offer(grid, restart_grid)
     intake.cluster_by_new_absorbed(grid)
     intake.advice_notes(ss[keys.DATA])
     levels = category_levels(ss[keys.DATA]["frame"], grid)
@@ -389,6 +393,7 @@ def _page() -> None:
     ss = st.session_state
     if keys.DATA not in ss:
         load_demo()
+    intake.apply_pending_cluster()
     sidebar()
 
     # Less room above the page's first line, so the results start on the first screen.

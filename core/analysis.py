@@ -304,7 +304,10 @@ BLAS_THREADED_PARTS = frozenset({"diagnostics", "boxcox"})
 
 # The result sections in the order they are computed: (parts that ask for it, how).
 SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
-    (frozenset({"terms"}), lambda r: {"terms": _terms(r.design, r.fit.coef, r.model.cov, r.model.df, r.model_spec)}),
+    (
+        frozenset({"terms"}),
+        lambda r: {"terms": _absorbed_intercept(r, _terms(r.design, r.fit.coef, r.model.cov, r.model.df, r.model_spec))},
+    ),
     (frozenset({"fit", "retransform"}), _fit_section),
     (frozenset({"diagnostics"}), lambda r: {"diagnostics": _diagnostics(r)}),
     (frozenset({"residuals"}), lambda r: {"residuals": None if r.ppml else residual_sample(r.design, r.fit)}),
@@ -328,6 +331,17 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     # Last: it fills in the entries the three sections above produced.
     (frozenset({"effects", "scenarios", "predictions"}), _bootstrap_section),
 ]
+
+
+def _absorbed_intercept(run: _Run, terms: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """With absorbed fixed effects the intercept is their average over the rows (§2.15)."""
+    if run.design.absorbed is not None and terms and terms[0]["column"] is None:
+        names = " and ".join(run.design.absorbed.columns)
+        terms[0]["reading"] = (
+            f"The average over the rows of the absorbed fixed effects of {names}: the prediction on the model's scale "
+            f"when every regressor term is zero, for a typical {names} rather than any one."
+        )
+    return terms
 
 
 def _terms(design, coef, cov, df, model_spec) -> list[dict[str, Any]]:

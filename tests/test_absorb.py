@@ -192,3 +192,26 @@ def test_a_regressor_mostly_absorbed_is_flagged(wagepan):
     assert not any("clustered errors by" in w for w in result["warnings"])
     unclustered = core.analyze(data, spec, parts={"terms"})
     assert any("clustered errors by 'nr' are the usual choice" in w for w in unclustered["warnings"])
+
+
+# --- the app --------------------------------------------------------------------------------------------
+def test_the_app_offers_to_absorb_the_demos_kiosks_and_clusters_by_them():
+    from tests.app_support import edit_grid, start
+
+    at = start()
+    button = next(b for b in at.button if b.label == "Absorb kiosk_id")
+    button.click().run()
+    assert not at.exception
+    assert at.session_state["covariance"] == "cluster" and at.session_state["cluster_column"] == "kiosk_id"
+    shown = " ".join(m.value for m in at.markdown) + " ".join(i.value for i in at.info)
+    assert "with the fixed effects of kiosk\\_id absorbed" in shown or "with the fixed effects of kiosk_id absorbed" in shown
+    assert "region does not change within a kiosk_id" in shown.replace("\\_", "_")
+    grid = at.session_state["grid_base"].set_index("column")
+    assert grid.at["kiosk_id", "role"] == "absorb" and grid.at["region", "role"] == "not used"
+    assert not any(b.label == "Absorb kiosk_id" for b in at.button)  # offered while not absorbed only
+    # back to HC1, then absorbing week by hand clusters by week, once, and says so
+    at.selectbox(key="covariance").set_value("HC1").run()
+    edit_grid(at, {"week": {"role": "absorb"}})
+    assert at.session_state["covariance"] == "cluster" and at.session_state["cluster_column"] == "week"
+    assert any("now clustered by week" in i.value for i in at.info)
+    assert not at.error, [e.value for e in at.error]

@@ -152,6 +152,21 @@ def test_an_effect_that_varies_by_region(page) -> None:
     assert page.problems == []
 
 
+def test_absorbing_the_kiosks_from_the_panel_proposal(page) -> None:
+    """The demo is a panel (kiosks over weeks): one click absorbs kiosk_id, clusters by it and
+    sets region, constant within a kiosk, aside; the header says so."""
+    page.get_by_role("button", name="Absorb kiosk_id").click()
+    _wait_for_rerun(page)
+    page.wait_for_function(
+        "() => document.body.innerText.includes('with the fixed effects of kiosk_id absorbed')", timeout=120_000
+    )
+    assert page.get_by_text("standard errors: clustered by kiosk_id").count() >= 1
+    assert page.get_by_text("region does not change within a kiosk_id").count() >= 1
+    _no_error_text(page)
+    _shot(page, "absorbed-kiosks")
+    assert page.problems == []
+
+
 def test_the_forms_view_draws_on_the_demo(page) -> None:
     page.get_by_role("radio", name="Forms", exact=True).first.click()
     page.get_by_text("combinations of forms").first.wait_for(timeout=60_000)

@@ -207,6 +207,13 @@ def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None
     return spec, table.notes
 
 
+def panel_notes(data: pd.DataFrame, profile: dict[str, Any]) -> list[Note]:
+    """The panel proposal alone (``_panel_hint``), for a table whose model was not suggested."""
+    table = _read(data.copy(deep=False), profile)
+    _panel_hint(table, data)
+    return table.notes
+
+
 def _squares(relation: Relation) -> bool:
     return relation.how in ("square", "square_affine")
 
