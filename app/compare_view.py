@@ -10,7 +10,7 @@ import streamlit as st
 
 import core
 from app import exports, keys, tables
-from app.context import Context, prediction_inputs
+from app.context import Context, fixed_effect_spec, prediction_inputs
 from app.gridspec import spec_json
 from core.inference.choices import (
     predict_spec,
@@ -175,8 +175,9 @@ def predict_view(ctx: Context) -> None:
                         help=f"Observed from {compact(item['low'])} to {compact(item['high'])}.",
                     )
     st.button("Back to the reference point", key="predict_reset", on_click=_reset_inputs, args=([i["column"] for i in inputs],))
+    chosen, fixed_effect = fixed_effect_spec(ctx, "predict_fixed_effect")
     with st.spinner("Predicting…"):
-        result = ctx.analyze({"predictions"}, predict_spec(spec, values))
+        result = ctx.analyze({"predictions"}, predict_spec(chosen, values))
     prediction = (result.get("predictions") or [None])[0]
     if prediction is None:
         st.info("No prediction could be made for these values.")
@@ -196,6 +197,8 @@ def predict_view(ctx: Context) -> None:
         st.warning(
             plain("Beyond the data: " + "; ".join(outside) + ". The prediction extrapolates the fitted curve and may be far off.")
         )
+    if fixed_effect:
+        st.caption(plain(fixed_effect))
     transform = ctx.result["outcome"]["transform"]
     if ctx.ppml:
         st.caption(

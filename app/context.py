@@ -44,6 +44,48 @@ def run_model(data_id: str, spec_json: str, parts: tuple[str, ...], _frame: pd.D
     return core.analyze(_frame, json.loads(spec_json), parts=set(parts), columns=column_cache(data_id))
 
 
+@st.cache_data(max_entries=16, show_spinner=False)
+def level_names(data_id: str, column: str, _frame: pd.DataFrame) -> list[str]:
+    """The distinct level names of an identifier column, in numeric-then-text order."""
+    names = pd.unique(_frame[column].dropna().astype(str))
+    return sorted((str(n) for n in names), key=lambda n: (0, float(n), n) if _is_number(n) else (1, 0.0, n))
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def fixed_effect_spec(ctx: Context, key: str) -> tuple[dict[str, Any], str | None]:
+    """With absorbed fixed effects, a chooser of the one curves and predictions read: the rows'
+    average, or one level of the first absorbed identifier (docs/contract.md §2.15). The spec to
+    analyse and a sentence saying which (None without absorbed effects)."""
+    absorbed = (ctx.result.get("absorb") or {}).get("columns") or []
+    if not absorbed:
+        return ctx.spec, None
+    column = absorbed[0]
+    options = ["average", *level_names(ctx.data_id, column, ctx.frame)]
+    if st.session_state.get(key) not in options:
+        st.session_state[key] = "average"
+    choice = st.selectbox(
+        f"Fixed effect of {column}",
+        options,
+        key=key,
+        format_func=lambda v: "average over the rows" if v == "average" else f"{column} = {v}",
+        help="The absorbed fixed effects are not shown as coefficients; pick the one the prediction uses.",
+    )
+    words = " and ".join(absorbed)
+    if choice == "average":
+        return ctx.spec, f"The fixed effects of {words} are at their average over the rows."
+    spec = {**ctx.spec, "at": {**(ctx.spec.get("at") or {}), column: choice}}
+    return spec, (
+        f"The fixed effect is that of {column} = {choice} (the average absorbed effect of its rows); the band treats it as known."
+    )
+
+
 @st.cache_data(max_entries=32, show_spinner=False)
 def point_sample(data_id: str, x_column: str, y_column: str, _frame: pd.DataFrame) -> dict[str, Any]:
     return sample_points(_frame, x_column, y_column)

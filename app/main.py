@@ -22,8 +22,8 @@ import streamlit as st
 
 import core
 from app import cautions, context, exports, history, intake, keys, views
+from app.grid_columns import grid_column_config
 from app.gridspec import (
-    ROLES,
     GridError,
     category_levels,
     grid_to_spec,
@@ -38,7 +38,6 @@ from app.gridspec import (
 from core.inference.choices import suggest_cluster, suggest_time, time_columns, zero_note
 from core.intake.advisor import panel_notes
 from core.model.covariance import COVARIANCE_KINDS
-from core.model.transforms import menu_word
 from core.output.escape import plain
 from core.output.text import (
     dropped_lines,
@@ -227,43 +226,7 @@ def variables_grid() -> pd.DataFrame:
         num_rows="fixed",
         disabled=["column", "about"],
         width="stretch",
-        column_config={
-            "column": st.column_config.TextColumn("Column", width=117, pinned=True),
-            "about": st.column_config.TextColumn("What it holds", width=132),
-            "role": st.column_config.SelectboxColumn(
-                "Role",
-                options=ROLES,
-                required=True,
-                width=95,
-                help="Exactly one outcome; any number of regressors. 'absorb' gives every level of an identifier "
-                "(store, firm, week) its own fixed effect, swept out rather than shown.",
-            ),
-            "transform": st.column_config.SelectboxColumn(
-                "Transform",
-                options=options,
-                required=True,
-                width=125,
-                format_func=lambda t: menu_word(t),
-                help="The outcome takes level, log, IHS, log(x + 1) or square root.",
-            ),
-            "change": st.column_config.TextColumn("Change", width=80, help="+10%, -25%, +1, 0->1 or Coast->Inland"),
-            "by": st.column_config.SelectboxColumn(
-                "Varies by",
-                options=["", *ss[keys.GRID_BASE]["column"].map(str)],
-                width=95,
-                help="Another regressor the effect of this one may depend on: the model adds their products, and "
-                "the effect is given for each level of a category (or at the quartiles of a number).",
-            ),
-            "reference": st.column_config.TextColumn(
-                "Reference", width=88, help="For categories: the reference level, the one the others are compared with."
-            ),
-            "unit": st.column_config.TextColumn(
-                "Unit",
-                width=85,
-                help="What one unit of the column is. A noun in the singular (square foot, year) reads 'one more "
-                "square foot'; a symbol or rate (kg, °C, $ per week) reads '+1 kg'. Readings, axes and tables name it.",
-            ),
-        },
+        column_config=grid_column_config(options, ss[keys.GRID_BASE]["column"].map(str).tolist()),
     )
     resolved = resolve_outcome(grid, ss[keys.PREVIOUS_GRID])
     if resolved is not grid:

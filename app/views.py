@@ -15,7 +15,7 @@ import core
 from app import charts, exports, keys, profiles_view, tables
 from app.checks_view import checks_view
 from app.compare_view import compare_view, predict_view
-from app.context import Context, chart, failed, point_sample
+from app.context import Context, chart, failed, fixed_effect_spec, point_sample
 from app.scenarios_view import scenarios_view
 from app.sweep_view import sweep_view
 from core.inference.choices import (
@@ -210,8 +210,9 @@ def approximation_view(ctx: Context) -> None:
 # --- effect curves ----------------------------------------------------------------------------------------
 def curves_view(ctx: Context) -> None:
     ss = st.session_state
+    spec, fixed_effect = fixed_effect_spec(ctx, "curve_fixed_effect")
     with st.spinner("Drawing the curves…"):
-        curves = ctx.analyze({"curves"}).get("curves") or []
+        curves = ctx.analyze({"curves"}, spec).get("curves") or []
     if not curves:
         st.info("Add a regressor to see how the predicted outcome moves with it.")
         return
@@ -222,7 +223,7 @@ def curves_view(ctx: Context) -> None:
         pick = regressor_pick(ctx, names, "curve_pick")
     picked = [c for c in curves if c["column"] == pick]
     if picked[0].get("group"):
-        group_curves_view(ctx, picked)
+        group_curves_view(ctx, picked, fixed_effect)
         return
     curve = picked[0]
     current = transforms.get(pick, "level")
@@ -273,6 +274,8 @@ def curves_view(ctx: Context) -> None:
         )
     if curve["kind"] == "continuous":
         notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
+    if fixed_effect:
+        notes.append(fixed_effect)
     if show_naive:
         notes.append(
             "The smearing curve (Duan 1983) averages the back-transform over the model's residuals and estimates the "
@@ -293,7 +296,7 @@ def group_pick(curves: list[dict], key: str) -> dict:
     return curves[names.index(st.selectbox("Read at", names, key=key))]
 
 
-def group_curves_view(ctx: Context, curves: list[dict]) -> None:
+def group_curves_view(ctx: Context, curves: list[dict], fixed_effect: str | None = None) -> None:
     """A regressor crossed with a moderator: one expected-value curve per value of it."""
     column = curves[0]["column"]
     moderator = next(iter(curves[0]["group"]))
@@ -318,4 +321,5 @@ def group_curves_view(ctx: Context, curves: list[dict]) -> None:
     ]
     if curves[0]["kind"] == "continuous":
         notes.append("Shaded at the sides: values of the regressor beyond those in the data (extrapolation).")
+    notes.append(fixed_effect or "")
     st.caption(plain(" ".join(n for n in notes if n)))

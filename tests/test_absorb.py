@@ -215,3 +215,22 @@ def test_the_app_offers_to_absorb_the_demos_kiosks_and_clusters_by_them():
     assert at.session_state["covariance"] == "cluster" and at.session_state["cluster_column"] == "week"
     assert any("now clustered by week" in i.value for i in at.info)
     assert not at.error, [e.value for e in at.error]
+
+
+def test_curves_and_predictions_say_which_fixed_effect_they_read():
+    from tests.app_support import show, start
+    from tests.helpers import shown
+
+    at = start()
+    next(b for b in at.button if b.label == "Absorb kiosk_id").click().run()
+    show(at, "Effect curves")
+    captions = shown(" ".join(c.value for c in at.caption))
+    assert "The fixed effects of kiosk_id are at their average over the rows." in captions
+    at.selectbox(key="curve_fixed_effect").set_value("K001").run()
+    assert not at.exception and not at.error, [e.value for e in at.error]
+    captions = shown(" ".join(c.value for c in at.caption))
+    assert "The fixed effect is that of kiosk_id = K001" in captions
+    show(at, "Predict")
+    at.selectbox(key="predict_fixed_effect").set_value("K002").run()
+    assert not at.exception and not at.error, [e.value for e in at.error]
+    assert "kiosk_id = K002" in shown(" ".join(c.value for c in at.caption))
