@@ -87,6 +87,7 @@ def units_check(
     return {
         "column": column,
         "change": base["change"],
+        "group": base.get("group"),  # a crossed regressor: its effect at the moderator's first value
         "units": base["units"],
         "rows": sorted(rows, key=lambda r: r["factor"]),
         "max_relative_move": largest,
