@@ -86,7 +86,8 @@ class Absorbed:
             return False
         codes = self.codes[0].astype(np.int64)
         for groups in (g for g in groupings if g is not None):
-            group_codes = pd.factorize(np.asarray(groups))[0].astype(np.int64)
+            values = np.asarray(groups)
+            group_codes = (values if np.issubdtype(values.dtype, np.integer) else pd.factorize(values)[0]).astype(np.int64)
             pairs = pd.unique(codes * (int(group_codes.max()) + 1) + group_codes)
             if len(pairs) != self.levels[0]:
                 return False
@@ -135,11 +136,17 @@ def _redundant(codes: list[np.ndarray], levels: list[int]) -> int:
 
 def _means(values: np.ndarray, codes: np.ndarray, totals: np.ndarray, weights: np.ndarray | None) -> np.ndarray:
     """Per level the (weighted) mean of each column of ``values``: (G, columns)."""
-    out = np.empty((len(totals), values.shape[1]))
+    out = np.empty((len(totals), values.shape[1]), order="F")
     for j in range(values.shape[1]):
         column = values[:, j] if weights is None else values[:, j] * weights
         out[:, j] = np.bincount(codes, weights=column, minlength=len(totals))
     return out / totals[:, None]
+
+
+def _subtract(A: np.ndarray, means: np.ndarray, codes: np.ndarray) -> None:
+    """A's columns less their rows' level means, column by column (no n x columns temporary)."""
+    for j in range(A.shape[1]):
+        A[:, j] -= means[:, j].take(codes)
 
 
 def absorb(
@@ -163,16 +170,20 @@ def absorb(
         k.astype(float) if weights is None else np.bincount(c, weights=weights, minlength=len(k))
         for c, k in zip(codes, counts, strict=True)
     ]
-    A = np.column_stack([y, X[:, 1:]]) if X.shape[1] > 1 else y[:, None].copy()
+    # g(y) and the non-intercept columns, column-major: every pass below reads whole columns.
+    A = np.empty((len(y), X.shape[1]), order="F")
+    A[:, 0] = y
+    A[:, 1:] = X[:, 1:]
     level_means = tuple(_means(A, c, t, weights) for c, t in zip(codes, totals, strict=True))
     overall = np.average(A, axis=0, weights=weights)
-    scale = np.maximum(np.max(np.abs(A - overall), axis=0), np.finfo(float).tiny)
-    before = np.sum((A - overall) ** 2, axis=0)
+    scale = np.maximum(np.maximum(A.max(axis=0) - overall, overall - A.min(axis=0)), np.finfo(float).tiny)
+    before = np.einsum("ij,ij->j", A, A) - len(y) * A.mean(axis=0) ** 2  # each column's spread, for the warning
     sweeps, converged = _sweep(A, codes, totals, weights, level_means, scale)
     _check_not_absorbed(A, scale, columns, names_of_columns)
-    warnings = _mostly_absorbed(np.sum(A * A, axis=0), before, columns, names_of_columns)
-    A += overall
-    X[:, 1:] = A[:, 1:]
+    warnings = _mostly_absorbed(np.einsum("ij,ij->j", A, A), before, columns, names_of_columns)
+    for j in range(1, X.shape[1]):
+        np.add(A[:, j], overall[j], out=X[:, j])
+    A[:, 0] += overall[0]
     if not converged:
         warnings.append(
             f"the absorbed fixed effects of {', '.join(columns)} did not settle within {MAX_SWEEPS:,} sweeps; the slopes "
@@ -202,7 +213,7 @@ def _sweep(
 ) -> tuple[int, bool]:
     """Alternating projections on A in place: each sweep takes every factor's level means out.
     One factor is done in one step; the first sweep reuses the level means already taken."""
-    A -= first_means[0][codes[0]]
+    _subtract(A, first_means[0], codes[0])
     if len(codes) == 1:
         return 1, True
     for sweep in range(1, MAX_SWEEPS + 1):
@@ -212,7 +223,7 @@ def _sweep(
                 continue
             means = _means(A, c, t, weights)
             moved = np.maximum(moved, np.max(np.abs(means), axis=0))
-            A -= means[c]
+            _subtract(A, means, c)
         if np.all(moved <= TOLERANCE * scale):
             return sweep, True
     return MAX_SWEEPS, False

@@ -187,7 +187,9 @@ class Clustered(CovarianceKind):
             return rows.bread @ meat @ rows.bread, n_groups - 1
         meat_a, groups_a = self._meat(rows, rows.groups)
         meat_b, groups_b = self._meat(rows, rows.groups_second)
-        pairs = pd.factorize(pd.MultiIndex.from_arrays([np.asarray(rows.groups), np.asarray(rows.groups_second)]))[0]
+        a, _ = _group_codes(rows.groups)
+        b, second = _group_codes(rows.groups_second)
+        pairs = pd.factorize(a.astype(np.int64) * len(second) + b)[0]
         meat_ab, _ = self._meat(rows, pairs)
         cov = rows.bread @ (meat_a + meat_b - meat_ab) @ rows.bread
         if np.any(np.diag(cov) < 0):  # the eigenvalue fix of CGM 2011 §2.3, only when a variance is negative
@@ -416,6 +418,9 @@ def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Group codes numbered in the sorted order of the groups' text, as np.unique numbers them;
     the distinct values are found by hashing (pandas.factorize), only they are sorted."""
     values = np.asarray(groups)
+    if np.issubdtype(values.dtype, np.integer) and len(values) and values.min() >= 0 and np.bincount(values).all():
+        # Codes already (core.model.design numbers each cluster label once, 0..G-1 over the rows used).
+        return values, np.arange(int(values.max()) + 1)
     if values.dtype == object and pd.api.types.infer_dtype(values, skipna=False) == "string":
         codes, distinct = pd.factorize(values)
         uniques, position = np.unique(np.asarray(distinct, dtype=object).astype(str), return_inverse=True)
