@@ -299,9 +299,9 @@ def _check_moderators(regressors: list[RegressorSpec]) -> None:
 
 def _parse_estimation(
     spec: dict, data: pd.DataFrame, outcome_transform: Transform
-) -> tuple[str, str, str | None, str | None, int | None]:
-    """The estimator, the covariance kind, the cluster column it needs, and for the time-series
-    kinds the time column and the lags (None: chosen from the data)."""
+) -> tuple[str, str, list[str], str | None, int | None]:
+    """The estimator, the covariance kind, the cluster columns it needs (none, one or two), and
+    for the time-series kinds the time column and the lags (None: chosen from the data)."""
     estimator = spec.get("estimator") or "ols"
     if estimator not in ESTIMATORS:
         raise SpecError(f"spec.estimator: unknown estimator '{estimator}'; use one of: {', '.join(ESTIMATORS)}.")
@@ -317,28 +317,31 @@ def _parse_estimation(
         raise SpecError(f"spec.covariance: unknown covariance '{covariance}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
     covariance = by_lower[covariance.lower()]
 
-    cluster = spec.get("cluster")
-    if COVARIANCE_KINDS[covariance].needs_groups:
-        if not cluster:
-            raise SpecError("spec.cluster: covariance 'cluster' needs 'cluster' naming the column that defines the groups.")
-        if isinstance(cluster, list):
-            if not 1 <= len(cluster) <= 2 or len(set(map(str, cluster))) < len(cluster):
-                raise SpecError(
-                    "spec.cluster: name one grouping column, or a list of two different ones for two-way clustering "
-                    '(e.g. ["kiosk_id", "week"]).'
-                )
-            cluster = [_require_column(c, data, "spec.cluster") for c in cluster]
-            return estimator, covariance, cluster, *_parse_time(spec, data, covariance)  # type: ignore[return-value]
-        cluster = _require_column(cluster, data, "spec.cluster")
-    elif cluster:
-        raise SpecError(
-            "spec.cluster: a cluster column is set but covariance is not 'cluster'; set covariance to 'cluster' or remove it."
-        )
-    else:
-        cluster = None
-
+    clusters = _parse_clusters(spec, data, covariance)
     time, lags = _parse_time(spec, data, covariance)
-    return estimator, covariance, cluster, time, lags
+    return estimator, covariance, clusters, time, lags
+
+
+def _parse_clusters(spec: dict, data: pd.DataFrame, covariance: str) -> list[str]:
+    """The grouping columns of clustered errors: one, or two for two-way clustering; none for
+    the other kinds."""
+    cluster = spec.get("cluster")
+    if not COVARIANCE_KINDS[covariance].needs_groups:
+        if cluster:
+            raise SpecError(
+                "spec.cluster: a cluster column is set but covariance is not 'cluster'; set covariance to 'cluster' or remove it."
+            )
+        return []
+    if not cluster:
+        raise SpecError("spec.cluster: covariance 'cluster' needs 'cluster' naming the column that defines the groups.")
+    if not isinstance(cluster, list):
+        return [_require_column(cluster, data, "spec.cluster")]
+    if not 1 <= len(cluster) <= 2 or len(set(map(str, cluster))) < len(cluster):
+        raise SpecError(
+            "spec.cluster: name one grouping column, or a list of two different ones for two-way clustering "
+            '(e.g. ["kiosk_id", "week"]).'
+        )
+    return [_require_column(c, data, "spec.cluster") for c in cluster]
 
 
 def _parse_time(spec: dict, data: pd.DataFrame, covariance: str) -> tuple[str | None, int | None]:
@@ -436,12 +439,11 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
 
     regressors = _parse_regressors(spec, data, outcome_column)
     _check_shifts(outcome_column, outcome_transform, regressors, data)
-    estimator, covariance, cluster, time, lags = _parse_estimation(spec, data, outcome_transform)
+    estimator, covariance, clusters, time, lags = _parse_estimation(spec, data, outcome_transform)
     weights = _parse_weights(spec, data, regressors)
 
     absorb = _parse_absorb(spec, data, outcome_column, regressors, weights, estimator)
     at, predict = _parse_points(spec, regressors, absorb)
-    clusters = cluster if isinstance(cluster, list) else [cluster]
     name = spec.get("name")
     if name is not None and not isinstance(name, str):
         raise SpecError("spec.name: must be text.")
@@ -452,7 +454,7 @@ def parse_spec(spec: object, data: pd.DataFrame) -> ModelSpec:
         regressors=tuple(regressors),
         estimator=estimator,
         covariance=covariance,
-        cluster=clusters[0],
+        cluster=clusters[0] if clusters else None,
         cluster_second=clusters[1] if len(clusters) > 1 else None,
         weights=weights,
         at=dict(at),
