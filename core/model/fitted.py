@@ -128,7 +128,12 @@ def fit_design(design: Design, model_spec: ModelSpec) -> tuple[Design, OLSFit, M
     scores = kind is not None and kind.reads_score_gram and model_spec.estimator != "ppml"
     absorbed = design.absorbed
     with np.errstate(all="ignore"):
-        fit = fit_ols(design.X, design.y if absorbed is None else absorbed.y_within, design.weights, names, scores)
+        try:
+            fit = fit_ols(design.X, design.y if absorbed is None else absorbed.y_within, design.weights, names, scores)
+        except DataError as exc:
+            if absorbed is None:
+                raise
+            raise DataError(f"{exc} (This is once the fixed effects of {' and '.join(absorbed.columns)} are absorbed.)") from None
         if model_spec.estimator == "ppml":
             return _fit_ppml(design, model_spec, fit)
         if absorbed is not None:
