@@ -177,7 +177,11 @@ def predict_view(ctx: Context) -> None:
     st.button("Back to the reference point", key="predict_reset", on_click=_reset_inputs, args=([i["column"] for i in inputs],))
     chosen, fixed_effect = fixed_effect_spec(ctx, "predict_fixed_effect")
     with st.spinner("Predicting…"):
-        result = ctx.analyze({"predictions"}, predict_spec(chosen, values))
+        try:
+            result = ctx.analyze({"predictions"}, predict_spec(chosen, values))
+        except core.FormwiseError as exc:  # a level the fit did not keep (all its rows dropped)
+            st.warning(plain(f"{exc} The prediction reads the average fixed effect instead."))
+            result, fixed_effect = ctx.analyze({"predictions"}, predict_spec(spec, values)), None
     prediction = (result.get("predictions") or [None])[0]
     if prediction is None:
         st.info("No prediction could be made for these values.")

@@ -68,7 +68,8 @@ def spec_to_grid(spec: dict[str, Any], frame: pd.DataFrame, profile: dict[str, A
     entries = profile_entries(profile)
     outcome = spec.get("outcome") or {}
     by_column = {r["column"]: r for r in spec.get("regressors") or []}
-    absorbed = [str(c) for c in spec.get("absorb") or []]
+    absorb = spec.get("absorb") or []
+    absorbed = [absorb] if isinstance(absorb, str) else [str(c) for c in absorb]  # one name is a list of one
     # The model's own variables first (outcome, then regressors in the spec's order), so the
     # grid reads like the spec; the unused columns follow in the file's order.
     names = [str(c) for c in frame.columns]

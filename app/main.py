@@ -81,10 +81,11 @@ def use_data(
     ss[keys.AT] = dict(spec.get("at") or {})
     ss[keys.COVARIANCE] = spec.get("covariance") or "HC1"
     clusters = spec.get("cluster")
-    clusters = clusters if isinstance(clusters, list) else [clusters]
+    clusters = [c for c in (clusters if isinstance(clusters, list) else [clusters]) if c] or [None]
     ss[keys.CLUSTER_COLUMN] = clusters[0] or suggest_cluster(frame)
     ss[keys.CLUSTER_SECOND] = clusters[1] if len(clusters) > 1 else "none"
-    ss[keys.ABSORBED_SEEN] = list(spec.get("absorb") or [])
+    absorb = spec.get("absorb") or []
+    ss[keys.ABSORBED_SEEN] = [absorb] if isinstance(absorb, str) else list(absorb)
     ss[keys.TIME_COLUMN], ss[keys.LAGS] = spec.get("time") or suggest_time(frame), spec.get("lags")
     ss[keys.SCENARIOS] = list(spec.get("scenarios") or [])
     ss[keys.PPML] = spec.get("estimator") == "ppml"

@@ -212,7 +212,11 @@ def curves_view(ctx: Context) -> None:
     ss = st.session_state
     spec, fixed_effect = fixed_effect_spec(ctx, "curve_fixed_effect")
     with st.spinner("Drawing the curves…"):
-        curves = ctx.analyze({"curves"}, spec).get("curves") or []
+        try:
+            curves = ctx.analyze({"curves"}, spec).get("curves") or []
+        except core.FormwiseError as exc:  # a level the fit did not keep (all its rows dropped)
+            st.warning(plain(f"{exc} The curves read the average fixed effect instead."))
+            curves, fixed_effect = ctx.analyze({"curves"}).get("curves") or [], None
     if not curves:
         st.info("Add a regressor to see how the predicted outcome moves with it.")
         return

@@ -125,8 +125,13 @@ def analyze(
     run.warnings.extend(fit.warnings)
     run.warnings.extend(_absorb_warnings(model_spec))
     run.warnings.extend(_time_series_warnings(model.time_series, model_spec.covariance))
-    if small_sample(fit.n, fit.k):
-        run.warnings.append(f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile.")
+    if small_sample(fit.n, fit.k + fit.absorbed):
+        run.warnings.append(
+            f"small sample: {fit.n} rows for {fit.k + fit.absorbed} coefficients (absorbed fixed effects included); "
+            "estimates and intervals are fragile."
+            if fit.absorbed
+            else f"small sample: {fit.n} rows for {fit.k} coefficients; estimates and intervals are fragile."
+        )
     if fit.condition_number > NEAR_COLLINEAR:
         run.warnings.append(
             f"the regressors are nearly collinear (condition number {fit.condition_number:,.0f}); "
@@ -174,6 +179,14 @@ def _absorb_warnings(model_spec: ModelSpec) -> list[str]:
 def _diagnostics(run: _Run) -> dict[str, Any] | None:
     """The residual checks; a warning when the White test had to take its fitted-value form."""
     if run.ppml:
+        return None
+    if run.design.absorbed is not None:
+        # Their auxiliary regressions (RESET's fitted powers, the White terms) would need the
+        # fixed effects swept out of them too, and the leverage of every level.
+        run.warnings.append(
+            "the residual tests (Breusch-Pagan, White, Jarque-Bera, RESET) and the influence measures are not computed "
+            "with absorbed fixed effects; the residual plots are shown."
+        )
         return None
     checks = diagnostics(run.design, run.fit)
     note = (checks.get("white") or {}).get("note")

@@ -234,3 +234,18 @@ def test_curves_and_predictions_say_which_fixed_effect_they_read():
     at.selectbox(key="predict_fixed_effect").set_value("K002").run()
     assert not at.exception and not at.error, [e.value for e in at.error]
     assert "kiosk_id = K002" in shown(" ".join(c.value for c in at.caption))
+
+
+def test_review_cases_two_way_ppml_single_name_and_empty_cluster(wagepan):
+    """PPML honours a second grouping; one name for 'absorb' reaches the grid; 'cluster': [] is no crash."""
+    from app.gridspec import spec_to_grid
+
+    base = {"outcome": {"column": "hours"}, "regressors": [{"column": "union"}, {"column": "married"}], "estimator": "ppml"}
+    one = core.analyze(wagepan, dict(base, covariance="cluster", cluster="nr"), parts={"terms"})
+    two = core.analyze(wagepan, dict(base, covariance="cluster", cluster=["nr", "year"]), parts={"terms"})
+    assert one["terms"][1]["std_error"] != two["terms"][1]["std_error"]
+    grid = spec_to_grid(dict(ONE_WAY, absorb="nr"), wagepan).set_index("column")
+    assert grid.at["nr", "role"] == "absorb"
+    result = core.analyze(wagepan, dict(ONE_WAY, absorb="nr", covariance="HC1"), parts={"diagnostics", "residuals"})
+    assert result["diagnostics"] is None and any("residual tests" in w for w in result["warnings"])
+    assert result["residuals"]["sigma"] > 0

@@ -42,7 +42,7 @@ from scipy import stats
 from core.inference.changes import default_change_text
 from core.model.design import Block, match_level, unknown_level
 from core.model.fitted import Model
-from core.model.spec import Change, parse_change
+from core.model.spec import MAX_GROUPS, Change, parse_change
 
 # The sample-average effect is taken over a seeded random sample of rows when the data are
 # larger than this (its sampling error is then far below the effect's own standard error) ...
@@ -79,6 +79,19 @@ def effect_arrays(
     return outcome_change(model, X0, X1, first_order, resid)
 
 
+def _warn_many_groups(model: Model, block: Block, warnings: list[str]) -> None:
+    """A category moderator with more levels than effects are given at by default."""
+    by = block.spec.by
+    if by is None or block.spec.by_at:
+        return
+    moderator = model.design.encoder.block(by)
+    if moderator.is_category and len(moderator.levels) + 1 > MAX_GROUPS:
+        warnings.append(
+            f"'{by}' has {len(moderator.levels) + 1:,} levels; the effects of '{block.spec.column}' are given at the first "
+            f"{MAX_GROUPS} (the reference first). Name the levels you want in the regressor's 'at'."
+        )
+
+
 def moderator_groups(model: Model, block: Block) -> list[dict[str, Any] | None]:
     """Where the effects of a crossed regressor are read: each value of its moderator as
     ``{moderator: value}`` (every level of a category, reference first; 0 and 1 of a dummy;
@@ -89,7 +102,7 @@ def moderator_groups(model: Model, block: Block) -> list[dict[str, Any] | None]:
     moderator = model.design.encoder.block(by)
     if moderator.is_category:
         known = [moderator.reference_level, *moderator.levels]
-        chosen = [match_level(v, known) for v in block.spec.by_at] if block.spec.by_at else known
+        chosen = [match_level(v, known) for v in block.spec.by_at] if block.spec.by_at else known[:MAX_GROUPS]
         return [{by: level} for level in chosen]
     if block.spec.by_at:
         values = [float(v) for v in block.spec.by_at]
@@ -167,6 +180,7 @@ def compute_effects(model: Model, only: str | None = None, with_average: bool = 
 
             raise SpecError(f"spec.regressors ({column}): '{change.text}' must go between two numbers for a numeric column.")
         x0, x1 = _start_end(change, design.reference[column])
+        _warn_many_groups(model, block, warnings)
         for group in moderator_groups(model, block):
             out.append(_one_effect(model, block, x0, x1, change.text, warnings, with_average, change, group))
     return out, warnings

@@ -101,7 +101,10 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid * root_w if root_w is not None else fit.resid
     X = design.X * root_w[:, None] if root_w is not None else design.X
-    h = np.clip(leverage(X, fit.xtx_inv), 0.0, 1.0 - 1e-12)
+    h = leverage(X, fit.xtx_inv)
+    if design.absorbed is not None:
+        h = h + design.absorbed.leverage(fit.weights)
+    h = np.clip(h, 0.0, 1.0 - 1e-12)
     with np.errstate(divide="ignore", invalid="ignore"):
         standardised = u / (fit.sigma * np.sqrt(1.0 - h))
     n = len(u)
@@ -112,7 +115,7 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
     return {
         "n": n,
         "shown": len(rows),
-        "sigma": float(np.sqrt(np.mean(u * u) * n / max(n - fit.k, 1))),
+        "sigma": float(np.sqrt(np.mean(u * u) * n / max(fit.df_resid, 1))),
         "fitted": fit.fitted[rows].tolist(),
         "resid": u[rows].tolist(),
         "spread_all": {"q10": float(q10), "q25": float(q25), "q75": float(q75), "q90": float(q90)},

@@ -78,6 +78,16 @@ class Absorbed:
         means = self.level_means[factor][position[0]]
         return float(means[0] - means[2:] @ coef[1:])
 
+    def leverage(self, weights: np.ndarray | None = None) -> np.ndarray:
+        """Each row's leverage from the fixed effects, added to the swept design's: wᵢ/W_g for one
+        identifier (exact: the level dummies' hat matrix, orthogonal to the swept columns); for
+        several Σ_f wᵢ/W_g(f) - (F-1)·wᵢ/W, exact for a balanced panel, else an approximation."""
+        w = np.ones(len(self.codes[0])) if weights is None else np.asarray(weights, dtype=float)
+        h = np.zeros(len(w))
+        for codes in self.codes:
+            h += w / np.bincount(codes, weights=w)[codes]
+        return h - (len(self.codes) - 1) * w / w.sum()
+
     def nested_in(self, *groupings: np.ndarray | None) -> bool:
         """Whether the one absorbed factor is nested in every grouping given (each level's rows
         in one group), so its levels are not counted in the clusters' small-sample factor (the

@@ -185,8 +185,8 @@ class Clustered(CovarianceKind):
         if rows.groups_second is None:
             meat, n_groups = self._meat(rows, rows.groups)
             return rows.bread @ meat @ rows.bread, n_groups - 1
-        meat_a, groups_a = self._meat(rows, rows.groups)
-        meat_b, groups_b = self._meat(rows, rows.groups_second)
+        meat_a, groups_a = self._meat(rows, rows.groups, "the first cluster column")
+        meat_b, groups_b = self._meat(rows, rows.groups_second, "the second cluster column")
         a, _ = _group_codes(rows.groups)
         b, second = _group_codes(rows.groups_second)
         pairs = pd.factorize(a.astype(np.int64) * len(second) + b)[0]
@@ -197,7 +197,7 @@ class Clustered(CovarianceKind):
             cov = (vectors * np.clip(values, 0.0, None)) @ vectors.T
         return cov, min(groups_a, groups_b) - 1
 
-    def _meat(self, rows: Rows, groups: np.ndarray) -> tuple[np.ndarray, int]:
+    def _meat(self, rows: Rows, groups: np.ndarray, which: str = "the cluster column") -> tuple[np.ndarray, int]:
         """Σ_g (X̃_g'u_g)(X̃_g'u_g)' times the grouping's small-sample factor, and its G."""
         n, k = rows.X.shape
         counted = k if rows.nested else k + rows.absorbed
@@ -205,7 +205,8 @@ class Clustered(CovarianceKind):
         n_groups = len(uniques)
         if n_groups < 2:
             raise DataError(
-                "the cluster column has a single group; cluster-robust errors need at least two groups (many more are better)."
+                f"{which} has a single group in the rows used; cluster-robust errors need at least two groups (many more "
+                "are better)."
             )
         factor = rows.factor
         summed = np.zeros((n_groups, k))
@@ -405,13 +406,17 @@ def sandwich(
     lags: int | None = None,
     notes: dict | None = None,
     score_gram: np.ndarray | None = None,
+    groups_second: np.ndarray | None = None,
 ) -> tuple[np.ndarray, int]:
     """V = B·M·B for rows x̃ᵢ = rᵢ·``Xw``ᵢ (rᵢ = ``row_scale``, 1 when None) and residuals uᵢ;
-    ``scale`` is s² for the classical type; ``time``, ``lags``, ``notes`` and ``score_gram`` as in ``Rows``."""
+    ``scale`` is s² for the classical type; ``time``, ``lags``, ``notes``, ``score_gram`` and
+    ``groups_second`` as in ``Rows``."""
     found = COVARIANCE_KINDS.get(kind)
     if found is None:
         raise DataError(f"unknown covariance '{kind}'; use one of: {', '.join(COVARIANCE_KINDS)}.")
-    return found.estimate(Rows(bread, Xw, u, groups, scale, row_scale, time, lags, {} if notes is None else notes, score_gram))
+    notes = {} if notes is None else notes
+    rows = Rows(bread, Xw, u, groups, scale, row_scale, time, lags, notes, score_gram, groups_second=groups_second)
+    return found.estimate(rows)
 
 
 def _group_codes(groups: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

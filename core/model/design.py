@@ -738,9 +738,16 @@ def build_design(
     blocks, terms, width = layout.blocks, layout.terms, layout.width
 
     if n <= width:
+        lonely = sum(d["count"] for d in drops.dropped if d["reason"] == SINGLETON)
         raise DataError(
             f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
             "coefficients. Use fewer regressors or categories, or load more data."
+            + (
+                f" {lonely:,} row(s) were dropped as alone in their level of {' or '.join(spec.absorb)}: absorb fewer "
+                "identifiers, or ones whose levels repeat."
+                if lonely
+                else ""
+            )
         )
     check_budget(blocks, n, width)
     encoder = Encoder(blocks, width, layout.products)

@@ -201,8 +201,9 @@ def _fit_ppml(design: Design, model_spec: ModelSpec, screen: OLSFit) -> tuple[De
     u = np.sqrt(w) * (design.y_raw - ppml.mu) / np.sqrt(ppml.mu)
     notes: dict[str, Any] = {}
     cov, df = sandwich(
-        ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, root_mu, design.time, model_spec.lags, notes
-    )
+        ppml.bread, design.X, u, model_spec.covariance, design.groups, 1.0, root_mu, design.time, model_spec.lags, notes,
+        groups_second=design.groups_second,
+    )  # fmt: skip
     r2 = float(np.corrcoef(design.y_raw, ppml.mu)[0, 1] ** 2)
     fit = replace(
         screen,

@@ -335,7 +335,8 @@ def compare_effects_table(rows: list[dict[str, Any]]) -> pd.DataFrame:
     cells: dict[tuple[str, str], dict[str, str]] = {}
     for row in rows:
         for effect in row["effects"]:
-            key = (effect["column"], str(effect["change"]).replace("->", " → "))
+            at = group_text(effect.get("group"))
+            key = (effect["column"], str(effect["change"]).replace("->", " → ") + (f" at {at}" if at else ""))
             if key not in cells:
                 keys.append(key)
                 cells[key] = {}

@@ -102,15 +102,23 @@ def comparison_table(results: dict[str, dict[str, Any]]) -> Table:
         ("R² of the model's own outcome (not comparable across outcomes)", lambda r: sig(r["fit"]["r2"], 3)),
     ]
     rows: list[list[Cell]] = [[label] + [pick(results[n]) for n in names] for label, pick in measures]
-    seen: list[tuple[str, str]] = []
+    seen: list[tuple[str, str, str]] = []
     for n in names:
         for e in results[n].get("effects", []):
-            if (e["column"], e["change"]) not in seen:
-                seen.append((e["column"], e["change"]))
-    for column, change in seen:
-        row: list[Cell] = [f"Effect of {column} {change}"]
+            key = (e["column"], e["change"], display.group_text(e.get("group")))
+            if key not in seen:
+                seen.append(key)
+    for column, change, at in seen:
+        row: list[Cell] = [f"Effect of {column} {change}" + (f" at {at}" if at else "")]
         for n in names:
-            found = next((e for e in results[n].get("effects", []) if e["column"] == column and e["change"] == change), None)
+            found = next(
+                (
+                    e
+                    for e in results[n].get("effects", [])
+                    if (e["column"], e["change"], display.group_text(e.get("group"))) == (column, change, at)
+                ),
+                None,
+            )
             unit = "%" if found and found["units"] == "percent" else "units"
             row.append(None if found is None else f"{sig(found['exact'], 4, signed=True)} {unit}")
         rows.append(row)
