@@ -134,6 +134,17 @@ def _number_format(value: float) -> str:
     return f"%.{min(decimals, 6)}f"
 
 
+def _predicted(ctx: Context, values: dict[str, Any]) -> tuple[dict[str, Any], str | None]:
+    """The prediction at ``values`` with the fixed effect chosen (absorbed models), and which."""
+    chosen, fixed_effect = fixed_effect_spec(ctx, "predict_fixed_effect")
+    with st.spinner("Predicting…"):
+        try:
+            return ctx.analyze({"predictions"}, predict_spec(chosen, values)), fixed_effect
+        except core.FormwiseError as exc:  # a level the fit did not keep (all its rows dropped)
+            st.warning(plain(f"{exc} The prediction reads the average fixed effect instead."))
+            return ctx.analyze({"predictions"}, predict_spec(ctx.spec, values)), None
+
+
 def predict_view(ctx: Context) -> None:
     spec = ctx.spec
     reference = json.dumps(ctx.result.get("reference_point") or {}, sort_keys=True)
@@ -175,13 +186,7 @@ def predict_view(ctx: Context) -> None:
                         help=f"Observed from {compact(item['low'])} to {compact(item['high'])}.",
                     )
     st.button("Back to the reference point", key="predict_reset", on_click=_reset_inputs, args=([i["column"] for i in inputs],))
-    chosen, fixed_effect = fixed_effect_spec(ctx, "predict_fixed_effect")
-    with st.spinner("Predicting…"):
-        try:
-            result = ctx.analyze({"predictions"}, predict_spec(chosen, values))
-        except core.FormwiseError as exc:  # a level the fit did not keep (all its rows dropped)
-            st.warning(plain(f"{exc} The prediction reads the average fixed effect instead."))
-            result, fixed_effect = ctx.analyze({"predictions"}, predict_spec(spec, values)), None
+    result, fixed_effect = _predicted(ctx, values)
     prediction = (result.get("predictions") or [None])[0]
     if prediction is None:
         st.info("No prediction could be made for these values.")

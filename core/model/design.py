@@ -737,18 +737,7 @@ def build_design(
     layout = _lay_out(spec, found, values, None if every_row else rows)
     blocks, terms, width = layout.blocks, layout.terms, layout.width
 
-    if n <= width:
-        lonely = sum(d["count"] for d in drops.dropped if d["reason"] == SINGLETON)
-        raise DataError(
-            f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
-            "coefficients. Use fewer regressors or categories, or load more data."
-            + (
-                f" {lonely:,} row(s) were dropped as alone in their level of {' or '.join(spec.absorb)}: absorb fewer "
-                "identifiers, or ones whose levels repeat."
-                if lonely
-                else ""
-            )
-        )
+    _check_rows(n, width, drops, spec)
     check_budget(blocks, n, width)
     encoder = Encoder(blocks, width, layout.products)
     bases = None if columns is None else _cached_bases(blocks, raw, cached, None if every_row else rows)
@@ -786,6 +775,23 @@ def build_design(
         warnings=drops.warnings(spec.weights),
         reference=reference_point(spec, blocks, values, layout.modes, _means_taken(found, numeric) if every_row else None),
         ranges=layout.ranges,
+    )
+
+
+def _check_rows(n: int, width: int, drops: _Drops, spec: ModelSpec) -> None:
+    """More usable rows than coefficients, or a message saying what took them."""
+    if n > width:
+        return
+    lonely = sum(d["count"] for d in drops.dropped if d["reason"] == SINGLETON)
+    raise DataError(
+        f"the model has {width} coefficients but only {n} usable row(s); it needs more rows than "
+        "coefficients. Use fewer regressors or categories, or load more data."
+        + (
+            f" {lonely:,} row(s) were dropped as alone in their level of {' or '.join(spec.absorb)}: absorb fewer "
+            "identifiers, or ones whose levels repeat."
+            if lonely
+            else ""
+        )
     )
 
 
