@@ -10,6 +10,7 @@ import json
 import math
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from core.inference.choices import numeric_or_none
@@ -35,13 +36,15 @@ def describe_column(series: pd.Series) -> str:
     if values is None:
         levels = series.dropna().astype(str).nunique()
         return f"text, {levels} level{'s' if levels != 1 else ''}{tail}"
-    finite = values.dropna()
-    if finite.empty:
+    every = values.to_numpy(dtype=float, na_value=np.nan)
+    finite = every[~np.isnan(every)]
+    if not len(finite):
         return f"empty{tail}"
-    if set(finite.unique()) <= {0.0, 1.0}:
+    zero = finite == 0
+    if bool(np.all(zero | (finite == 1))):
         return f"0/1{tail}"
     parts = [f"{compact(float(finite.min()))} to {compact(float(finite.max()))}"]
-    zeros = int((finite == 0).sum())
+    zeros = int(zero.sum())
     negatives = int((finite < 0).sum())
     if zeros:
         parts.append(f"{zeros:,} zero{'s' if zeros != 1 else ''}")

@@ -44,15 +44,17 @@ _LOCKED_PLURAL = {"identifier": "identifiers", "date": "dates"}
 
 
 # --- reading, cached on the bytes ----------------------------------------------------------------
-@st.cache_data(max_entries=8, show_spinner="Reading the table…")
 def read_upload(raw: bytes, name: str, sheet: str | None = None) -> tuple[pd.DataFrame, list[str], dict[str, Any]]:
-    """The table, the notes on every conversion made while reading, and the column profiles.
+    """The table, the notes on every conversion made while reading, and the column profiles
+    (without each column's Box-Cox λ: the profiles view works out the one it shows).
 
-    Raises ``core.DataError`` (worded for the user) when the bytes are not a usable table."""
+    Not cached: the caller reads each upload once, and a cache would hash the whole file and
+    copy the table on every hit. Raises ``core.DataError`` (worded for the user) when the bytes
+    are not a usable table."""
     frame, notes = read_table_with_notes(raw, name=name, sheet=sheet)
     # Header cells such as 2024 can arrive as numbers; the grid and the spec name columns as text.
     frame = frame.rename(columns=str)
-    return frame, notes, profile_table(frame, notes)
+    return frame, notes, profile_table(frame, notes, boxcox=False)
 
 
 def sheet_names(raw: bytes) -> list[str]:

@@ -12,6 +12,7 @@ import streamlit as st
 from app import charts, exports, keys
 from app.gridspec import _text, outcome_column, profile_entries
 from app.intake import transform_words
+from core.intake.profile import column_boxcox
 from core.output.escape import plain
 from core.output.numbers import round_sig, signed
 from core.output.text import boxcox_sentence, sentence_case
@@ -112,6 +113,12 @@ def _number(value: Any, digits: int | None = None) -> float | None:
 def _skew_value(value: Any) -> float | None:
     number = _number(value)
     return None if number is None else round(number, 2) + 0.0
+
+
+@st.cache_data(max_entries=32, show_spinner=False)
+def _column_boxcox(data_id: str | None, column: str, entry: dict[str, Any], _frame: pd.DataFrame) -> dict[str, Any] | None:
+    """The outcome column's own Box-Cox λ, once per table and column (the frame is not hashed)."""
+    return column_boxcox(entry, _frame[column])
 
 
 def profile_frame(profile: dict[str, Any], grid: pd.DataFrame | None = None) -> pd.DataFrame:
@@ -223,6 +230,8 @@ def profiles_view(ctx: Any = None) -> None:
         reasons = [sentence_case(arrows(r)) for r in entry.get("reasons") or []]
         if reasons:
             st.markdown("\n".join(f"- {plain(r)}" for r in reasons))
+        if pick == outcome and entry.get("boxcox") is None:
+            entry = {**entry, "boxcox": _column_boxcox(data.get("id"), pick, entry, data["frame"])}
         lines = evidence_lines(entry, outcome=pick == outcome)
         if lines:
             st.markdown("**Evidence**")
