@@ -20,6 +20,7 @@ from __future__ import annotations
 import io
 import math
 import os
+import time
 from collections.abc import Callable, Mapping
 from typing import Any
 
@@ -44,17 +45,49 @@ _LOCKED_PLURAL = {"identifier": "identifiers", "date": "dates"}
 
 
 # --- reading, cached on the bytes ----------------------------------------------------------------
-def read_upload(raw: bytes, name: str, sheet: str | None = None) -> tuple[pd.DataFrame, list[str], dict[str, Any]]:
+def read_upload(
+    raw: bytes, name: str, sheet: str | None = None, stage: Callable[[str], None] | None = None
+) -> tuple[pd.DataFrame, list[str], dict[str, Any]]:
     """The table, the notes on every conversion made while reading, and the column profiles
     (without each column's Box-Cox λ: the profiles view works out the one it shows).
 
+    ``stage`` is told each step as it starts ("reading", "profiling"), for a progress display.
     Not cached: the caller reads each upload once, and a cache would hash the whole file and
     copy the table on every hit. Raises ``core.DataError`` (worded for the user) when the bytes
     are not a usable table."""
+    say = stage or (lambda _: None)
+    say("reading")
     frame, notes = read_table_with_notes(raw, name=name, sheet=sheet)
     # Header cells such as 2024 can arrive as numbers; the grid and the spec name columns as text.
     frame = frame.rename(columns=str)
+    say("profiling")
     return frame, notes, profile_table(frame, notes, boxcox=False)
+
+
+# The steps of taking in an upload, as the progress display words them.
+UPLOAD_STAGES = {
+    "reading": "Reading the table",
+    "profiling": "Profiling each column",
+    "choosing": "Choosing a starting model",
+    "fitting": "Fitting it",
+}
+
+
+def upload_progress(name: str) -> tuple[Any, Callable[[str], None]]:
+    """A status box for taking in ``name`` and the function that moves it to a stage: the stage
+    done so far, the one running and the time since the upload arrived."""
+    box = st.status(f"Loading {name}…", expanded=True)
+    lines = box.empty()
+    started = time.perf_counter()
+    seen: list[str] = []
+
+    def stage(key: str) -> None:
+        seen.append(key)
+        done = [f"✓ {UPLOAD_STAGES[k]}" for k in seen[:-1]]
+        lines.markdown("  \n".join([*done, f"… {UPLOAD_STAGES[key]} ({time.perf_counter() - started:.1f} s so far)"]))
+        box.update(label=f"Loading {name}: {UPLOAD_STAGES[key].lower()}…")
+
+    return box, stage
 
 
 def sheet_names(raw: bytes) -> list[str]:

@@ -55,3 +55,4 @@ ABSORBED_SEEN = "absorbed_seen"
 ABSORB_MESSAGE = "absorb_message"
 CLUSTER_SECOND = "cluster_second"  # the second grouping of two-way clustered errors, or "none"
 PENDING_CLUSTER = "pending_cluster"  # an identifier just absorbed: cluster by it at the next run
+JUST_LOADED = "just_loaded"  # rows of a table just taken in: its first fit says so while it runs

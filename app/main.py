@@ -9,6 +9,7 @@ from __future__ import annotations
 import hashlib
 import json
 import sys
+from contextlib import nullcontext
 from pathlib import Path
 from typing import Any
 
@@ -116,10 +117,13 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = too_big, seen
         return
     raw = upload.getvalue()
+    box, stage = intake.upload_progress(upload.name)
     try:
-        frame, notes, profile = intake.read_upload(raw, upload.name, sheet)
+        frame, notes, profile = intake.read_upload(raw, upload.name, sheet, stage)
+        stage("choosing")
         spec, advice = intake.starting_model_or_none(frame, profile)
     except (core.FormwiseError, GridError) as exc:
+        box.update(label=f"Could not load {upload.name}", state="error", expanded=False)
         # Most reader messages name the file already; say it once.
         said = str(exc)
         said = sentence_case(said) if f"'{upload.name}'" in said else f"Could not use '{upload.name}': {said}"
@@ -128,12 +132,15 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = said, seen
         return
     except Exception as exc:  # a reader bug must not become a traceback or lose the current data
+        box.update(label=f"Could not load {upload.name}", state="error", expanded=False)
         ss[keys.UPLOAD_ERROR] = f"Could not use '{upload.name}' because of an internal problem ({type(exc).__name__}: {exc})."
         ss[keys.UPLOAD_SEEN] = seen
         return
     ss[keys.UPLOAD_SEEN] = seen
     data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
     use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile, advice)
+    stage("fitting")
+    ss[keys.JUST_LOADED] = len(frame)
     st.rerun()  # draw the page (data name, notes) for the new table from the top
 
 
@@ -374,7 +381,11 @@ def _page() -> None:
         spec, notes = grid_to_spec(grid, ss[keys.COVARIANCE], cluster, ss.get(keys.AT), estimator)
         spec, set_aside = with_time_and_scenarios(spec, ss.get(keys.TIME_COLUMN), ss.get(keys.LAGS), ss.get(keys.SCENARIOS))
         notes += set_aside
-        result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
+        rows = ss.pop(keys.JUST_LOADED, None)
+        # A table just taken in: its first fit can take a while on a long table, so it says so.
+        waiting = st.spinner(f"Fitting the starting model on {rows:,} rows…") if rows is not None else nullcontext()
+        with waiting:
+            result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)
         ss[keys.LAST_GOOD] = {
             "result": result,
             "spec": spec,
