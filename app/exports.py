@@ -17,14 +17,14 @@ import plotly.graph_objects as go
 import streamlit as st
 
 import core
-from app import charts, intake, keys
+from app import charts, intake, keys, report_job
 from app.gridspec import spec_json
 from core.inference.choices import zero_note
 from core.model.spec import parse_spec
 from core.model.specfile import parse_spec_document, spec_document
 from core.output import tables as core_tables
 from core.output.escape import plain
-from core.output.report import build_report
+from core.output.report import ReportProgress, build_report
 from core.output.text import model_sentence
 
 # fmt: (button words, file extension, MIME type)
@@ -100,14 +100,20 @@ def restore_notes(spec: dict[str, Any], frame: pd.DataFrame) -> list[str]:
     return notes
 
 
-def report_file(frame: pd.DataFrame, spec: dict[str, Any], data_name: str, saved: dict[str, dict[str, Any]]) -> str:
+def report_file(
+    frame: pd.DataFrame,
+    spec: dict[str, Any],
+    data_name: str,
+    saved: dict[str, dict[str, Any]],
+    progress: ReportProgress = None,
+) -> str:
     """The self-contained HTML report (``core.output.report.build_report``) for the model on screen
     and the saved models; named after the saved model when it is one."""
     current = {k: v for k, v in spec.items() if k != "name"}
     name = model_name(current, saved)
     if name:
         current["name"] = name
-    return build_report(frame, current, data_name, saved or None)
+    return build_report(frame, current, data_name, saved or None, progress)
 
 
 # --- charts -----------------------------------------------------------------------------------------
@@ -261,15 +267,19 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
         if with_sweep and not ppml:
             spec = {**spec, "sweep": spec.get("sweep") or {}}
         key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
-        if st.button("Prepare the report", key="prepare_report", width="stretch", help="Runs the whole analysis once."):
-            with st.spinner("Writing the report…"):
-                try:
-                    html = report_file(good["frame"], spec, good["data_name"], saved)
-                except Exception as exc:  # a core bug must not become a traceback on screen
-                    ss[keys.REPORT] = None
-                    st.error(plain(f"The report could not be written: {exc}"))
-                else:
-                    ss[keys.REPORT] = {"key": key, "html": html}
+        job = ss.get(keys.REPORT_JOB)
+        busy = job is not None and job.running
+        if st.button(
+            "Prepare the report", key="prepare_report", width="stretch", disabled=busy, help="Runs the whole analysis once."
+        ):
+            frame, data_name = good["frame"], good["data_name"]
+            ss[keys.REPORT_NOTE] = None
+            ss[keys.REPORT_JOB] = report_job.start(
+                key, lambda progress: report_file(frame, spec, data_name, saved, progress=progress)
+            )
+        report_job.show()
+        if ss.get(keys.REPORT_NOTE):
+            st.warning(ss[keys.REPORT_NOTE])
         report = ss.get(keys.REPORT)
         if report and report["key"] == key:
             stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)

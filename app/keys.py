@@ -56,3 +56,5 @@ ABSORB_MESSAGE = "absorb_message"
 CLUSTER_SECOND = "cluster_second"  # the second grouping of two-way clustered errors, or "none"
 PENDING_CLUSTER = "pending_cluster"  # an identifier just absorbed: cluster by it at the next run
 JUST_LOADED = "just_loaded"  # rows of a table just taken in: its first fit says so while it runs
+REPORT_JOB = "report_job"  # the report being prepared on its worker thread (app.report_job)
+REPORT_NOTE = "report_note"  # why the last report was not written (stopped, or failed)

@@ -22,7 +22,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import cautions, context, exports, history, intake, keys, views
+from app import cautions, context, exports, history, intake, keys, upload_progress, views
 from app.grid_columns import grid_column_config
 from app.gridspec import (
     GridError,
@@ -117,7 +117,7 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = too_big, seen
         return
     raw = upload.getvalue()
-    box, stage = intake.upload_progress(upload.name)
+    box, stage = upload_progress.start(upload.name)
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet, stage)
         stage("choosing")

@@ -95,7 +95,9 @@ def analyze(
     (docs/contract.md §3.1) are always present. Raises ``FormwiseError`` with a message for the
     user on bad input. The result holds only JSON-able values. ``columns`` (a ``ColumnCache``
     kept by the caller for this table) lets a refit reuse the columns and transforms the
-    previous fits already computed; the result is the same without it.
+    previous fits already computed; the result is the same without it. ``progress`` is called
+    with the share of the work done (0 to 1) after each section and during a bootstrap; when it
+    returns False the analysis stops with ``FormwiseError``.
     """
     if not isinstance(data, pd.DataFrame):
         raise DataError("the data must be a table (a pandas DataFrame).")
@@ -137,10 +139,16 @@ def analyze(
             f"the regressors are nearly collinear (condition number {fit.condition_number:,.0f}); "
             "individual coefficients are imprecise, though predictions may still be fine."
         )
-    for keys, section in SECTIONS:
-        if wanted & keys:
-            with np.errstate(all="ignore"), nullcontext() if keys & BLAS_THREADED_PARTS else single_threaded_blas:
-                result.update(section(run))
+    chosen = [(keys, section) for keys, section in SECTIONS if wanted & keys]
+    total = sum(_cost(keys) for keys, _ in chosen) or 1.0
+    done = 0.0
+    for keys, section in chosen:
+        run.progress = _within(progress, done / total, _cost(keys) / total)  # the bootstrap's own share
+        with np.errstate(all="ignore"), nullcontext() if keys & BLAS_THREADED_PARTS else single_threaded_blas:
+            result.update(section(run))
+        done += _cost(keys)
+        if progress is not None and progress(min(done / total, 1.0)) is False:
+            raise FormwiseError("the analysis was stopped before it finished; nothing was kept.")
     result["warnings"] = list(dict.fromkeys(run.warnings))
     result["cautions"] = CAUTIONS
     return json_safe(result)
@@ -314,6 +322,30 @@ def _blocks(run: _Run, make: Callable[[Model, Any], list[Any]]) -> list[Any]:
 # OpenBLAS's idle threads keep a core busy waiting for more work, which slowed the next fit
 # at 1,000,000 rows from 34 ms to 54 ms (a refit's vector products were enough to start them).
 BLAS_THREADED_PARTS = frozenset({"diagnostics", "boxcox"})
+
+# Rough cost of each section relative to the coefficients (measured at 1,000,000 rows by
+# bench/browser.py's table), only to make the share reported to ``progress`` move evenly.
+SECTION_COST = {
+    "diagnostics": 6.0,
+    "boxcox": 8.0,
+    "sweep": 20.0,
+    "curves": 3.0,
+    "residuals": 3.0,
+    "distributions": 3.0,
+    "units_check": 3.0,
+}
+
+
+def _cost(keys: frozenset[str]) -> float:
+    return max((SECTION_COST.get(k, 1.0) for k in keys), default=1.0)
+
+
+def _within(progress: Progress, start: float, span: float) -> Progress:
+    """``progress`` for a section that covers ``span`` of the whole from ``start`` on."""
+    if progress is None:
+        return None
+    return lambda share: progress(min(start + span * share, 1.0))
+
 
 # The result sections in the order they are computed: (parts that ask for it, how).
 SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [

@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+import time
 from pathlib import Path
 from typing import Any
 
@@ -44,6 +45,20 @@ def show(at: AppTest, view: str) -> AppTest:
     """Open one view of the view selector."""
     at.segmented_control(key="view").set_value(view).run()
     assert not at.exception, at.exception
+    return at
+
+
+def prepare_report(at: AppTest, timeout: float = TIMEOUT) -> AppTest:
+    """Press "Prepare the report" and rerun until its worker thread has finished (the browser's
+    timer does this; AppTest has none), so ``session_state["report"]`` holds the result."""
+    at.button(key="prepare_report").click().run()
+    assert not at.exception, at.exception
+    deadline = time.monotonic() + timeout
+    while at.session_state["report_job"] is not None:
+        assert time.monotonic() < deadline, "the report did not finish"
+        time.sleep(0.1)
+        at.run()
+        assert not at.exception, at.exception
     return at
 
 

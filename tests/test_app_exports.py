@@ -26,7 +26,7 @@ from core.output.escape import csv_cell
 from core.output.numbers import sig
 from core.output.report import CAUTION_REVIEW
 from core.output.tables import plain_number
-from tests.app_support import cli_analyze, edit_grid, show, start
+from tests.app_support import cli_analyze, edit_grid, prepare_report, show, start
 from tests.helpers import shown, shown_table
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -387,7 +387,7 @@ def test_report_download_is_self_contained() -> None:
     at.text_input(key="save_name").set_value("<b>Kiosks</b> [x](http://example.invalid)").run()
     at.button(key="save_model").click().run()
     assert "report" not in at.session_state or at.session_state["report"] is None
-    at.button(key="prepare_report").click().run()
+    prepare_report(at)
     assert not at.exception, at.exception
     html = at.session_state["report"]["html"]
     assert html.startswith("<!DOCTYPE html>")

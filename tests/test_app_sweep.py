@@ -3,7 +3,7 @@ model into the grid as an edit Undo takes back."""
 
 from __future__ import annotations
 
-from tests.app_support import show, start
+from tests.app_support import prepare_report, show, start
 
 
 def _terms(at) -> list[str]:
@@ -43,12 +43,12 @@ def test_the_forms_view_ranks_the_models_and_loads_one_into_the_grid() -> None:
 
 def test_the_report_includes_the_forms_sweep_when_asked() -> None:
     at = start()
-    at.button(key="prepare_report").click().run()
+    prepare_report(at)
     assert "Does the answer depend on the forms?" not in at.session_state["report"]["html"]
     at.checkbox(key="report_sweep").check().run()
     # The choice is part of what the report was prepared for: the plain one is stale now.
     assert "Download the report (HTML)" not in {b.proto.label for b in at.get("download_button")}
-    at.button(key="prepare_report").click().run()
+    prepare_report(at)
     assert not at.exception, at.exception
     html = at.session_state["report"]["html"]
     assert "Does the answer depend on the forms?" in html and "combinations of forms" in html

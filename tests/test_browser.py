@@ -450,3 +450,41 @@ def test_residual_checks_on_a_190_level_category_keep_the_server_up(page, browse
     second.close()
     assert page.get_by_text("White").count() > 0  # the first session is still there
     assert page.problems == []
+
+
+def test_the_report_on_a_large_table_shows_progress_and_the_page_stays_usable(page, tmp_path: Path) -> None:
+    """While the report is prepared on 400,000 rows (with every combination of forms), a progress
+    bar names its stage, another view can be opened and drawn meanwhile, and Stop ends it with a
+    note and no report."""
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng(15)
+    n = 400_000
+    price = rng.uniform(1.0, 6.0, n)
+    income = rng.lognormal(10.5, 0.4, n)
+    stock = rng.gamma(2.0, 30.0, n)
+    region = rng.choice(["north", "south", "east"], n)
+    units = np.exp(3.0 - 0.8 * np.log(price) + 0.3 * np.log(income) / 10 + 0.002 * stock + rng.normal(0, 0.3, n))
+    data = tmp_path / "large_sales.csv"
+    frame = pd.DataFrame({"units": units.round(3), "price": price.round(2), "income": income.round(0), "stock": stock.round(1)})
+    frame.assign(region=region).to_csv(data, index=False)
+    page.locator('input[type="file"]').first.set_input_files(str(data))
+    page.get_by_text("large_sales.csv").first.wait_for(timeout=120_000)
+    page.get_by_text(READY_TEXT).first.wait_for(timeout=120_000)
+    _wait_for_rerun(page)
+    page.get_by_text("Include every combination of forms").first.click()
+    _wait_for_rerun(page)
+    page.get_by_role("button", name="Prepare the report").click()
+    progress = page.get_by_text("Preparing the report:").first
+    progress.wait_for(timeout=30_000)
+    _shot(page, "report-progress")
+    # Another control works while the report runs: the Effects view opens and draws.
+    page.get_by_role("radio", name="Effects", exact=True).first.click()
+    page.get_by_text("Each row moves one variable by the change in the grid").first.wait_for(timeout=30_000)
+    assert progress.is_visible(), "the report finished before the other view was drawn: the table is too small to tell"
+    page.get_by_role("button", name="Stop preparing the report").click()
+    page.get_by_text("The report was stopped; nothing was written.").first.wait_for(timeout=60_000)
+    assert page.get_by_text("Download the report (HTML)").count() == 0
+    _no_error_text(page)
+    assert page.problems == []

@@ -13,7 +13,7 @@ import pytest
 
 import core
 from core.output.escape import csv_cell as neutralise
-from core.output.report import build_report
+from core.output.report import STAGE_ANALYSIS, STAGE_WRITING, build_report
 from core.output.tables import coefficient_table, comparison_table, effects_table, plain_number, render, to_csv, to_latex
 
 HOSTILE_Y = '=HYPERLINK("http://example.invalid","x")'
@@ -111,3 +111,22 @@ def test_markdown_tables_keep_user_text_literal() -> None:
     assert re.search(r"(?<!\\)[\[\]()<>!]", text.replace("**t**", "")) is None
     assert r"\!\[px\]\(" in text and r"\<img" in text
     assert "://" not in text and "www." not in text
+
+
+def test_report_progress_moves_forward_names_its_stages_and_false_stops_it(kiosks: pd.DataFrame, default_spec: dict) -> None:
+    seen: list[tuple[float, str]] = []
+    html = build_report(
+        kiosks, default_spec, "kiosks.csv", {"saved": default_spec}, lambda share, stage: seen.append((share, stage))
+    )
+    shares = [share for share, _ in seen]
+    assert html.startswith("<!DOCTYPE html>")
+    assert shares == sorted(shares) and shares[0] == 0.0 and 0.9 < shares[-1] <= 1.0
+    stages = [stage for _, stage in seen]
+    assert stages[0] == STAGE_ANALYSIS and stages[-1] == STAGE_WRITING
+    drawing = [s for s in stages if s.startswith("Drawing the charts")]
+    assert drawing[0] == f"Drawing the charts (1 of {len(drawing)})" and "Fitting the saved models (1 of 1)" in stages
+    # The analysis itself reports its sections: more than one share inside the analysis stage.
+    assert len({share for share, stage in seen if stage == STAGE_ANALYSIS}) > 3
+    # Stopping at the charts leaves no report, with the reason worded for the user.
+    with pytest.raises(core.FormwiseError, match="report was stopped"):
+        build_report(kiosks, default_spec, "kiosks.csv", None, lambda share, stage: not stage.startswith("Drawing"))

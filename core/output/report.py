@@ -9,6 +9,7 @@ that carries no user text, the only markup passed through unescaped.
 from __future__ import annotations
 
 import json
+from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -20,6 +21,7 @@ from markupsafe import Markup
 from matplotlib.figure import Figure
 
 from core.analysis import analyze
+from core.errors import FormwiseError
 from core.model.transforms import parse_transform
 from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
@@ -119,8 +121,43 @@ def report_figures(result: dict[str, Any], spec: dict[str, Any], size: str = "fu
     return out
 
 
-def _charts(result: dict[str, Any], spec: dict[str, Any]) -> dict[str, Chart]:
-    return {key: _chart(fig, key, caption) for key, fig, caption in report_figures(result, spec)}
+# What the report tells its ``progress`` as it goes: (share done from 0 to 1, what runs now).
+ReportProgress = Callable[[float, str], Any] | None
+# Shares of the whole report, measured on bench/browser.py's 1,000,000-row table: the analysis
+# about half, the charts (matplotlib to SVG) most of the rest.
+_ANALYSIS_SHARE, _CHARTS_SHARE, _SAVED_SHARE = 0.5, 0.4, 0.08
+STAGE_ANALYSIS = "Fitting the model and its checks"
+STAGE_WRITING = "Writing the file"
+
+
+class _Told:
+    """Passes the report's progress on and stops the report when the caller says so."""
+
+    def __init__(self, progress: ReportProgress) -> None:
+        self.progress = progress
+
+    def __call__(self, share: float, stage: str) -> None:
+        if self.progress is not None and self.progress(min(share, 1.0), stage) is False:
+            raise FormwiseError("the report was stopped before it was finished; nothing was written.")
+
+    def span(self, start: float, width: float, stage: str) -> Callable[[float], bool]:
+        """A ``core.analyze`` progress callback for the part of the report from ``start`` on."""
+
+        def told(share: float) -> bool:
+            self(start + width * share, stage)
+            return True
+
+        return told
+
+
+def _charts(result: dict[str, Any], spec: dict[str, Any], told: _Told | None = None) -> dict[str, Chart]:
+    made = report_figures(result, spec)
+    out = {}
+    for i, (key, fig, caption) in enumerate(made):
+        if told is not None:
+            told(_ANALYSIS_SHARE + _CHARTS_SHARE * i / len(made), f"Drawing the charts ({i + 1} of {len(made)})")
+        out[key] = _chart(fig, key, caption)
+    return out
 
 
 @dataclass
@@ -149,15 +186,27 @@ def build_report(
     spec: dict[str, Any],
     data_name: str,
     saved: dict[str, dict[str, Any]] | None = None,
+    progress: ReportProgress = None,
 ) -> str:
-    """The whole report as one HTML string."""
-    result = analyze(data, spec)
+    """The whole report as one HTML string.
+
+    ``progress`` is called with the share done and the stage running (``STAGE_ANALYSIS``,
+    "Drawing the charts (3 of 19)", the saved models, ``STAGE_WRITING``); when it returns False
+    the report stops with ``FormwiseError`` and nothing is returned."""
+    told = _Told(progress)
+    told(0.0, STAGE_ANALYSIS)
+    result = analyze(data, spec, progress=told.span(0.0, _ANALYSIS_SHARE, STAGE_ANALYSIS))
     n_coefficients = len(result.get("terms", [])) or 1
-    charts = _charts(result, spec)
+    charts = _charts(result, spec, told)
     comparison = None
     if saved:
-        compared = {name: analyze(data, s, parts={"fit", "effects", "diagnostics"}) for name, s in saved.items()}
+        compared = {}
+        start = _ANALYSIS_SHARE + _CHARTS_SHARE
+        for i, (name, s) in enumerate(saved.items()):
+            told(start + _SAVED_SHARE * i / len(saved), f"Fitting the saved models ({i + 1} of {len(saved)})")
+            compared[name] = analyze(data, s, parts={"fit", "effects", "diagnostics"})
         comparison = comparison_table(compared)
+    told(_ANALYSIS_SHARE + _CHARTS_SHARE + _SAVED_SHARE, STAGE_WRITING)
     reference = [(str(k), v if isinstance(v, str) else format_cell(v)) for k, v in result["reference_point"].items()]
     return _ENV.get_template("report.html.j2").render(
         title=spec.get("name") or "Formwise report",
