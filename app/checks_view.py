@@ -121,6 +121,8 @@ def _boxcox_card(ctx: Context, boxcox: dict[str, Any] | None) -> None:
     low, high = boxcox.get("ci_low"), boxcox.get("ci_high")
     concern = None if power is None or low is None or high is None else not low <= power <= high
     sentences = [boxcox_headline(boxcox, ctx.outcome) + ".", boxcox_sentence(boxcox, ctx.outcome)]
+    if boxcox.get("note"):
+        sentences.append(boxcox["note"])
     _check_card(question, concern, sentences, charts.boxcox_figure(boxcox, ctx.outcome), "boxcox_chart")
 
 

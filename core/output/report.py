@@ -91,6 +91,8 @@ def boxcox_caption(boxcox: dict[str, Any]) -> str:
     ]
     if drops:
         words.append(" and ".join(drops).capitalize() + ".")
+    if boxcox.get("note"):
+        words.append(boxcox["note"])
     return " ".join(words)
 
 

@@ -77,7 +77,7 @@ def diagnostics_table(result: dict[str, Any]) -> Table:
     notes = []
     if white.get("form") == "fitted":
         names["white"] = "White on fitted values and their squares, spread vs fitted values"
-        notes = [white["note"]] if white.get("note") else []
+    notes = [white["note"]] if white.get("note") else []
     rows: list[list[Cell]] = [
         [label, sig(checks[key]["statistic"], 4), p_value(checks[key]["p_value"])]
         for key, label in names.items()

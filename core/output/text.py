@@ -242,10 +242,10 @@ def check_sentences(diagnostics: dict[str, Any], covariance: str = "HC1") -> lis
 
 
 def _white_form_words(diagnostics: dict[str, Any]) -> list[str]:
-    """Why the White test took its form on the fitted values and their squares, when it did
-    (core.inference.diagnostics.white: over its size budget)."""
+    """What the White test's budget changed, when it did (core.inference.diagnostics.white): its
+    form on the fitted values and their squares, or a sample of the rows."""
     white = diagnostics.get("white") or {}
-    return [white["note"]] if white.get("form") == "fitted" and white.get("note") else []
+    return [white["note"]] if white.get("note") else []
 
 
 def _spread_words(residuals: dict[str, Any] | None) -> list[str]:
