@@ -49,7 +49,7 @@ from core.errors import DataError, FormwiseError
 from core.inference.changes import default_change_text
 from core.intake.column_rule import name_words
 from core.intake.profile import profile_table
-from core.model.design import build_design
+from core.model.design import ColumnCache, build_design
 from core.model.spec import parse_spec
 from core.model.transforms import lookup
 
@@ -124,6 +124,8 @@ class _Table:
     names: list[str]
     n: int
     notes: list[Note] = field(default_factory=list)
+    # The trial fits' converted and transformed columns, shared by the design checks and the fit.
+    columns: ColumnCache = field(default_factory=ColumnCache)
 
     def note(self, column: str | None, about: str, text: str) -> None:
         self.notes.append({"column": column, "about": about, "text": text})
@@ -648,7 +650,7 @@ def _fit_problems(
 
     trial = dict(spec, regressors=[{"column": c, "transform": transform_of(c)} for c in active])
     try:
-        design = build_design(data, parse_spec(trial, data))
+        design = build_design(data, parse_spec(trial, data), table.columns)
     except FormwiseError as exc:
         return spec, None, named(exc)
     dependent = _dependent(design, order)
@@ -662,7 +664,7 @@ def _fit_problems(
         return spec, None, [(column, text, "left_out")]
     full = dict(spec, regressors=_entries(table, design))
     try:
-        fit = analyze(data, full, parts={"terms", "fit"})["fit"]
+        fit = analyze(data, full, parts={"terms", "fit"}, columns=table.columns)["fit"]
     except FormwiseError as exc:
         if full["estimator"] == "ppml" and "PPML" in str(exc):
             fallback = "ihs" if table.entries[outcome].get("suggested_transform") == "ihs" else "level"
