@@ -7,7 +7,7 @@ from typing import Any
 
 import streamlit as st
 
-from app import charts, exports, tables
+from app import charts, exports, keys, tables
 from app.context import CHECK_PARTS, Context, chart
 from core.output import display
 from core.output import tables as core_tables
@@ -38,8 +38,8 @@ def checks_view(ctx: Context) -> None:
         distributions_section(ctx)
         return
     with st.spinner("Running the residual checks…"):
-        result = ctx.analyze(CHECK_PARTS)
-        residuals = ctx.analyze({"residuals"}).get("residuals")
+        result = ctx.analyze(CHECK_PARTS | {"residuals"})  # one fit for the tests and the charts
+        residuals = result.get("residuals")
     diagnostics = result.get("diagnostics") or {}
     if residuals is not None:
         verdicts = check_verdicts(diagnostics, result.get("covariance", "HC1"), residuals)
@@ -58,7 +58,9 @@ def checks_view(ctx: Context) -> None:
     _boxcox_card(ctx, result.get("boxcox"))
     if diagnostics:
         exports.table_downloads(core_tables.diagnostics_table(result), "checks", "checks")
-    distributions_section(ctx)
+    # Asked for: a chart per variable, drawn on every rerun, would double the view's time.
+    if st.toggle("Also show each variable as recorded and as transformed", key=keys.SHOW_DISTRIBUTIONS):
+        distributions_section(ctx)
 
     st.markdown("##### Regressors that move together")
     vif = display.vif_table(result, spec)

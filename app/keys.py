@@ -58,3 +58,4 @@ PENDING_CLUSTER = "pending_cluster"  # an identifier just absorbed: cluster by i
 JUST_LOADED = "just_loaded"  # rows of a table just taken in: its first fit says so while it runs
 REPORT_JOB = "report_job"  # the report being prepared on its worker thread (app.report_job)
 REPORT_NOTE = "report_note"  # why the last report was not written (stopped, or failed)
+SHOW_DISTRIBUTIONS = "show_distributions"  # the residual checks also draw each variable as recorded and as transformed

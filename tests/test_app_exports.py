@@ -96,6 +96,8 @@ def test_every_chart_exports_at_the_chosen_slide_size() -> None:
     seen: dict[str, dict[str, Any]] = {}
     for view in at.segmented_control(key="view").options:
         show(at, view)
+        if view == "Residual checks":
+            at.toggle(key="show_distributions").set_value(True).run()
         for _figure, config in chart_elements(at):
             seen[config["toImageButtonOptions"]["filename"]] = config
     # The approximation check, effect curves, units check, residual checks, Box-Cox profile,
@@ -148,6 +150,8 @@ def test_slide_type_is_readable_and_text_fits_the_canvas(size: str) -> None:
     checked = 0
     for view in at.segmented_control(key="view").options:
         show(at, view)
+        if view == "Residual checks":
+            at.toggle(key="show_distributions").set_value(True).run()
         for figure, _ in chart_elements(at):
             layout = figure["layout"]
             assert min(_font_sizes(figure)) * 0.75 >= 12, layout.get("title", {}).get("text")
