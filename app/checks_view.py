@@ -37,9 +37,10 @@ def checks_view(ctx: Context) -> None:
         )
         distributions_section(ctx)
         return
-    with st.spinner("Running the residual checks…"):
-        result = ctx.analyze(CHECK_PARTS | {"residuals"})  # one fit for the tests and the charts
-        residuals = result.get("residuals")
+    result = ctx.analyze_long(CHECK_PARTS | {"residuals"}, "checks", "Running the residual checks")  # one fit for all
+    if result is None:
+        return
+    residuals = result.get("residuals")
     diagnostics = result.get("diagnostics") or {}
     if residuals is not None:
         verdicts = check_verdicts(diagnostics, result.get("covariance", "HC1"), residuals)

@@ -11,7 +11,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import exports
+from app import exports, jobs
 from app.gridspec import spec_json
 from core.inference.choices import (
     predict_inputs,
@@ -109,6 +109,25 @@ class Context:
     def analyze(self, parts: frozenset[str] | set[str], spec: dict[str, Any] | None = None) -> dict[str, Any]:
         chosen = self.spec if spec is None else spec
         return run_model(self.data_id, spec_json(chosen), tuple(sorted(parts)), self.frame)
+
+    def analyze_long(
+        self, parts: frozenset[str] | set[str], name: str, what: str, spec: dict[str, Any] | None = None
+    ) -> dict[str, Any] | None:
+        """``analyze`` for a view's heavy sections: on a long table (``jobs.JOB_MIN_ROWS``) on a
+        worker thread with a progress box and a Stop button, returning None until it is done;
+        on a short one at once (with a spinner), through the same cache."""
+        chosen = self.spec if spec is None else spec
+        if self.result.get("n_obs", 0) < jobs.JOB_MIN_ROWS:
+            with st.spinner(f"{what}…"):
+                return self.analyze(parts, chosen)
+        frame, columns, wanted = self.frame, column_cache(self.data_id), set(parts)
+
+        def work(progress: jobs.Progress) -> dict[str, Any]:
+            return core.analyze(
+                frame, chosen, parts=wanted, columns=columns, progress=lambda share: progress(share, what.lower())
+            )
+
+        return jobs.view_result(name, (self.data_id, spec_json(chosen), tuple(sorted(wanted))), work, what)
 
     @property
     def ppml(self) -> bool:

@@ -17,7 +17,7 @@ import plotly.graph_objects as go
 import streamlit as st
 
 import core
-from app import charts, intake, keys, report_job
+from app import charts, intake, jobs, keys
 from app.gridspec import spec_json
 from core.inference.choices import zero_note
 from core.model.spec import parse_spec
@@ -267,17 +267,16 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
         if with_sweep and not ppml:
             spec = {**spec, "sweep": spec.get("sweep") or {}}
         key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
-        job = ss.get(keys.REPORT_JOB)
-        busy = job is not None and job.running
+        jobs.report_done()
+        running = jobs.job("report")
+        busy = running is not None and running.running
         if st.button(
             "Prepare the report", key="prepare_report", width="stretch", disabled=busy, help="Runs the whole analysis once."
         ):
             frame, data_name = good["frame"], good["data_name"]
             ss[keys.REPORT_NOTE] = None
-            ss[keys.REPORT_JOB] = report_job.start(
-                key, lambda progress: report_file(frame, spec, data_name, saved, progress=progress)
-            )
-        report_job.show()
+            jobs.start("report", key, lambda progress: report_file(frame, spec, data_name, saved, progress=progress))
+        jobs.progress_box("report", "Preparing the report", "Stop preparing the report")
         if ss.get(keys.REPORT_NOTE):
             st.warning(ss[keys.REPORT_NOTE])
         report = ss.get(keys.REPORT)

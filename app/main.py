@@ -142,8 +142,7 @@ def take_upload(upload: Any) -> None:
     stage("fitting")
     ss[keys.JUST_LOADED] = len(frame)
     if not intake.has_sheets(upload):
-        # An empty uploader again: while it holds the file, Streamlit copies the file's bytes on
-        # every rerun (0.7 s for a 170 MB CSV). The table is kept; the sidebar names it.
+        # Emptied: while it holds the file, each rerun copies its bytes (0.7 s at 170 MB).
         ss[keys.UPLOADER_VERSION] = ss.get(keys.UPLOADER_VERSION, 0) + 1
         ss[keys.UPLOAD_SEEN] = None
     st.rerun()  # draw the page (data name, notes) for the new table from the top
@@ -387,7 +386,6 @@ def _page() -> None:
         spec, set_aside = with_time_and_scenarios(spec, ss.get(keys.TIME_COLUMN), ss.get(keys.LAGS), ss.get(keys.SCENARIOS))
         notes += set_aside
         rows = ss.pop(keys.JUST_LOADED, None)
-        # A table just taken in: its first fit can take a while on a long table, so it says so.
         waiting = st.spinner(f"Fitting the starting model on {rows:,} rows…") if rows is not None else nullcontext()
         with waiting:
             result = context.run_model(ss[keys.DATA]["id"], spec_json(spec), tuple(sorted(context.BASE_PARTS)), frame)

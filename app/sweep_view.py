@@ -35,8 +35,10 @@ def sweep_view(ctx: Context) -> None:
         st.info("The forms sweep compares least-squares models; switch PPML off to use it.")
         return
     spec = {**ctx.spec, "sweep": ctx.spec.get("sweep") or {}}
-    with st.spinner("Fitting every combination of plausible forms on the same rows…"):
-        sweep = ctx.analyze({"sweep"}, spec)["sweep"]
+    result = ctx.analyze_long({"sweep"}, "forms", "Fitting every combination of plausible forms on the same rows", spec)
+    if result is None:
+        return
+    sweep = result["sweep"]
     models = sweep["models"]
     varying = forms.varying(sweep)
     current = {ctx.outcome: ctx.result["outcome"]["transform"], **ctx.transforms}

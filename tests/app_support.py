@@ -54,7 +54,12 @@ def prepare_report(at: AppTest, timeout: float = TIMEOUT) -> AppTest:
     at.button(key="prepare_report").click().run()
     assert not at.exception, at.exception
     deadline = time.monotonic() + timeout
-    while at.session_state["report_job"] is not None:
+
+    def taken_in() -> bool:  # the job has ended and a run of the page has taken its result in
+        job = at.session_state["jobs"]["report"]
+        return not job.running and "report_seen" in at.session_state and at.session_state["report_seen"] is job
+
+    while not taken_in():
         assert time.monotonic() < deadline, "the report did not finish"
         time.sleep(0.1)
         at.run()

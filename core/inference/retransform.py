@@ -197,11 +197,7 @@ def boxcox_profile(y_raw: np.ndarray, X: np.ndarray, weights: np.ndarray | None 
     y_raw = np.asarray(y_raw, dtype=float)
     if np.any(y_raw <= 0):
         return None
-    total = len(y_raw)
-    if total > BOXCOX_SAMPLE_ROWS:
-        rows = sample_rows(total, BOXCOX_SAMPLE_ROWS)
-        y_raw, X = y_raw[rows], X[rows]
-        weights = None if weights is None else weights[rows]
+    y_raw, X, weights, note = _boxcox_rows(y_raw, X, weights)
     n = len(y_raw)
     log_y = np.log(y_raw)
     mean_log = float(log_y.mean())
@@ -285,11 +281,23 @@ def boxcox_profile(y_raw: np.ndarray, X: np.ndarray, weights: np.ndarray | None 
         "lambda": lam_hat,
         "ci_low": low,
         "ci_high": high,
-        "rows_used": n,
-        "note": None if n == total else BOXCOX_SAMPLE_NOTE.format(m=n, n=total),
+        **{"rows_used": n, "note": note},
         "loglik_max": top,
         "profile": {"lambda": grid.tolist(), "loglik": loglik(_ssr_many(grid, log_u, root, q)).tolist()},
     }
+
+
+def _boxcox_rows(
+    y_raw: np.ndarray, X: np.ndarray, weights: np.ndarray | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None, str | None]:
+    """The rows the profile uses, all of them or a seeded sample of ``BOXCOX_SAMPLE_ROWS``, and
+    the note that says so (None for all)."""
+    n = len(y_raw)
+    if n <= BOXCOX_SAMPLE_ROWS:
+        return y_raw, X, weights, None
+    rows = sample_rows(n, BOXCOX_SAMPLE_ROWS)
+    note = BOXCOX_SAMPLE_NOTE.format(m=BOXCOX_SAMPLE_ROWS, n=n)
+    return y_raw[rows], X[rows], None if weights is None else weights[rows], note
 
 
 def _ssr_many(lams: np.ndarray, log_u: np.ndarray, root: np.ndarray | None, q: np.ndarray) -> np.ndarray:
