@@ -11,7 +11,7 @@ import pandas as pd
 import streamlit as st
 
 import core
-from app import exports, jobs
+from app import exports, gridspec, jobs
 from app.gridspec import spec_json
 from core.inference.choices import (
     predict_inputs,
@@ -49,6 +49,29 @@ def level_names(data_id: str, column: str, _frame: pd.DataFrame) -> list[str]:
     """The distinct level names of an identifier column, in numeric-then-text order."""
     names = pd.unique(_frame[column].dropna().astype(str))
     return sorted((str(n) for n in names), key=lambda n: (0, float(n), n) if _is_number(n) else (1, 0.0, n))
+
+
+@st.cache_data(max_entries=32, show_spinner=False)
+def frequent_levels(data_id: str, column: str, _frame: pd.DataFrame) -> list[str]:
+    """``gridspec.frequent_levels`` once per table and column: on every rerun it would count a
+    million text cells again (40 ms)."""
+    return gridspec.frequent_levels(_frame[column], CATEGORY_LEVELS_SHOWN)
+
+
+CATEGORY_LEVELS_SHOWN = 12
+
+
+def levels_caption(data: dict[str, Any], grid: pd.DataFrame) -> None:
+    """Under the grid: the levels of each category regressor, so a reference can be typed."""
+    frame = data["frame"]
+    levels = gridspec.category_levels(
+        frame, grid, CATEGORY_LEVELS_SHOWN, lambda column: frequent_levels(data["id"], column, frame)
+    )
+    if levels:
+        st.caption(
+            "Category levels (most frequent first; blank reference = the most frequent): "
+            + " · ".join(f"**{plain(col)}**: {', '.join(map(plain, vals))}" for col, vals in levels.items())
+        )
 
 
 def _is_number(text: str) -> bool:

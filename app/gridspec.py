@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -311,15 +312,23 @@ def resolve_outcome(grid: pd.DataFrame, previous: pd.DataFrame) -> pd.DataFrame:
     return resolved
 
 
-def category_levels(frame: pd.DataFrame, grid: pd.DataFrame, limit: int = 12) -> dict[str, list[str]]:
-    """Levels of the columns used as categories, so the user can type a reference level."""
+def frequent_levels(series: pd.Series, limit: int) -> list[str]:
+    """Up to ``limit`` + 1 levels of a column as text, the most frequent first."""
+    return series.dropna().astype(str).value_counts().index[: limit + 1].tolist()
+
+
+def category_levels(
+    frame: pd.DataFrame, grid: pd.DataFrame, limit: int = 12, levels: Callable[[str], list[str]] | None = None
+) -> dict[str, list[str]]:
+    """Levels of the columns used as categories, so the user can type a reference level.
+    ``levels(column)``, when given, is ``frequent_levels`` of that column with ``limit`` (a cache)."""
     out: dict[str, list[str]] = {}
     for row in grid.to_dict("records"):
         if _text(row.get("transform")) == "category" and _text(row.get("role")) == "regressor":
             column = _text(row["column"])
             if column in frame.columns:
-                counts = frame[column].dropna().astype(str).value_counts()
-                out[column] = counts.index[:limit].tolist() + (["…"] if len(counts) > limit else [])
+                found = levels(column) if levels is not None else frequent_levels(frame[column], limit)
+                out[column] = found[:limit] + (["…"] if len(found) > limit else [])
     return out
 
 

@@ -26,7 +26,6 @@ from app import cautions, context, exports, history, intake, keys, upload_progre
 from app.grid_columns import grid_column_config
 from app.gridspec import (
     GridError,
-    category_levels,
     grid_to_spec,
     outcome_column,
     resolve_outcome,
@@ -261,12 +260,7 @@ def variables_grid() -> pd.DataFrame:
     intake.keep_locked_out(grid, restart_grid)
     intake.cluster_by_new_absorbed(grid)
     intake.advice_notes(ss[keys.DATA])
-    levels = category_levels(ss[keys.DATA]["frame"], grid)
-    if levels:
-        st.caption(
-            "Category levels (most frequent first; blank reference = the most frequent): "
-            + " · ".join(f"**{plain(col)}**: {', '.join(map(plain, vals))}" for col, vals in levels.items())
-        )
+    context.levels_caption(ss[keys.DATA], grid)
     return grid
 
 
