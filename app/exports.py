@@ -106,6 +106,7 @@ def report_file(
     data_name: str,
     saved: dict[str, dict[str, Any]],
     progress: ReportProgress = None,
+    columns: core.ColumnCache | None = None,
 ) -> str:
     """The self-contained HTML report (``core.output.report.build_report``) for the model on screen
     and the saved models; named after the saved model when it is one."""
@@ -113,7 +114,7 @@ def report_file(
     name = model_name(current, saved)
     if name:
         current["name"] = name
-    return build_report(frame, current, data_name, saved or None, progress)
+    return build_report(frame, current, data_name, saved or None, progress, columns)
 
 
 # --- charts -----------------------------------------------------------------------------------------
@@ -215,8 +216,13 @@ def _spec_uploaded(use_data: Callable[..., None]) -> None:
     ss[keys.SPEC_UPLOAD_VERSION] = ss.get(keys.SPEC_UPLOAD_VERSION, 0) + 1
 
 
-def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -> None:
-    """The sidebar's Export area: chart settings, the spec file (down and up) and the report."""
+def export_section(
+    good: dict[str, Any] | None,
+    use_data: Callable[..., None],
+    column_cache: Callable[[str], core.ColumnCache] | None = None,
+) -> None:
+    """The sidebar's Export area: chart settings, the spec file (down and up) and the report.
+    ``column_cache(data_id)``: the table's cache of transformed columns, which the report reuses."""
     ss = st.session_state
     with st.sidebar:
         st.markdown("### Export")
@@ -252,47 +258,53 @@ def export_section(good: dict[str, Any] | None, use_data: Callable[..., None]) -
             st.caption(plain(note))
 
         st.markdown("##### Report")
-        if not good:
-            return
-        saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
-        spec = good["spec"]
-        ppml = spec.get("estimator") == "ppml"
-        with_sweep = st.checkbox(
-            "Include every combination of forms",
-            key=keys.REPORT_SWEEP,
-            disabled=ppml,
-            help="Adds the Forms view's comparison: the focus effect under every plausible combination of transforms."
-            + (" Not available with PPML." if ppml else ""),
+        if good:
+            report_section(good, column_cache)
+
+
+def report_section(good: dict[str, Any], column_cache: Callable[[str], core.ColumnCache] | None) -> None:
+    """The report: what it includes, Prepare (a job on its worker thread), its progress, the download."""
+    ss = st.session_state
+    saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
+    spec = good["spec"]
+    ppml = spec.get("estimator") == "ppml"
+    with_sweep = st.checkbox(
+        "Include every combination of forms",
+        key=keys.REPORT_SWEEP,
+        disabled=ppml,
+        help="Adds the Forms view's comparison: the focus effect under every plausible combination of transforms."
+        + (" Not available with PPML." if ppml else ""),
+    )
+    if with_sweep and not ppml:
+        spec = {**spec, "sweep": spec.get("sweep") or {}}
+    key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
+    jobs.report_done()
+    running = jobs.job("report")
+    busy = running is not None and running.running
+    if st.button(
+        "Prepare the report", key="prepare_report", width="stretch", disabled=busy, help="Runs the whole analysis once."
+    ):
+        frame, data_name = good["frame"], good["data_name"]
+        columns = column_cache(good["data_id"]) if column_cache else None
+        ss[keys.REPORT_NOTE] = None
+        jobs.start("report", key, lambda progress: report_file(frame, spec, data_name, saved, progress, columns))
+    jobs.progress_box("report", "Preparing the report", "Stop preparing the report")
+    if ss.get(keys.REPORT_NOTE):
+        st.warning(ss[keys.REPORT_NOTE])
+    report = ss.get(keys.REPORT)
+    if report and report["key"] == key:
+        stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
+        st.download_button(
+            "Download the report (HTML)",
+            data=report["html"],
+            file_name=f"formwise-report-{stem}.html",
+            mime="text/html",
+            key="download_report",
+            on_click="ignore",
+            icon=":material/download:",
+            type="primary",
+            width="stretch",
         )
-        if with_sweep and not ppml:
-            spec = {**spec, "sweep": spec.get("sweep") or {}}
-        key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
-        jobs.report_done()
-        running = jobs.job("report")
-        busy = running is not None and running.running
-        if st.button(
-            "Prepare the report", key="prepare_report", width="stretch", disabled=busy, help="Runs the whole analysis once."
-        ):
-            frame, data_name = good["frame"], good["data_name"]
-            ss[keys.REPORT_NOTE] = None
-            jobs.start("report", key, lambda progress: report_file(frame, spec, data_name, saved, progress=progress))
-        jobs.progress_box("report", "Preparing the report", "Stop preparing the report")
-        if ss.get(keys.REPORT_NOTE):
-            st.warning(ss[keys.REPORT_NOTE])
-        report = ss.get(keys.REPORT)
-        if report and report["key"] == key:
-            stem = charts.file_stem(good["data_name"].rsplit(".", 1)[0], 40)
-            st.download_button(
-                "Download the report (HTML)",
-                data=report["html"],
-                file_name=f"formwise-report-{stem}.html",
-                mime="text/html",
-                key="download_report",
-                on_click="ignore",
-                icon=":material/download:",
-                type="primary",
-                width="stretch",
-            )
-            st.caption("One self-contained file: no script, nothing fetched from the network.")
-        elif report:
-            st.caption("The model changed since the report was prepared; prepare it again.")
+        st.caption("One self-contained file: no script, nothing fetched from the network.")
+    elif report:
+        st.caption("The model changed since the report was prepared; prepare it again.")

@@ -408,7 +408,7 @@ def _page() -> None:
             )
     if good:
         show_results(good)
-    exports.export_section(good, use_data)
+    exports.export_section(good, use_data, context.column_cache)
 
 
 main()

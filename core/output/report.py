@@ -22,6 +22,7 @@ from matplotlib.figure import Figure
 
 from core.analysis import analyze
 from core.errors import FormwiseError
+from core.model.design import ColumnCache
 from core.model.transforms import parse_transform
 from core.output import figures, forms, numbers, theme
 from core.output.numbers import format_cell
@@ -189,15 +190,18 @@ def build_report(
     data_name: str,
     saved: dict[str, dict[str, Any]] | None = None,
     progress: ReportProgress = None,
+    columns: ColumnCache | None = None,
 ) -> str:
     """The whole report as one HTML string.
 
     ``progress`` is called with the share done and the stage running (``STAGE_ANALYSIS``,
     "Drawing the charts (3 of 19)", the saved models, ``STAGE_WRITING``); when it returns False
-    the report stops with ``FormwiseError`` and nothing is returned."""
+    the report stops with ``FormwiseError`` and nothing is returned. ``columns``: the caller's
+    ``ColumnCache`` for this table, so the report's fits reuse columns already transformed.
+    """
     told = _Told(progress)
     told(0.0, STAGE_ANALYSIS)
-    result = analyze(data, spec, progress=told.span(0.0, _ANALYSIS_SHARE, STAGE_ANALYSIS))
+    result = analyze(data, spec, columns=columns, progress=told.span(0.0, _ANALYSIS_SHARE, STAGE_ANALYSIS))
     n_coefficients = len(result.get("terms", [])) or 1
     charts = _charts(result, spec, told)
     comparison = None
@@ -206,7 +210,7 @@ def build_report(
         start = _ANALYSIS_SHARE + _CHARTS_SHARE
         for i, (name, s) in enumerate(saved.items()):
             told(start + _SAVED_SHARE * i / len(saved), f"Fitting the saved models ({i + 1} of {len(saved)})")
-            compared[name] = analyze(data, s, parts={"fit", "effects", "diagnostics"})
+            compared[name] = analyze(data, s, parts={"fit", "effects", "diagnostics"}, columns=columns)
         comparison = comparison_table(compared)
     told(_ANALYSIS_SHARE + _CHARTS_SHARE + _SAVED_SHARE, STAGE_WRITING)
     reference = [(str(k), v if isinstance(v, str) else format_cell(v)) for k, v in result["reference_point"].items()]
