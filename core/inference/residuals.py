@@ -13,6 +13,7 @@ import pandas as pd
 from scipy import stats
 
 from core.inference.choices import numeric_or_none
+from core.inference.diagnostics import sample_rows
 from core.inference.shape import skewness
 from core.model.covariance import leverage
 from core.model.design import Design
@@ -114,7 +115,7 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, s
     n = len(u)
     rows = np.arange(n)
     if n > limit:
-        rows = np.sort(np.random.default_rng(seed).choice(n, size=limit, replace=False))
+        rows = sample_rows(n, limit, seed)
     q10, q25, q75, q90 = np.percentile(u, [10, 25, 75, 90])
     order = np.argsort(fit.fitted, kind="stable")
     return {
