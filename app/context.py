@@ -51,14 +51,14 @@ def level_names(data_id: str, column: str, _frame: pd.DataFrame) -> list[str]:
     return sorted((str(n) for n in names), key=lambda n: (0, float(n), n) if _is_number(n) else (1, 0.0, n))
 
 
+CATEGORY_LEVELS_SHOWN = 12  # levels named under the grid per category regressor
+
+
 @st.cache_data(max_entries=32, show_spinner=False)
 def frequent_levels(data_id: str, column: str, _frame: pd.DataFrame) -> list[str]:
     """``gridspec.frequent_levels`` once per table and column: on every rerun it would count a
     million text cells again (40 ms)."""
     return gridspec.frequent_levels(_frame[column], CATEGORY_LEVELS_SHOWN)
-
-
-CATEGORY_LEVELS_SHOWN = 12
 
 
 def levels_caption(data: dict[str, Any], grid: pd.DataFrame) -> None:
@@ -146,9 +146,7 @@ class Context:
         frame, columns, wanted = self.frame, column_cache(self.data_id), set(parts)
 
         def work(progress: jobs.Progress) -> dict[str, Any]:
-            return core.analyze(
-                frame, chosen, parts=wanted, columns=columns, progress=lambda share: progress(share, what.lower())
-            )
+            return core.analyze(frame, chosen, parts=wanted, columns=columns, progress=lambda share: progress(share, ""))
 
         return jobs.view_result(name, (self.data_id, spec_json(chosen), tuple(sorted(wanted))), work, what)
 
