@@ -452,6 +452,7 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
     level_map, log_map = np.ascontiguousarray(resid_map[:, :n_level]), np.ascontiguousarray(resid_map[:, n_level:])
     root_w = shift.root_w
     y_raw = setup.design.y_raw
+
     def one(block: np.ndarray, start: int, stop: int) -> np.ndarray:
         out = np.zeros((4, m))  # Σ(u·s)², then Σv, Σv², Σyv (Σe, Σe², Σye for level kinds)
         for lo in range(0, stop - start, _SUB_ROWS):
