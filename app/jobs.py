@@ -23,7 +23,8 @@ import core
 from app import keys
 from core.output.escape import plain
 
-POLL_SECONDS = 0.5
+# The finished work shows at most this long after it ends; a poll redraws only the progress box.
+POLL_SECONDS = 0.25
 # Above this many rows the residual checks and the forms sweep run as a job (a second or more
 # at 1,000,000 rows on 2 cores); below it they are quicker than the progress box would be.
 JOB_MIN_ROWS = 200_000

@@ -6,7 +6,6 @@ defaults, wording) live in ``app.gridspec`` (the grid) and ``core.output.text`` 
 
 from __future__ import annotations
 
-import hashlib
 import json
 import sys
 from contextlib import nullcontext
@@ -116,6 +115,7 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = too_big, seen
         return
     raw = upload.getvalue()
+    digest = intake.digest_meanwhile(raw)
     box, stage = upload_progress.start(upload.name)
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet, stage)
@@ -136,7 +136,7 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_SEEN] = seen
         return
     ss[keys.UPLOAD_SEEN] = seen
-    data_id = f"upload:{upload.name}:{sheet or ''}:{hashlib.sha256(raw).hexdigest()[:16]}"
+    data_id = f"upload:{upload.name}:{sheet or ''}:{digest()}"
     use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile, advice)
     stage("fitting")
     ss[keys.JUST_LOADED] = len(frame)
