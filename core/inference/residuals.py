@@ -24,8 +24,10 @@ from core.model.transforms import parse_transform, variable_label
 # Largest number of points any chart sends to the browser (docs/contract.md §6).
 MAX_POINTS = 20_000
 # Dots behind the residual checks' bands (which use every row): three charts of 20,000 dots each
-# took the browser about 3 s to draw at 1,000,000 rows; 5,000 show the same cloud.
-RESIDUAL_POINTS = 5_000
+# took the browser about 3 s to draw at 1,000,000 rows; with 5,000 a redraw of the view took
+# 1.03 s and with 2,500 0.71 s (bench/browser.py's table, one run each), and the bands carry
+# the shape either way.
+RESIDUAL_POINTS = 2_500
 
 
 # --- residual checks -----------------------------------------------------------------------------------
