@@ -62,7 +62,11 @@ def read_upload(
     # Header cells such as 2024 can arrive as numbers; the grid and the spec name columns as text.
     frame = frame.rename(columns=str)
     say("profiling")
-    return frame, notes, profile_table(frame, notes, boxcox=False)
+    profile = profile_table(frame, notes, boxcox=False)
+    # The reader's facts on each column now live in the profile; left on the frame, pandas would
+    # deep-copy them into every column taken from it, at every refit.
+    frame.attrs = {}
+    return frame, notes, profile
 
 
 def digest_meanwhile(raw: bytes) -> Callable[[], str]:
@@ -90,17 +94,23 @@ def sheet_names(raw: bytes) -> list[str]:
 
 
 @st.cache_data(max_entries=8, show_spinner="Choosing a starting model…")
-def starting_model(_frame: pd.DataFrame, profile: dict[str, Any]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+def starting_model(
+    _frame: pd.DataFrame, profile: dict[str, Any], _columns: core.ColumnCache | None = None
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     """The advisor's starting model for a new table and its notes (``core.suggest_with_notes``),
-    cached on the table's profile (the frame itself is not hashed)."""
-    return suggest_with_notes(_frame, profile)
+    cached on the table's profile (the frame itself is not hashed). ``_columns`` (the table's
+    column cache) keeps what the advisor's trial fits converted and transformed for the first
+    refit."""
+    return suggest_with_notes(_frame, profile, _columns)
 
 
-def starting_model_or_none(frame: pd.DataFrame, profile: dict[str, Any]) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+def starting_model_or_none(
+    frame: pd.DataFrame, profile: dict[str, Any], columns: core.ColumnCache | None = None
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     """The starting model, or, for a table no model can be fitted to, an empty grid with the
     advisor's reason as its one note (the table is still shown, so the user sees why)."""
     try:
-        return starting_model(frame, profile)
+        return starting_model(frame, profile, columns)
     except core.DataError as exc:
         return {"outcome": {}, "regressors": []}, [{"column": None, "about": "no_model", "text": str(exc)}]
 

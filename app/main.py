@@ -120,7 +120,8 @@ def take_upload(upload: Any) -> None:
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet, stage)
         stage("choosing")
-        spec, advice = intake.starting_model_or_none(frame, profile)
+        data_id = f"upload:{upload.name}:{sheet or ''}:{digest()}"
+        spec, advice = intake.starting_model_or_none(frame, profile, context.column_cache(data_id))
     except (core.FormwiseError, GridError) as exc:
         box.update(label=f"Could not load {upload.name}", state="error", expanded=False)
         # Most reader messages name the file already; say it once.
@@ -136,7 +137,6 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_SEEN] = seen
         return
     ss[keys.UPLOAD_SEEN] = seen
-    data_id = f"upload:{upload.name}:{sheet or ''}:{digest()}"
     use_data(data_id, upload.name + (f" · sheet {sheet}" if sheet else ""), frame, spec, notes, profile, advice)
     stage("fitting")
     ss[keys.JUST_LOADED] = len(frame)

@@ -139,7 +139,9 @@ def suggest(data: pd.DataFrame, profile: dict[str, Any] | None = None) -> dict[s
     return suggest_with_notes(data, profile)[0]
 
 
-def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None) -> tuple[dict[str, Any], list[Note]]:
+def suggest_with_notes(
+    data: pd.DataFrame, profile: dict[str, Any] | None = None, columns: ColumnCache | None = None
+) -> tuple[dict[str, Any], list[Note]]:
     """A starting model for ``data`` and a note for each choice made.
 
     ``profile`` is the table's ``profile_table`` (computed here when left out). Returns
@@ -148,16 +150,20 @@ def suggest_with_notes(data: pd.DataFrame, profile: dict[str, Any] | None = None
     ``covariance``, ``cluster``, ``weights`` and ``at``, and ``core.analyze`` fits it; each note
     is ``{"column": name or None, "about": "outcome" | "estimator" | "left_out" | "quadratic" |
     "removed" | "limit" | "cluster" | "absorb", "text": plain words}``. Raises ``DataError`` when the
-    table has fewer than two columns a model can use.
+    table has fewer than two columns a model can use. ``columns``, a ``ColumnCache`` for this
+    table, keeps what the trial fits convert and transform for the caller's later fits (used
+    only when ``data`` has no ``attrs``: a table with them is worked on as a copy without).
     """
     if not isinstance(data, pd.DataFrame):
         raise DataError("the data must be a table (a pandas DataFrame).")
     if profile is None:
         profile = profile_table(data, [], boxcox=False)  # the advice does not read the column Box-Cox
-    # Without attrs: pandas deep-copies them (the reader's notes) into every column taken.
-    data = data.copy(deep=False)
-    data.attrs = {}
-    table = _read(data, profile)
+    if data.attrs:
+        # Without attrs: pandas deep-copies them (the reader's notes) into every column taken.
+        data = data.copy(deep=False)
+        data.attrs = {}
+        columns = None
+    table = _read(data, profile, columns)
     usable = _usable(table)
     candidates = [c for c in table.names if c in table.values and (table.entries[c].get("n_distinct") or 0) >= 3]
     sources = [c for c in candidates if c in usable or set(table.entries[c].get("flags") or []) & {"time_index", "calendar_year"}]
@@ -220,7 +226,7 @@ def _squares(relation: Relation) -> bool:
     return relation.how in ("square", "square_affine")
 
 
-def _read(data: pd.DataFrame, profile: dict[str, Any]) -> _Table:
+def _read(data: pd.DataFrame, profile: dict[str, Any], columns: ColumnCache | None = None) -> _Table:
     entries = {str(e["column"]): e for e in profile.get("columns") or []}
     names = [c for c in data.columns if isinstance(c, str) and c in entries]
     values = {}
@@ -231,7 +237,7 @@ def _read(data: pd.DataFrame, profile: dict[str, Any]) -> _Table:
         ):
             x = series.astype(float).to_numpy(dtype=float, na_value=np.nan)
             values[column] = np.where(np.isfinite(x), x, np.nan)
-    return _Table(data, entries, values, names, len(data))
+    return _Table(data, entries, values, names, len(data), columns=columns if columns is not None else ColumnCache())
 
 
 def _usable(table: _Table) -> list[str]:
