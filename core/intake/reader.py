@@ -40,6 +40,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
 
 from core.errors import DataError
 
@@ -1263,11 +1264,9 @@ def _clean_column(
     codes, uniques = coded if coded is not None else pd.factorize(series.to_numpy(dtype=object), use_na_sentinel=True)
     cells = [_parse_cell(u, decimal) for u in uniques]
     counts = np.bincount(codes[codes >= 0], minlength=len(cells))
-    status = np.array([c.status for c in cells] + ["missing"], dtype=object)  # index -1: NaN cells
-    per_row = status[codes]
-    n_number = int((per_row == "number").sum())
-    n_text = int((per_row == "text").sum())
-    n_date = int((per_row == "date").sum())
+    # Rows per status from the distinct values' counts: no per-row array of a million objects.
+    status = np.array([c.status for c in cells], dtype=object)
+    n_number, n_text, n_date = (int(counts[status == s].sum()) if len(cells) else 0 for s in ("number", "text", "date"))
     notes: list[str] = []
     facts = _Column()
 
@@ -1312,15 +1311,14 @@ def _clean_column(
         return pd.to_datetime(series, errors="coerce"), notes, facts
 
     # Some cells are text: the column stays text, with the converter's reading of each cell.
-    shown = np.array([_as_text(u, c) for u, c in zip(uniques, cells, strict=True)] + [None], dtype=object)
-    out = shown[codes]
+    shown = [_as_text(u, c) for u, c in zip(uniques, cells, strict=True)]
     trimmed = sum(
         int(counts[i]) for i, u in enumerate(uniques) if isinstance(u, str) and cells[i].status != "missing" and u != u.strip()
     )
     if trimmed:
         notes.append(f"{column}: removed spaces around the text in {trimmed:,} cell{'s' if trimmed > 1 else ''}.")
     if n_number >= n_text:
-        rows = np.flatnonzero(per_row == "text")
+        rows = np.flatnonzero(np.isin(codes, np.flatnonzero(status == "text")))
         facts.mixed_rows = [int(r) + 1 for r in rows[:20]]
         listed = ", ".join(str(r + 1) for r in rows[:8]) + (f" and {len(rows) - 8:,} more" if len(rows) > 8 else "")
         notes.append(
@@ -1328,7 +1326,22 @@ def _clean_column(
             f"hold{'s' if len(rows) == 1 else ''} text ({examples(lambda c: c.status == 'text')}); it stays text. "
             "Fix or blank those cells to use it as a number."
         )
-    return pd.Series(out, dtype=object).infer_objects(), notes, facts
+    return _text_series(shown, codes), notes, facts
+
+
+# The dtype pandas gives a column of text: its arrow-backed string type from pandas 3, object before.
+_TEXT_DTYPE = pd.Series(np.array(["text"], dtype=object)).infer_objects().dtype
+
+
+def _text_series(shown: list[str | None], codes: np.ndarray) -> pd.Series:
+    """The column of text with each row's value ``shown[code]`` (missing for code -1 or None),
+    as pandas would infer it from those objects. With an arrow-backed string type it is built by
+    arrow's take, without a million Python objects: 13 ms instead of 166 ms for a million rows
+    of four levels."""
+    if _TEXT_DTYPE == object:
+        return pd.Series(np.array([*shown, None], dtype=object)[codes], dtype=object).infer_objects()
+    taken = pa.array(shown, type=pa.large_string()).take(pa.array(codes, mask=codes < 0))
+    return pd.Series(pd.array(taken, dtype=_TEXT_DTYPE))
 
 
 def _as_text(raw: Any, cell: _Cell) -> str | None:
