@@ -370,3 +370,17 @@ def test_formatted_amounts_come_back_as_their_numbers(amounts: list[float], styl
     writer.writerows([i, c] for i, c in enumerate(cells))
     frame = read_table(buffer.getvalue().encode("utf-8"), name="amounts.csv")
     assert frame["amount"].astype(float).tolist() == [float(f"{a:.2f}") for a in amounts]
+
+
+def test_text_series_by_arrow_take_equals_the_object_path(monkeypatch) -> None:
+    # The arrow-built column (pandas 3's string type) and the object path kept for pandas 2 give
+    # the same cells, missing ones (code -1, or a distinct value read as missing) included.
+    from core.intake import reader
+
+    codes = np.array([0, 2, -1, 1, 0, 3, 2])
+    shown = ["Coast", None, "North", "South"]
+    fast = reader._text_series(shown, codes)
+    monkeypatch.setattr(reader, "_TEXT_DTYPE", np.dtype(object))
+    slow = reader._text_series(shown, codes)
+    assert fast.tolist()[:2] == ["Coast", "North"] and fast.isna().tolist() == [False, False, True, True, False, False, False]
+    assert [None if pd.isna(v) else v for v in fast] == [None if pd.isna(v) else v for v in slow]
