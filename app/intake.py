@@ -17,11 +17,9 @@ Markdown, or escaped for figures.
 
 from __future__ import annotations
 
-import hashlib
 import io
 import math
 import os
-import threading
 from collections.abc import Callable, Mapping
 from typing import Any
 
@@ -67,22 +65,6 @@ def read_upload(
     # deep-copy them into every column taken from it, at every refit.
     frame.attrs = {}
     return frame, notes, profile
-
-
-def digest_meanwhile(raw: bytes) -> Callable[[], str]:
-    """A function giving the first 16 hex digits of the file's SHA-256 (the table's identity for
-    the result caches), computed on a thread while the file is read: hashlib releases the
-    interpreter on large inputs, so the 0.12 s it takes on a 170 MB file runs beside the reading
-    instead of after it."""
-    found: list[str] = []
-    thread = threading.Thread(target=lambda: found.append(hashlib.sha256(raw).hexdigest()[:16]), daemon=True)
-    thread.start()
-
-    def digest() -> str:
-        thread.join()
-        return found[0]
-
-    return digest
 
 
 def sheet_names(raw: bytes) -> list[str]:

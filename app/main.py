@@ -115,7 +115,7 @@ def take_upload(upload: Any) -> None:
         ss[keys.UPLOAD_ERROR], ss[keys.UPLOAD_SEEN] = too_big, seen
         return
     raw = upload.getvalue()
-    digest = intake.digest_meanwhile(raw)
+    digest = upload_progress.digest_meanwhile(raw)
     box, stage = upload_progress.start(upload.name)
     try:
         frame, notes, profile = intake.read_upload(raw, upload.name, sheet, stage)

@@ -1,8 +1,10 @@
-"""The status box shown while an upload is taken in: the stage running, the stages done and the
-time so far (reading, profiling, choosing a starting model, fitting it)."""
+"""Taking in an upload: the status box shown meanwhile (the stage running, the stages done and the
+time so far: reading, profiling, choosing a starting model, fitting it), and the file's digest."""
 
 from __future__ import annotations
 
+import hashlib
+import threading
 import time
 from collections.abc import Callable
 from typing import Any
@@ -33,3 +35,19 @@ def start(name: str) -> tuple[Any, Callable[[str], None]]:
         box.update(label=f"Loading {name}: {UPLOAD_STAGES[key].lower()}…")
 
     return box, stage
+
+
+def digest_meanwhile(raw: bytes) -> Callable[[], str]:
+    """A function giving the first 16 hex digits of the file's SHA-256 (the table's identity for
+    the result caches), computed on a thread while the file is read: hashlib releases the
+    interpreter on large inputs, so the 0.12 s it takes on a 170 MB file runs beside the reading
+    instead of after it."""
+    found: list[str] = []
+    thread = threading.Thread(target=lambda: found.append(hashlib.sha256(raw).hexdigest()[:16]), daemon=True)
+    thread.start()
+
+    def digest() -> str:
+        thread.join()
+        return found[0]
+
+    return digest
