@@ -314,3 +314,30 @@ def test_column_boxcox_is_scipys(demo_profile: dict) -> None:
     # The profile divides by the geometric mean first (λ̂ is scale-free); the rest is rounding.
     assert found["lambda"] == pytest.approx(lam, abs=1e-6)
     assert (found["ci_low"], found["ci_high"]) == pytest.approx((low, high), abs=1e-6)
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(
+        st.one_of(st.integers(-5, 5).map(float), st.floats(-1e300, 1e300, allow_nan=False, allow_infinity=False)),
+        min_size=1,
+        max_size=200,
+    )
+)
+def test_histogram_from_the_sorted_values_is_numpys(values: list[float]) -> None:
+    # numpy.histogram is the reference: its edges, and its counts (values on an inner edge go to
+    # the bin on their right, the maximum to the last bin).
+    from core.intake.profile import HISTOGRAM_BINS, _histogram
+
+    x = np.array(values)
+    got = _histogram(np.sort(x))
+    try:
+        with np.errstate(all="ignore"):
+            counts, edges = np.histogram(x, bins=HISTOGRAM_BINS)
+    except ValueError:  # a range too narrow for 20 finite bins at the values' size
+        assert got is None
+        return
+    if not np.isfinite(edges).all():
+        assert got is None
+    else:
+        assert got == {"edges": [float(e) for e in edges], "counts": [int(c) for c in counts]}

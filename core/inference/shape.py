@@ -6,7 +6,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
 
 
 def skewness(values: np.ndarray) -> float | None:
@@ -24,9 +23,15 @@ def skewness(values: np.ndarray) -> float | None:
     if scale == 0:
         return None
     with np.errstate(all="ignore"):
-        scaled = values / scale
-        spread = float(np.std(scaled))
+        centred = values / scale
+        centred -= centred.mean()
+        squares = centred * centred
+        m2 = float(squares.sum()) / n
+        spread = math.sqrt(m2) if m2 >= 0 else math.nan
         if not math.isfinite(spread) or spread <= 1e-12:
             return None
-        value = float(stats.skew(scaled, bias=False))
+        # scipy.stats.skew(bias=False)'s formula, the moments as sums and one dot product (a
+        # third of its time on a million values; the test suite checks the two agree).
+        m3 = float(np.dot(squares, centred)) / n
+        value = m3 / m2**1.5 * math.sqrt(n * (n - 1.0)) / (n - 2.0)
     return value if math.isfinite(value) else None
