@@ -1,5 +1,5 @@
 """The sweep's figure: the focus effect of every model, smallest to largest, with its interval,
-and beneath it the form each variable took in that model (one row of dots per variable)."""
+and beneath it the form each variable took in that model (one row of cells per variable)."""
 
 from __future__ import annotations
 
@@ -24,29 +24,44 @@ def _whiskers(models: list[dict[str, Any]], pct: list[Any]) -> dict[str, Any]:
 
 
 def _strip(fig: go.Figure, models: list[dict[str, Any]], varying: list[str]) -> None:
-    """Beneath the effects: one row per variable, a square per model in the colour of its form."""
-    seen: set[str] = set()
-    for code, colour in FORM_COLOURS.items():
-        xs, ys = [], []
-        for i, m in enumerate(models):
-            for column in varying:
-                if m["transforms"][column] == code:
-                    xs.append(i + 1)
-                    ys.append(column)
-        if xs:
-            fig.add_trace(
-                go.Scatter(
-                    x=xs,
-                    y=ys,
-                    mode="markers",
-                    marker={"color": colour, "size": 8, "symbol": "square"},
-                    name=code,
-                    showlegend=code not in seen,
-                ),
-                row=2,
-                col=1,
-            )
-            seen.add(code)
+    """Beneath the effects: one row per variable, a cell per model in the colour of its form.
+
+    One heatmap, not a marker per model and variable: with 512 models and nine variables the
+    markers were 4,608 shapes for the browser to lay out and paint, and redrawing the view at
+    1,000,000 rows took 0.96 to 1.0 s against 0.65 to 0.67 s with the heatmap (two runs each).
+    The legend names each form shown through an empty marker trace of its colour."""
+    codes = [c for c in FORM_COLOURS if any(m["transforms"][v] == c for m in models for v in varying)]
+    if not codes:
+        return
+    index = {c: i for i, c in enumerate(codes)}
+    steps = len(codes)
+    scale = [[edge / steps, FORM_COLOURS[c]] for i, c in enumerate(codes) for edge in (i, i + 1)]
+    fig.add_trace(
+        go.Heatmap(
+            x=list(range(1, len(models) + 1)),
+            y=varying,
+            z=[[index.get(m["transforms"][v]) for m in models] for v in varying],
+            customdata=[[m["transforms"][v] for m in models] for v in varying],
+            zmin=-0.5,
+            zmax=steps - 0.5,
+            colorscale=scale,
+            showscale=False,
+            xgap=1 if len(models) <= 128 else 0,
+            ygap=_ROW_PX - 8,
+            hovertemplate="model %{x}: %{y} %{customdata}<extra></extra>",
+            name="forms",
+        ),
+        row=2,
+        col=1,
+    )
+    for code in codes:
+        fig.add_trace(
+            go.Scatter(
+                x=[None], y=[None], mode="markers", marker={"color": FORM_COLOURS[code], "size": 8, "symbol": "square"}, name=code
+            ),
+            row=2,
+            col=1,
+        )
 
 
 def sweep_figure(sweep: dict[str, Any], current: dict[str, str], varying: list[str]) -> go.Figure:
