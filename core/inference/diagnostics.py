@@ -333,9 +333,10 @@ def vif(X: np.ndarray, names: list[str], scales: Scales | None = None) -> list[d
     return [{"name": names[i + 1], "vif": float(inverse[i, i])} for i in range(k - 1)]
 
 
-def influence(design: Design, fit: OLSFit) -> dict[str, Any]:
+def influence(design: Design, fit: OLSFit, h: np.ndarray | None = None) -> dict[str, Any]:
+    """Cook's distances and leverage; ``h``, the rows' leverage, when the caller has it."""
     u = fit.resid if fit.weights is None else fit.resid * np.sqrt(fit.weights)
-    h = leverage(design.X, fit.xtx_inv, fit.weights)
+    h = leverage(design.X, fit.xtx_inv, fit.weights) if h is None else h
     s2 = fit.sigma**2
     with np.errstate(divide="ignore", invalid="ignore"):
         cooks = u * u * h / (fit.k * s2 * (1.0 - h) ** 2)
@@ -366,7 +367,7 @@ def influence(design: Design, fit: OLSFit) -> dict[str, Any]:
     }
 
 
-def diagnostics(design: Design, fit: OLSFit) -> dict[str, Any]:
+def diagnostics(design: Design, fit: OLSFit, h: np.ndarray | None = None) -> dict[str, Any]:
     # The weights and the residuals at unit size: every test is unchanged by their scale, and
     # weights or outcomes on 1e±300 scales would otherwise overflow or vanish in the squares.
     root_w = _unit_size(np.sqrt(fit.weights)) if fit.weights is not None else None
@@ -386,5 +387,5 @@ def diagnostics(design: Design, fit: OLSFit) -> dict[str, Any]:
         "jarque_bera": jarque_bera(u),
         "reset": _reset_test(_explained(gram, zu)[0], float(u @ u), n, k),
         "vif": vif(X, names, scales),
-        "influence": influence(design, fit),
+        "influence": influence(design, fit, h),
     }

@@ -106,7 +106,9 @@ def _stable_order(x: np.ndarray) -> np.ndarray:
     return order if not (ordered[1:] == ordered[:-1]).any() else np.argsort(x, kind="stable")
 
 
-def residual_sample(design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, seed: int = 0) -> dict[str, Any]:
+def residual_sample(
+    design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, seed: int = 0, h: np.ndarray | None = None
+) -> dict[str, Any]:
     """What the residual checks draw: a sample of at most ``limit`` rows (fitted value and
     residual), and from every row the spread and the mean residual in bands of fitted values and
     the tails of the standardised residuals (least squares only: PPML's residuals are not meant
@@ -114,14 +116,16 @@ def residual_sample(design: Design, fit: OLSFit, limit: int = RESIDUAL_POINTS, s
 
     Standardised residuals are internally studentised, eᵢ / (s·sqrt(1 − hᵢ)) (Cook & Weisberg
     1982, Residuals and Influence in Regression, §2.2.1), with weights applied as in core.
+    ``h``, the rows' leverage (``core.model.covariance.leverage`` with the weights), when the
+    caller has it.
     """
     # Room for the bands drawn with the dots (two outlines of six points and a median per band),
     # so a chart stays within ``limit`` points.
     limit = max(limit - 200, 10)
     root_w = np.sqrt(fit.weights) if fit.weights is not None else None
     u = fit.resid * root_w if root_w is not None else fit.resid
-    X = design.X * root_w[:, None] if root_w is not None else design.X
-    h = leverage(X, fit.xtx_inv)
+    if h is None:
+        h = leverage(design.X, fit.xtx_inv, fit.weights)
     if design.absorbed is not None:
         h = h + design.absorbed.leverage(fit.weights)
     h = np.clip(h, 0.0, 1.0 - 1e-12)
