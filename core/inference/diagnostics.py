@@ -160,11 +160,9 @@ def _shifted(X: np.ndarray, root_w: np.ndarray | None, scales: Scales | None = N
     return rows
 
 
-def breusch_pagan(
-    u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None, scales: Scales | None = None
-) -> dict[str, float]:
+def breusch_pagan(u: np.ndarray, X: np.ndarray, root_w: np.ndarray | None = None) -> dict[str, float]:
     """Studentized Breusch-Pagan test; ``u`` the (weighted) residuals, X the unweighted design."""
-    r2, rank = _r2(u * u, X.shape[1], _shifted(X, root_w, scales))
+    r2, rank = _r2(u * u, X.shape[1], _shifted(X, root_w))
     return _chi2(len(u) * r2, rank - 1)
 
 
@@ -259,16 +257,14 @@ def jarque_bera(u: np.ndarray) -> dict[str, float]:
     return {"statistic": statistic, "p_value": float(stats.chi2.sf(statistic, 2)), "skewness": skew, "kurtosis": kurt}
 
 
-def reset(
-    u: np.ndarray, X: np.ndarray, fitted: np.ndarray, ssr: float, root_w: np.ndarray | None, scales: Scales | None = None
-) -> dict[str, float]:
+def reset(u: np.ndarray, X: np.ndarray, fitted: np.ndarray, ssr: float, root_w: np.ndarray | None) -> dict[str, float]:
     """RESET F test; ``u`` the (weighted) residuals, X the unweighted design, ``ssr`` = u'u.
 
     u is orthogonal to the weighted regressors, so regressing y or u on them and the powers
     gives the same residual: SSR_full = u'u - u'Z(Z'Z)⁺Z'u, and SSR - SSR_full is the
     projection itself."""
     n, k = X.shape
-    explained, _ = _projection(u, k + 2, _reset_columns(X, fitted, root_w, scales))
+    explained, _ = _projection(u, k + 2, _reset_columns(X, fitted, root_w, None))
     return _reset_test(explained, ssr, n, k)
 
 
