@@ -436,9 +436,11 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
 
     Per sub-block of rows, three matrix products give every model's weighted residuals
     u = sqrt(w)·e (level kinds and log kinds as two contiguous arrays) and the focus effect's
-    projected rows s; Σ(u·s)² is the HC0 variance. The original-scale prediction is y - e for a
-    level kind, so its sums (Σv, Σv², Σyv) follow from Σe, Σe², Σye with no array of its own;
-    a log kind's is proportional to y·exp(-e), formed in place."""
+    projected rows s; Σ(u·s)² is the HC0 variance. A log kind's original-scale prediction is
+    proportional to v = y·exp(-e): with E = exp(-e) formed in place, Σv and Σyv are one product
+    [y, y²]'E and Σv² is (y²)'(E∘E). A level kind's prediction is y - e, so its sums (Σv, Σv²,
+    Σyv) follow from Σe, Σe², Σye; unweighted, those are known without the pass (Σe = 0 with an
+    intercept, Σe² the SSR, Σye = Σe² as e is orthogonal to ŷ), so the pass only forms u·s."""
     fits = sorted(fits, key=lambda f: f.model.kind == "log")  # level kinds first, then log kinds
     q, m = setup.S.shape[1], len(fits)
     n_level = sum(f.model.kind == "level" for f in fits)
@@ -449,9 +451,11 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
         resid_map[fit.cols, i] -= fit.gamma
         if fit.projection is not None:
             proj_map[fit.cols, i] = fit.projection
-    level_map, log_map = np.ascontiguousarray(resid_map[:, :n_level]), np.ascontiguousarray(resid_map[:, n_level:])
+    # The log kinds' map negated: their products are -u, and exp(-e) is then formed in place.
+    level_map, log_map = np.ascontiguousarray(resid_map[:, :n_level]), -np.ascontiguousarray(resid_map[:, n_level:])
     root_w = shift.root_w
     y_raw = setup.design.y_raw
+    level_sums = root_w is not None  # weighted: Σe, Σe², Σye of the level kinds from the pass
 
     def one(block: np.ndarray, start: int, stop: int) -> np.ndarray:
         out = np.zeros((4, m))  # Σ(u·s)², then Σv, Σv², Σyv (Σe, Σe², Σye for level kinds)
@@ -459,28 +463,32 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
             rows = block[lo : lo + _SUB_ROWS]
             y = y_raw[start + lo : start + lo + len(rows)]
             # np.dot, not @: it releases the GIL, so both threads multiply at once.
-            parts = (np.dot(rows, level_map), np.dot(rows, log_map))
+            level, logs = np.dot(rows, level_map), np.dot(rows, log_map)
             s = np.dot(rows, proj_map)
-            s[:, :n_level] *= parts[0]
-            s[:, n_level:] *= parts[1]
+            s[:, :n_level] *= level
+            s[:, n_level:] *= logs
             out[0] += np.einsum("ij,ij->j", s, s)
             if root_w is not None:
                 weight = root_w[start + lo : start + lo + len(rows), None]
-                for part in parts:
-                    part /= weight
-            logs = parts[1]
-            np.negative(logs, out=logs)
+                level /= weight
+                logs /= weight
+            if level_sums:
+                out[1, :n_level] += level.sum(0)
+                out[2, :n_level] += np.einsum("ij,ij->j", level, level)
+                out[3, :n_level] += np.dot(y, level)
             np.exp(logs, out=logs)
-            logs *= y[:, None]
-            for part, cols in zip(parts, (slice(0, n_level), slice(n_level, m)), strict=True):
-                out[1, cols] += part.sum(0)
-                out[2, cols] += np.einsum("ij,ij->j", part, part)
-                out[3, cols] += np.dot(y, part)
+            squares = y * y
+            out[(1, 3), n_level:] += np.dot(np.vstack((y, squares)), logs)
+            logs *= logs
+            out[2, n_level:] += np.dot(squares, logs)
         return out
 
     sums = sum(engine.map_blocks(shift, one))
     n = len(y_raw)
     ya, yy = float(y_raw.sum()), float(y_raw @ y_raw)
+    if not level_sums:
+        ssr = np.array([f.ssr for f in fits[:n_level]])
+        sums[1, :n_level], sums[2, :n_level], sums[3, :n_level] = 0.0, ssr, ssr
     se, see, sye = sums[1, :n_level].copy(), sums[2, :n_level].copy(), sums[3, :n_level].copy()
     sums[1, :n_level], sums[2, :n_level], sums[3, :n_level] = ya - se, yy - 2.0 * sye + see, yy - sye
     for i, fit in enumerate(fits):
