@@ -29,6 +29,7 @@ numbers are what ``core.analyze`` gives for its spec on those rows.
 
 from __future__ import annotations
 
+import functools
 import itertools
 from dataclasses import dataclass, replace
 from typing import Any
@@ -234,38 +235,56 @@ def _focus_change(design: Design, focus: str) -> str:
 
 
 def _columns(model_spec, design, focus, change, lists, left_out, n_left_out) -> _Setup:
-    """The wide table S: intercept, every regressor candidate's basis columns (a column two
-    candidates share, such as x in level and in quadratic, once), every outcome candidate."""
-    cols: list[np.ndarray] = [np.ones(len(design.y))]
-    choices: dict[str, list[_Choice]] = {}
+    """The wide table S: intercept, every regressor candidate's basis columns, every outcome
+    candidate (last). Each variable's candidates are written straight into S, one job per
+    variable on the passes' threads (a million-row table of 23 columns: 0.2 s gathered column
+    by column and copied, as it was). A column two candidates share, such as x in level and in
+    quadratic, is used once; its second copy stays in S, read by no model."""
+    n = len(design.y)
     outcome = model_spec.outcome_column
-    for block in design.encoder.blocks:
-        column = block.spec.column
-        found: list[_Choice] = []
-        mine: list[int] = []
+    blocks = design.encoder.blocks
+
+    def width(block: Block, transform: Transform) -> int:
+        return block.stop - block.start if block.is_category else transform.width
+
+    starts = [1]
+    for block in blocks:
+        starts.append(starts[-1] + sum(width(block, t) for t in lists[block.spec.column]))
+    S = np.empty((n, starts[-1] + len(lists[outcome])), order="F")
+
+    def variable(block: Block, at: int) -> list[_Choice]:
+        column, found, mine = block.spec.column, [], []
         for transform in lists[column]:
+            part = S[:, at : at + width(block, transform)]
             if block.is_category:
-                basis = design.X[:, block.start : block.stop]
+                part[...] = design.X[:, block.start : block.stop]
             else:
-                basis = transform.basis(design.values[column])
+                with np.errstate(all="ignore"):
+                    transform.write_basis(design.values[column], part)
             where = []
-            for j in range(basis.shape[1]):
-                same = next((i for i in mine if np.array_equal(cols[i], basis[:, j])), None)
+            for j in range(at, at + part.shape[1]):
+                same = next((i for i in mine if np.array_equal(S[:, i], S[:, j])), None)
                 if same is None:
-                    cols.append(np.ascontiguousarray(basis[:, j]))
-                    same = len(cols) - 1
-                    mine.append(same)
+                    mine.append(j)
+                    same = j
                 where.append(same)
             found.append(_Choice(column, transform, where))
-        choices[column] = found
-    outcomes = []
-    for transform in lists[outcome]:
+            at += part.shape[1]
+        return found
+
+    def outcome_column(at: int, transform: Transform) -> _Choice:
         with np.errstate(all="ignore"):
-            cols.append(np.asarray(transform.forward(design.y_raw), dtype=float))
-        outcomes.append(_Choice(outcome, transform, [len(cols) - 1]))
-    S = np.empty((len(design.y), len(cols)), order="F")
-    for j, col in enumerate(cols):
-        S[:, j] = col
+            S[:, at] = transform.forward(design.y_raw)
+        return _Choice(outcome, transform, [at])
+
+    def intercept() -> None:
+        S[:, 0] = 1.0
+
+    jobs = [intercept, *(functools.partial(variable, b, at) for b, at in zip(blocks, starts, strict=False))]
+    jobs += [functools.partial(outcome_column, starts[-1] + i, t) for i, t in enumerate(lists[outcome])]
+    done = engine.each_column(jobs, n)
+    choices = {b.spec.column: found for b, found in zip(blocks, done[1 : 1 + len(blocks)], strict=True)}
+    outcomes = done[1 + len(blocks) :]
     return _Setup(model_spec, design, focus, change, {outcome: outcomes, **choices}, S, outcomes, left_out, n_left_out)
 
 
