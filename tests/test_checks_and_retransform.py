@@ -306,3 +306,38 @@ def test_one_pass_breusch_pagan_and_reset_equal_the_tests_one_by_one() -> None:
         assert found["breusch_pagan"][key] == pytest.approx(alone_bp[key], rel=1e-10)
     for key in ("statistic", "p_value", "df_num", "df_den"):
         assert found["reset"][key] == pytest.approx(alone_reset[key], rel=1e-10)
+
+
+def _scales_column_by_column(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The checks' column scales as first written: a scaled mean, then max |x - mean|."""
+    shift, size = np.zeros(X.shape[1]), np.ones(X.shape[1])
+    for j in range(1, X.shape[1]):
+        top = float(np.max(np.abs(X[:, j])))
+        top = top if 0 < top < np.inf else 1.0
+        shift[j] = float(np.mean(X[:, j] / top)) * top
+        spread = float(np.max(np.abs(X[:, j] - shift[j])))
+        size[j] = spread if 0 < spread < np.inf else 1.0
+    return shift, size
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    hst.integers(1, 400),
+    hst.lists(hst.sampled_from([1e-300, 1e-5, 1.0, 3e4, 1e150, 1e300, 1e307]), min_size=1, max_size=4),
+    hst.integers(0, 2**32 - 1),
+)
+def test_column_scales_from_the_range_equal_the_column_by_column_scales(n: int, factors: list[float], seed: int) -> None:
+    # Invented columns on scales from 1e-300 to 1e307 (where a plain sum overflows), one
+    # constant; max|x - s| read off the smallest and largest value must be exactly the
+    # elementwise maximum (rounding is monotone).
+    from core.inference.diagnostics import _column_scales
+
+    rng = np.random.default_rng(seed)
+    columns = [np.ones(n)] + [rng.normal(2.0, 1.0, n) * f for f in factors] + [np.full(n, 7.0)]
+    X = np.column_stack(columns)
+    shift, size = _column_scales(X)
+    old_shift, _ = _scales_column_by_column(X)
+    np.testing.assert_allclose(shift, old_shift, rtol=1e-12, atol=0)
+    for j in range(1, X.shape[1]):
+        spread = float(np.max(np.abs(X[:, j] - shift[j])))
+        assert size[j] == (spread if 0 < spread < np.inf else 1.0)

@@ -32,6 +32,7 @@ weighted rows are scaled by sqrt(w) (products by w).
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable
 from typing import Any
@@ -39,9 +40,10 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+from core.model import engine
 from core.model.covariance import leverage
 from core.model.design import Design
-from core.model.ols import CHUNK_ROWS, OLSFit, row_chunks
+from core.model.ols import CHUNK_ROWS, OLSFit
 
 MAX_LISTED_ROWS = 25
 # Eigenvalues of the unit-diagonal auxiliary Gram matrix below RANK_TOLERANCE·p times the
@@ -78,14 +80,18 @@ def _cross(p: int, columns: Callable[[int, int], np.ndarray], vs: list[np.ndarra
     stop)`` makes for rows start:stop, summed over row chunks."""
     n = len(vs[0])
     rows = max(1024, _AUX_ELEMENTS // max(p, 1))
+
+    def one(start: int, stop: int) -> tuple[np.ndarray, list[np.ndarray]]:
+        chunk = columns(start, stop)
+        # np.dot, not @: it releases the GIL, so the chunks of both threads multiply at once.
+        return np.dot(chunk.T, chunk), [np.dot(chunk.T, v[start:stop]) for v in vs]
+
     gram = np.zeros((p, p))
     zvs = [np.zeros(p) for _ in vs]
-    for start in row_chunks(n, rows):
-        stop = min(start + rows, n)
-        chunk = columns(start, stop)
-        gram += chunk.T @ chunk
-        for zv, v in zip(zvs, vs, strict=True):
-            zv += chunk.T @ v[start:stop]
+    for part, products in engine.each_chunk(n, rows, one):
+        gram += part
+        for zv, product in zip(zvs, products, strict=True):
+            zv += product
     return gram, zvs
 
 
@@ -128,17 +134,29 @@ def _r2_of(v: np.ndarray, explained: float, rank: int) -> tuple[float, int]:
 
 def _column_scales(X: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Per column, the mean and the largest size after the shift (1 for the intercept and for
-    a column without spread), taken column by column so that columns on a 1e300 scale neither
-    overflow nor, on 1e-300, underflow in the cross products; every statistic here is unchanged
-    by the scale of a column."""
-    k = X.shape[1]
+    a column without spread), so that columns on a 1e300 scale neither overflow nor, on
+    1e-300, underflow in the cross products; every statistic here is unchanged by the scale of
+    a column. Each column's smallest and largest value give both sizes (rounding is monotone,
+    so max|x - s| is max(hi - s, s - lo) exactly), a column per job on the passes' threads."""
+    n, k = X.shape
     shift, size = np.zeros(k), np.ones(k)
-    for j in range(1, k):
-        top = float(np.max(np.abs(X[:, j]))) if len(X) else 0.0
+    if n == 0:
+        return shift, size
+
+    def one(j: int) -> tuple[float, float]:
+        column = X[:, j]
+        lo, hi = float(np.min(column)), float(np.max(column))
+        top = max(abs(lo), abs(hi))
         top = top if 0 < top < np.inf else 1.0
-        shift[j] = float(np.mean(X[:, j] / top)) * top
-        spread = float(np.max(np.abs(X[:, j] - shift[j]))) if len(X) else 0.0
-        size[j] = spread if 0 < spread < np.inf else 1.0
+        # The sum of n values of size top overflows past the largest double: divide first then.
+        centre = float(np.mean(column)) if top < 1e300 / n else float(np.mean(column / top)) * top
+        spread = max(hi - centre, centre - lo)
+        return centre, spread if 0 < spread < np.inf else 1.0
+
+    with np.errstate(invalid="ignore", over="ignore"):
+        found = engine.each_column([functools.partial(one, j) for j in range(1, k)], n)
+    for j, (centre, spread) in enumerate(found, start=1):
+        shift[j], size[j] = centre, spread
     return shift, size
 
 
@@ -312,10 +330,14 @@ def vif(X: np.ndarray, names: list[str], scales: Scales | None = None) -> list[d
     if k <= 2:
         return [{"name": names[i], "vif": 1.0} for i in range(1, k)]
     shift, size = scales if scales is not None else _column_scales(X)
+
+    def one(start: int, stop: int) -> np.ndarray:
+        chunk = (X[start:stop, 1:] - shift[1:]) / size[1:]
+        return np.dot(chunk.T, chunk)
+
     cross = np.zeros((k - 1, k - 1))
-    for start in row_chunks(n):
-        chunk = (X[start : start + CHUNK_ROWS, 1:] - shift[1:]) / size[1:]
-        cross += chunk.T @ chunk
+    for part in engine.each_chunk(n, CHUNK_ROWS, one):
+        cross += part
     corr = cross / (n - 1)
     sd = np.sqrt(np.diag(corr))
     corr = corr / sd[:, None] / sd[None, :]

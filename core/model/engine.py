@@ -186,6 +186,15 @@ def each_column(tasks: list[Callable[[], T]], rows: int) -> list[T]:
     return [value for _, value in outcomes]
 
 
+def each_chunk(n: int, size: int, one: Callable[[int, int], T]) -> list[T]:
+    """``one(start, stop)`` on row chunks of ``size`` rows (for passes of other modules whose
+    chunks are not the design's blocks), on the passes' threads; the results in chunk order, so
+    a caller adding them up gets sums that do not depend on the threads' timing."""
+    chunks = [(start, min(start + size, n)) for start in range(0, n, size)]
+    with single_threaded_blas:
+        return _share(len(chunks), n >= THREADED_MIN_ROWS, lambda: None, lambda _, i: one(*chunks[i]))
+
+
 def _share(jobs: int, threaded: bool, make_buffer: Callable[[], B], one: Callable[[B, int], T]) -> list[T]:
     """``one(buffer, i)`` for i in range(jobs), each thread with its own buffer; in order."""
     if THREADS == 1 or not threaded or jobs < 2:
