@@ -8,6 +8,7 @@ pure helpers (no widgets) come first and are tested without a browser.
 
 from __future__ import annotations
 
+import functools
 import json
 from collections.abc import Callable
 from typing import Any
@@ -177,7 +178,8 @@ def table_downloads(table: core_tables.Table, stem: str, key: str) -> None:
         with col:
             st.download_button(
                 words,
-                data=table_file(table, fmt),
+                # Written when clicked: three files per table on every rerun cost the page's time.
+                data=functools.partial(table_file, table, fmt),
                 file_name=f"formwise-{stem}.{extension}",
                 mime=mime,
                 key=f"download_{key}_{fmt}",
