@@ -8,7 +8,7 @@ from typing import Any
 
 import streamlit as st
 
-from app import exports, history, keys
+from app import exports, history, keys, tables
 from app.charts.sweep import sweep_figure
 from app.context import Context, chart
 from app.gridspec import spec_to_grid
@@ -16,6 +16,10 @@ from core.inference.sweep import spec_of_model
 from core.output import forms
 from core.output import tables as core_tables
 from core.output.escape import plain
+
+# The ranked models listed on screen; the table downloads hold every one. A static table reads
+# like the report and draws at once; a scrolling grid of 512 rows held the view back.
+RANKED_SHOWN = 15
 
 
 def _load(ctx: Context, spec: dict[str, Any]) -> None:
@@ -47,10 +51,15 @@ def sweep_view(ctx: Context) -> None:
         st.caption(plain(f"{sweep['n_left_out']} row(s) left out so that every form can take every row."))
     chart(sweep_figure(sweep, current, varying), "sweep_chart")
     st.markdown("**What moves the answer** — the effect under each form of each variable")
-    st.dataframe(forms.moves_table(sweep, varying), hide_index=True, use_container_width=True)
-    st.markdown("**Models ranked by AIC on the original scale**")
+    moves = forms.moves_table(sweep, varying)
+    st.table(tables.styled(moves, numbers_in=list(moves.columns[2:])), hide_index=True)
     ranked = forms.ranked_table(sweep, varying)
-    st.dataframe(ranked, hide_index=True, use_container_width=True, height=320)
+    shown = ranked.head(RANKED_SHOWN)
+    best = f"the {len(shown)} best of {len(ranked):,}" if len(ranked) > len(shown) else f"all {len(ranked):,}"
+    st.markdown(f"**Models ranked by AIC on the original scale** — {best}")
+    st.table(tables.styled(shown, numbers_in=list(ranked.columns[2:])), hide_index=True)
+    if len(ranked) > len(shown):
+        st.caption(f"The downloads below hold all {len(ranked):,} models; any of them can be loaded into the grid.")
     exports.table_downloads(core_tables.from_frame("Forms sweep ranked by AIC", ranked), "forms_sweep", "sweep_table")
     pick = st.selectbox("Model to load", ranked["Rank"].tolist(), format_func=lambda r: f"{r}. {ranked['Forms'][r - 1]}")
     if st.button("Load this model into the grid", key="sweep_load"):

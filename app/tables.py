@@ -26,7 +26,14 @@ def styled(table: pd.DataFrame, highlight_rows: list[int] | None = None, numbers
     literally (see ``literal``)."""
     extra = set(numbers_in or [])
     numbers = [plain(c) for c in table.columns if c in NUMBER_COLUMNS or c in extra]
-    style = literal(table).style.set_properties(subset=numbers, **{"text-align": "right", "white-space": "nowrap"})
+    # !important: Streamlit writes text-align: left into each text cell's own style, which an
+    # ordinary rule cannot override, and number columns hold formatted text.
+    right = {"text-align": "right !important", "white-space": "nowrap !important"}
+    style = literal(table).style.set_properties(subset=numbers, **right)
+    headings = [i for i, c in enumerate(table.columns) if plain(c) in numbers]
+    style = style.set_table_styles(
+        [{"selector": f"th.col_heading.col{i}", "props": "text-align: right !important"} for i in headings], overwrite=False
+    )
     rows = set(highlight_rows or [])
     if rows:
         style = style.apply(lambda row: [HIGHLIGHT if row.name in rows else ""] * len(row), axis=1)

@@ -3,6 +3,7 @@ model into the grid as an edit Undo takes back."""
 
 from __future__ import annotations
 
+from app.sweep_view import RANKED_SHOWN
 from tests.app_support import prepare_report, show, start
 
 
@@ -22,16 +23,23 @@ def test_the_forms_view_ranks_the_models_and_loads_one_into_the_grid() -> None:
     assert before["drink_price"] == "log"
     show(at, "Forms")
     assert any("combinations of forms" in m.value for m in at.markdown)
-    ranked = next(d.value for d in at.dataframe if "ΔAIC" in d.value.columns)
-    assert ranked["ΔAIC"].iloc[0] == "0" and len(ranked) >= 64
+    # On screen the best models by AIC in a static table; every model in the list to load.
+    ranked = next(t.value for t in at.table if "ΔAIC" in t.value.columns)
+    assert ranked["ΔAIC"].iloc[0] == "0" and len(ranked) == RANKED_SHOWN
+    assert any("all 64 models" in c.value for c in at.caption)
+    picker = next(s for s in at.selectbox if s.label == "Model to load")
+    labels = picker.options
+    assert len(labels) == 64 and labels[0].startswith("1. ")
+    assert [label.split(". ", 1)[1] for label in labels[:RANKED_SHOWN]] == [f.replace("\\", "") for f in ranked["Forms"]]
     # The best-ranked model with drink_price in level (the screen's model has it in log).
-    rank = int(next(r for r, forms in zip(ranked["Rank"], ranked["Forms"], strict=True) if "drink_price: level" in forms))
-    next(s for s in at.selectbox if s.label == "Model to load").set_value(rank).run()
+    label = next(label for label in labels if "drink_price: level" in label)
+    rank = int(label.split(". ", 1)[0])
+    picker.set_value(rank).run()
     at.button(key="sweep_load").click().run()
     assert not at.exception, at.exception
     after = _grid_transforms(at)
     assert after["drink_price"] == "level"
-    wanted = ranked["Forms"].iloc[rank - 1]
+    wanted = label.split(". ", 1)[1]
     for part in wanted.split(", "):
         column, form = part.split(": ")
         assert after[column] == form, (column, after[column], form)
