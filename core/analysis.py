@@ -75,6 +75,7 @@ class _Run:
     model: Model
     warnings: list[str]
     progress: Progress = None
+    columns: ColumnCache | None = None  # the caller's cache for this table, for the sections' own designs
     # Result entries waiting for their bootstrap intervals, with what is bootstrapped for each.
     targets: list[tuple[dict[str, Any], Target]] = field(default_factory=list)
 
@@ -119,7 +120,7 @@ def analyze(
     model_spec = parse_spec(spec, data)
     with single_threaded_blas:
         design, fit, model = fit_model(data, model_spec, columns)
-    run = _Run(data, spec, model_spec, design, fit, model, list(design.warnings), progress)
+    run = _Run(data, spec, model_spec, design, fit, model, list(design.warnings), progress, columns=columns)
     result: dict[str, Any] = {
         "n_obs": fit.n,
         "n_dropped": design.n_total - fit.n,
@@ -380,7 +381,7 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curves)}),
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curves)}),
     (frozenset({"units_check"}), _units_section),
-    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, base=r.design)}),
+    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, r.columns, base=r.design)}),
     # Last: it fills in the entries the three sections above produced.
     (frozenset({"effects", "scenarios", "predictions"}), _bootstrap_section),
 ]
