@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from typing import Any
 
+import pandas as pd
 import streamlit as st
 
 from app import charts, exports, keys, tables
@@ -91,7 +92,8 @@ def checks_view(ctx: Context) -> None:
             "numbered as in the spreadsheet (the header is row 1). Leverage measures how unusual a row's regressors "
             f"are ({influence.get('n_high_leverage', 0):,} rows above 2k/n = {sig(influence.get('high_leverage_cutoff'), 2)})."
         )
-        st.table(tables.styled(table, numbers_in=columns), hide_index=True)
+        numeric = [c for c in columns if c in ctx.frame.columns and pd.api.types.is_numeric_dtype(ctx.frame[c])]
+        st.table(tables.styled(table, numbers_in=numeric), hide_index=True)
 
 
 def _check_card(question: str, concern: bool | None, sentences: list[str], figure: Any, key: str) -> None:
