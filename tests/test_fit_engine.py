@@ -275,3 +275,31 @@ def test_the_residual_pass_writes_the_fitted_values(big):
     X, y = big
     fit = fit_ols(X, y)
     assert np.array_equal(fit.fitted, y - fit.resid)
+
+
+@pytest.mark.parametrize("weighted", [False, True])
+def test_a_design_held_as_columns_gives_the_gram_matrix_of_the_array(big, weighted):
+    # The sweep's wide table is held as separate columns (engine.ColumnShift); its blocks must
+    # be those of the array, so the augmented Gram matrix equals both the array's (same engine)
+    # and X'WX, X'Wy computed directly (numpy as reference for the matrix identity).
+    X, y = big
+    w = np.random.default_rng(3).uniform(0.5, 2.0, len(y)) if weighted else None
+    columns = tuple(np.ascontiguousarray(X[:, j]) for j in range(X.shape[1]))
+    by_columns = engine.column_shift_for(columns, y, w)
+    by_array = engine.shift_for(X, y, w)
+    np.testing.assert_allclose(by_columns.c, by_array.c, rtol=1e-13, atol=0)
+    gram = engine.gram_pass(by_columns)
+    # The two shifts can differ in their last bit (a dot product per column against one matrix
+    # product), and the Gram matrix moves with the shift at the level of its cancellation.
+    np.testing.assert_allclose(gram, engine.gram_pass(by_array), rtol=1e-10, atol=1e-9)
+    # Back from the shifted, weighted design B = sqrt(w)[1, X - c, y - c_y] to X'WX and X'Wy.
+    k = X.shape[1]
+    T = np.eye(k + 1)
+    T[0, 1:k] = by_columns.c[1:]
+    T[0, k] = by_columns.c_y
+    raw = T.T @ gram @ T
+    Z = np.column_stack([X, y])
+    weight = w if weighted else np.ones(len(y))
+    direct = Z.T @ (Z * weight[:, None])
+    np.testing.assert_allclose(raw, direct, rtol=1e-9)
+    assert by_columns.n == len(y) and by_columns.k == k

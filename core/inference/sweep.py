@@ -8,8 +8,9 @@ specification-curve idea: Simonsohn, Simmons & Nelson 2020, Nature Human Behavio
 Tuerlinckx, Gelman & Vanpaemel 2016, Perspectives on Psychological Science 11):
 
 1. The columns of every candidate of every variable (each regressor's basis columns, each
-   candidate outcome's g(y)) form one wide table S; one pass of the fit engine
-   (``core.model.engine.gram_pass``, shifted and weighted blocks) accumulates its Gram matrix.
+   candidate outcome's g(y)) form one wide table S, held as its columns (most are views of the
+   base design's); one pass of the fit engine (``core.model.engine.gram_pass`` over a
+   ``ColumnShift``, shifted and weighted blocks) accumulates its Gram matrix.
 2. A model is a set of columns of S and one outcome column: its normal equations are a
    sub-block of that Gram matrix, solved by the same Cholesky factor as ``core.model.ols``
    (coefficients, SSR, condition number), so log-likelihood, AIC and BIC on the original scale
@@ -79,7 +80,7 @@ class _Setup:
     focus: str
     change_text: str
     choices: dict[str, list[_Choice]]  # per variable (outcome first), in candidate order
-    S: np.ndarray  # every candidate column, intercept first
+    columns: tuple[np.ndarray, ...]  # S, every candidate column, intercept first (see _columns)
     outcomes: list[_Choice]
     left_out: list[dict[str, Any]]
     n_left_out: int
@@ -235,57 +236,59 @@ def _focus_change(design: Design, focus: str) -> str:
 
 
 def _columns(model_spec, design, focus, change, lists, left_out, n_left_out) -> _Setup:
-    """The wide table S: intercept, every regressor candidate's basis columns, every outcome
-    candidate (last). Each variable's candidates are written straight into S, one job per
-    variable on the passes' threads (a million-row table of 23 columns: 0.2 s gathered column
-    by column and copied, as it was). A column two candidates share, such as x in level and in
-    quadratic, is used once; its second copy stays in S, read by no model."""
+    """The wide table S as its columns: intercept, every regressor candidate's basis columns,
+    every outcome candidate (last). A candidate the base design has (the spec's own forms,
+    categories, the outcome as fitted) is a view of the design's column; only the other forms
+    are computed, one job per variable on the passes' threads. Copying all of them into one
+    n x q array cost a second copy of the design and, on the first sweep of a session, the
+    kernel's work of finding that much fresh memory (0.6 s at 1,000,000 rows x 23 columns on
+    the two-core machine). A column two candidates share, such as x in level and in quadratic,
+    is used once."""
     n = len(design.y)
     outcome = model_spec.outcome_column
     blocks = design.encoder.blocks
 
-    def width(block: Block, transform: Transform) -> int:
-        return block.stop - block.start if block.is_category else transform.width
-
-    starts = [1]
-    for block in blocks:
-        starts.append(starts[-1] + sum(width(block, t) for t in lists[block.spec.column]))
-    S = np.empty((n, starts[-1] + len(lists[outcome])), order="F")
-
-    def variable(block: Block, at: int) -> list[_Choice]:
+    def variable(block: Block) -> tuple[list[tuple[Transform, list[int]]], list[np.ndarray]]:
         column, found, mine = block.spec.column, [], []
         for transform in lists[column]:
-            part = S[:, at : at + width(block, transform)]
-            if block.is_category:
-                part[...] = design.X[:, block.start : block.stop]
+            if block.is_category or transform.code == block.spec.transform.code:
+                basis = [design.X[:, j] for j in range(block.start, block.stop)]
             else:
+                values = np.empty((n, transform.width), order="F")
                 with np.errstate(all="ignore"):
-                    transform.write_basis(design.values[column], part)
+                    transform.write_basis(design.values[column], values)
+                basis = [values[:, j] for j in range(transform.width)]
             where = []
-            for j in range(at, at + part.shape[1]):
-                same = next((i for i in mine if np.array_equal(S[:, i], S[:, j])), None)
+            for new in basis:
+                same = next((i for i, old in enumerate(mine) if np.array_equal(old, new)), None)
                 if same is None:
-                    mine.append(j)
-                    same = j
+                    mine.append(new)
+                    same = len(mine) - 1
                 where.append(same)
-            found.append(_Choice(column, transform, where))
-            at += part.shape[1]
-        return found
+            found.append((transform, where))
+        return found, mine
 
-    def outcome_column(at: int, transform: Transform) -> _Choice:
+    def outcome_column(transform: Transform) -> np.ndarray:
+        if transform.code == model_spec.outcome_transform.code:
+            return design.y
         with np.errstate(all="ignore"):
-            S[:, at] = transform.forward(design.y_raw)
-        return _Choice(outcome, transform, [at])
+            return np.asarray(transform.forward(design.y_raw), dtype=float)
 
-    def intercept() -> None:
-        S[:, 0] = 1.0
-
-    jobs = [intercept, *(functools.partial(variable, b, at) for b, at in zip(blocks, starts, strict=False))]
-    jobs += [functools.partial(outcome_column, starts[-1] + i, t) for i, t in enumerate(lists[outcome])]
+    jobs = [functools.partial(variable, b) for b in blocks] + [functools.partial(outcome_column, t) for t in lists[outcome]]
     done = engine.each_column(jobs, n)
-    choices = {b.spec.column: found for b, found in zip(blocks, done[1 : 1 + len(blocks)], strict=True)}
-    outcomes = done[1 + len(blocks) :]
-    return _Setup(model_spec, design, focus, change, {outcome: outcomes, **choices}, S, outcomes, left_out, n_left_out)
+    columns: list[np.ndarray] = [design.X[:, 0]]
+    choices: dict[str, list[_Choice]] = {}
+    for block, (found, mine) in zip(blocks, done[: len(blocks)], strict=True):
+        at = len(columns)
+        columns.extend(mine)
+        choices[block.spec.column] = [_Choice(block.spec.column, t, [at + i for i in where]) for t, where in found]
+    outcomes = []
+    for transform, values in zip(lists[outcome], done[len(blocks) :], strict=True):
+        outcomes.append(_Choice(outcome, transform, [len(columns)]))
+        columns.append(values)
+    return _Setup(
+        model_spec, design, focus, change, {outcome: outcomes, **choices}, tuple(columns), outcomes, left_out, n_left_out
+    )
 
 
 # --- the models ---------------------------------------------------------------------------------
@@ -309,7 +312,7 @@ class _Fit:
 
 def _fit_all(setup: _Setup) -> list[_Fit]:
     with engine.single_threaded_blas, np.errstate(all="ignore"):
-        shift = engine.shift_for(setup.S, setup.S[:, -1], setup.design.weights)
+        shift = engine.column_shift_for(setup.columns, setup.columns[-1], setup.design.weights)
         gram = engine.gram_pass(shift)[:-1, :-1]
         if not np.all(np.isfinite(gram)):
             raise DataError("the sweep overflowed: some values are too large to work with; rescale the data.")
@@ -416,11 +419,13 @@ def _exact(setup: _Setup, fit: _Fit) -> None:
     """One model through the fit engine and the covariance registry (as core.analyze)."""
     spec = _model_spec(setup, fit)
     encoder, terms = _encoder(setup, spec)
-    S = setup.S
+    X = np.empty((len(setup.design.y), len(fit.cols)), order="F")
+    for i, j in enumerate(fit.cols):
+        X[:, i] = setup.columns[j]
     design = replace(
         setup.design,
-        X=np.asfortranarray(S[:, fit.cols]),
-        y=S[:, fit.outcome.cols[0]].copy(),
+        X=X,
+        y=setup.columns[fit.outcome.cols[0]].copy(),
         encoder=encoder,
         terms=terms,
     )
@@ -461,7 +466,7 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
     Σyv) follow from Σe, Σe², Σye; unweighted, those are known without the pass (Σe = 0 with an
     intercept, Σe² the SSR, Σye = Σe² as e is orthogonal to ŷ), so the pass only forms u·s."""
     fits = sorted(fits, key=lambda f: f.model.kind == "log")  # level kinds first, then log kinds
-    q, m = setup.S.shape[1], len(fits)
+    q, m = len(setup.columns), len(fits)
     n_level = sum(f.model.kind == "level" for f in fits)
     resid_map = np.zeros((q + 1, m))
     proj_map = np.zeros((q + 1, m))

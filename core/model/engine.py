@@ -272,6 +272,48 @@ def shift_for(X: np.ndarray, y: np.ndarray, weights: np.ndarray | None) -> Shift
     return Shift(X, y, None if weights is None else np.sqrt(weights), c, c_y, weights)
 
 
+@dataclass(frozen=True)
+class ColumnShift(Shift):
+    """``Shift`` over a design held as separate columns (``X`` a tuple of n-vectors, the first
+    standing for the intercept and never read), so that a wide table of columns, most of them
+    views of arrays that exist already, need not be copied into one n x k array first; the
+    blocks it fills are those of ``Shift`` on that array."""
+
+    @property
+    def n(self) -> int:
+        return len(self.y)
+
+    @property
+    def k(self) -> int:
+        return len(self.X)
+
+    def fill(self, buffer: np.ndarray, start: int, stop: int) -> np.ndarray:
+        k = self.k
+        out = buffer[: stop - start]
+        for j in range(1, k):
+            np.subtract(self.X[j][start:stop], self.c[j], out=out[:, j])
+        np.subtract(self.y[start:stop], self.c_y, out=out[:, k])
+        if self.root_w is None:
+            out[:, 0] = 1.0
+        else:
+            root = self.root_w[start:stop]
+            out[:, 0] = root
+            out[:, 1:] *= root[:, None]
+        return out
+
+
+def column_shift_for(columns: tuple[np.ndarray, ...], y: np.ndarray, weights: np.ndarray | None) -> ColumnShift:
+    """``shift_for`` for a design held as separate columns (see ``ColumnShift``)."""
+    head = slice(0, min(BLOCK_ROWS, len(y)))
+    w = None if weights is None else weights[head]
+    c = np.zeros(len(columns))
+    for j in range(1, len(columns)):
+        part = columns[j][head]
+        c[j] = float(part.mean()) if w is None else float(part @ w / w.sum())
+    c_y = float(y[head].mean()) if w is None else float(y[head] @ w / w.sum())
+    return ColumnShift(columns, y, None if weights is None else np.sqrt(weights), c, c_y, weights)
+
+
 def gram_pass(shift: Shift) -> np.ndarray:
     """A = B'B, the (k+1) x (k+1) Gram matrix of the shifted, weighted design and outcome."""
 
