@@ -241,7 +241,7 @@ def _columns(model_spec, design, focus, change, lists, left_out, n_left_out) -> 
     categories, the outcome as fitted) is a view of the design's column; only the other forms
     are computed, one job per variable on the passes' threads. Copying all of them into one
     n x q array cost a second copy of the design and, on the first sweep of a session, the
-    kernel's work of finding that much fresh memory (0.6 s at 1,000,000 rows x 23 columns on
+    kernel's work of finding that much fresh memory (0.5 s at 1,000,000 rows x 23 columns on
     the two-core machine). A column two candidates share, such as x in level and in quadratic,
     is used once."""
     n = len(design.y)
