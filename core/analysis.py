@@ -381,7 +381,7 @@ SECTIONS: list[tuple[frozenset[str], Callable[[_Run], dict[str, Any]]]] = [
     (frozenset({"gap_curves"}), lambda r: {"gap_curves": _blocks(r, gap_curves)}),
     (frozenset({"curves"}), lambda r: {"curves": _blocks(r, effect_curves)}),
     (frozenset({"units_check"}), _units_section),
-    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, r.columns, base=r.design)}),
+    (frozenset({"sweep"}), lambda r: {"sweep": sweep_section(r.data, r.spec, r.model_spec, r.columns, r.design, r.progress)}),
     # Last: it fills in the entries the three sections above produced.
     (frozenset({"effects", "scenarios", "predictions"}), _bootstrap_section),
 ]

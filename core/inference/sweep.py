@@ -39,7 +39,8 @@ import numpy as np
 import pandas as pd
 import scipy.linalg as sla
 
-from core.errors import DataError, SpecError
+from core.errors import DataError, FormwiseError, SpecError
+from core.inference.bootstrap import Progress
 from core.inference.effects import default_change, effect_arrays, exact_interval
 from core.inference.retransform import fit_on_original_scale
 from core.model import engine
@@ -92,12 +93,21 @@ def sweep_section(
     model_spec: ModelSpec,
     columns: ColumnCache | None = None,
     base: Design | None = None,
+    progress: Progress = None,
 ) -> dict:
     """The ``sweep`` result (docs/contract.md §3.16) for the spec's ``sweep`` entry; ``base``
-    is the spec's own design on ``data`` when the caller has built it already."""
+    is the spec's own design on ``data`` when the caller has built it already. ``progress`` is
+    told the share done (the common rows, the Gram pass, the models solved, then each block of
+    the second pass); when it returns False the sweep stops with ``FormwiseError``."""
     setup = _setup(data, raw_spec, model_spec, columns, base)
-    models = _fit_all(setup)
+    _report(progress, 0.1)
+    models = _fit_all(setup, progress)
     return _summary(setup, models)
+
+
+def _report(progress: Progress, share: float) -> None:
+    if progress is not None and progress(share) is False:
+        raise FormwiseError("the forms sweep was stopped before it finished; nothing was kept.")
 
 
 def spec_of_model(spec: dict[str, Any], sweep: dict[str, Any], transforms: dict[str, str]) -> dict[str, Any]:
@@ -310,10 +320,11 @@ class _Fit:
     error: str | None = None
 
 
-def _fit_all(setup: _Setup) -> list[_Fit]:
+def _fit_all(setup: _Setup, progress: Progress = None) -> list[_Fit]:
     with engine.single_threaded_blas, np.errstate(all="ignore"):
         shift = engine.column_shift_for(setup.columns, setup.columns[-1], setup.design.weights)
         gram = engine.gram_pass(shift)[:-1, :-1]
+        _report(progress, 0.2)
         if not np.all(np.isfinite(gram)):
             raise DataError("the sweep overflowed: some values are too large to work with; rescale the data.")
         jacobians = {o.transform.code: float(np.sum(o.transform.log_jacobian(setup.design.y_raw))) for o in setup.outcomes}
@@ -334,9 +345,14 @@ def _fit_all(setup: _Setup) -> list[_Fit]:
                     _exact(setup, fit)
             except DataError as exc:
                 fit.error = str(exc)
+        _report(progress, 0.3)
         if pending:
-            _second_pass(setup, shift, pending)
+            _second_pass(setup, shift, pending, _within(progress, 0.3, 0.7))
     return fits
+
+
+def _within(progress: Progress, start: float, span: float) -> Progress:
+    return None if progress is None else lambda share: progress(start + span * share)
 
 
 def _model_spec(setup: _Setup, fit: _Fit) -> ModelSpec:
@@ -454,7 +470,7 @@ def _effect(model: Model, arrays: Any, interval: tuple[float, float] | None, eta
     return out
 
 
-def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
+def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit], progress: Progress = None) -> None:
     """One pass over the rows for every model solved from the Gram matrix: residuals, the focus
     effect's robust variance and the sums behind the original-scale R².
 
@@ -484,6 +500,8 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
     y_raw = setup.design.y_raw
     level_sums = root_w is not None  # weighted: Σe, Σe², Σye of the level kinds from the pass
 
+    finished, blocks = itertools.count(1), -(-shift.n // engine.BLOCK_ROWS)
+
     def one(block: np.ndarray, start: int, stop: int) -> np.ndarray:
         out = np.zeros((4, m))  # Σ(u·s)², then Σv, Σv², Σyv (Σe, Σe², Σye for level kinds)
         for lo in range(0, stop - start, _SUB_ROWS):
@@ -507,6 +525,7 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit]) -> None:
             out[(1, 3), n_level:] += np.dot(logs, np.column_stack((y, squares))).T
             logs *= logs
             out[2, n_level:] += np.dot(logs, squares)
+        _report(progress, next(finished) / blocks)  # called from the passes' threads
         return out
 
     sums = sum(engine.map_blocks(shift, one))
