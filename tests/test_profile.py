@@ -341,3 +341,25 @@ def test_histogram_from_the_sorted_values_is_numpys(values: list[float]) -> None
         assert got is None
     else:
         assert got == {"edges": [float(e) for e in edges], "counts": [int(c) for c in counts]}
+
+
+@settings(max_examples=120, deadline=None)
+@given(
+    st.lists(st.floats(-1e6, 1e6, allow_nan=False), min_size=3, max_size=400),
+    st.sampled_from([1e-300, 1e-3, 1.0, 1e200]),
+)
+def test_skewness_is_scipys_on_any_scale_and_none_without_finite_values(values: list[float], scale: float) -> None:
+    # scipy.stats.skew(bias=False) as reference library; skewness is scale-free, so the same
+    # answer on every scale (common practice, no source). Near-constant data give None.
+    from scipy import stats
+
+    from core.inference.shape import skewness
+
+    x = np.asarray(values) * scale
+    found = skewness(x)
+    top = float(np.max(np.abs(x)))
+    # Compared where the scaled values keep a clear spread (1e-300 can underflow small ones).
+    if top > 0 and np.std(x / top) > 1e-6 and np.allclose(x / scale, values, rtol=1e-12, atol=0):
+        assert found == pytest.approx(float(stats.skew(np.asarray(values), bias=False)), rel=1e-7, abs=1e-9)
+    for bad in (np.nan, np.inf, -np.inf):
+        assert skewness(np.append(x, bad)) is None
