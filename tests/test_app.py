@@ -13,6 +13,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as hst
 from streamlit.testing.v1 import AppTest
 
 import core
@@ -294,6 +296,39 @@ def test_cluster_suggestion_and_column_words(demo_frame: pd.DataFrame) -> None:
     assert describe_column(demo_frame["promo"]) == "0/1"
     assert describe_column(demo_frame["region"]) == "text, 3 levels"
     assert describe_column(pd.Series([1.0, None, -2.0, 0.0])) == "-2 to 1, 1 zero, 1 negative, 1 missing"
+
+
+def _column_words_elementwise(series: pd.Series) -> str:
+    """describe_column as first written, every count over every value: the reference below."""
+    from app.gridspec import compact
+
+    missing = int(series.isna().sum())
+    tail = f", {missing} missing" if missing else ""
+    finite = series.astype(float).to_numpy(dtype=float, na_value=np.nan)
+    finite = finite[~np.isnan(finite)]
+    if not len(finite):
+        return f"empty{tail}"
+    if bool(np.all((finite == 0) | (finite == 1))):
+        return f"0/1{tail}"
+    parts = [f"{compact(float(finite.min()))} to {compact(float(finite.max()))}"]
+    zeros, negatives = int((finite == 0).sum()), int((finite < 0).sum())
+    if zeros:
+        parts.append(f"{zeros:,} zero{'s' if zeros != 1 else ''}")
+    if negatives:
+        parts.append(f"{negatives:,} negative")
+    return ", ".join(parts) + tail
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    hst.lists(
+        hst.sampled_from([0.0, -0.0, 1.0, 0.5, -3.0, 2.0, np.nan, np.inf, -np.inf]) | hst.floats(-1e9, 1e9, allow_nan=False),
+        max_size=60,
+    )
+)
+def test_column_words_from_the_range_equal_the_words_from_every_value(values: list[float]) -> None:
+    series = pd.Series(values, dtype=float)
+    assert describe_column(series) == _column_words_elementwise(series)
 
 
 def test_plain_words_for_the_model() -> None:
