@@ -243,7 +243,7 @@ class Shift:
         """B for rows start:stop, written into ``buffer`` (BLOCK_ROWS x (k+1), Fortran order)."""
         k = self.k
         out = buffer[: stop - start]
-        np.subtract(self.X[start:stop, 1:], self.c[1:], out=out[:, 1:k])
+        self._slopes(out, start, stop)
         np.subtract(self.y[start:stop], self.c_y, out=out[:, k])
         if self.root_w is None:
             out[:, 0] = 1.0
@@ -252,6 +252,10 @@ class Shift:
             out[:, 0] = root
             out[:, 1:] *= root[:, None]
         return out
+
+    def _slopes(self, out: np.ndarray, start: int, stop: int) -> None:
+        """Columns 1 to k-1 of B before the weights: X₂ - c for rows start:stop."""
+        np.subtract(self.X[start:stop, 1:], self.c[1:], out=out[:, 1 : self.k])
 
     def buffer(self) -> np.ndarray:
         return np.empty((min(BLOCK_ROWS, self.n), self.k + 1), order="F")
@@ -287,19 +291,9 @@ class ColumnShift(Shift):
     def k(self) -> int:
         return len(self.X)
 
-    def fill(self, buffer: np.ndarray, start: int, stop: int) -> np.ndarray:
-        k = self.k
-        out = buffer[: stop - start]
-        for j in range(1, k):
+    def _slopes(self, out: np.ndarray, start: int, stop: int) -> None:
+        for j in range(1, self.k):
             np.subtract(self.X[j][start:stop], self.c[j], out=out[:, j])
-        np.subtract(self.y[start:stop], self.c_y, out=out[:, k])
-        if self.root_w is None:
-            out[:, 0] = 1.0
-        else:
-            root = self.root_w[start:stop]
-            out[:, 0] = root
-            out[:, 1:] *= root[:, None]
-        return out
 
 
 def column_shift_for(columns: tuple[np.ndarray, ...], y: np.ndarray, weights: np.ndarray | None) -> ColumnShift:
