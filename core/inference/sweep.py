@@ -476,11 +476,11 @@ def _second_pass(setup: _Setup, shift: engine.Shift, fits: list[_Fit], progress:
 
     Per sub-block of rows, one matrix product gives every model's focus-effect projection s and
     weighted residuals u = sqrt(w)·e, a model per row (level kinds, then log kinds); Σ(u·s)² is
-    the HC0 variance. A log kind's original-scale prediction is
-    proportional to v = y·exp(-e): with E = exp(-e) formed in place, Σv and Σyv are one product
-    [y, y²]'E and Σv² is (y²)'(E∘E). A level kind's prediction is y - e, so its sums (Σv, Σv²,
-    Σyv) follow from Σe, Σe², Σye; unweighted, those are known without the pass (Σe = 0 with an
-    intercept, Σe² the SSR, Σye = Σe² as e is orthogonal to ŷ), so the pass only forms u·s."""
+    the HC0 variance. A log kind's original-scale prediction is proportional to v = y·exp(-e):
+    with E = exp(-e) formed in place, Σv and Σyv are one product [y, y²]'E and Σv² is
+    (y²)'(E∘E). A level kind's prediction is y - e, so its sums (Σv, Σv², Σyv) follow from Σe,
+    Σe², Σye; unweighted, those are known without the pass (Σe = 0 with an intercept, Σe² the
+    SSR, Σye = Σe² as e is orthogonal to ŷ), so the pass only forms u·s."""
     fits = sorted(fits, key=lambda f: f.model.kind == "log")  # level kinds first, then log kinds
     q, m = len(setup.columns), len(fits)
     n_level = sum(f.model.kind == "level" for f in fits)
