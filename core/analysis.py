@@ -14,7 +14,16 @@ import pandas as pd
 from scipy import stats
 
 from core.errors import DataError, FormwiseError
-from core.inference.bootstrap import Progress, Target, effect_target, intervals, prediction_target, replicate, scenario_target
+from core.inference.bootstrap import (
+    Progress,
+    Target,
+    effect_target,
+    intervals,
+    prediction_target,
+    replicate,
+    scenario_target,
+    within,
+)
 from core.inference.curves import effect_curves
 from core.inference.diagnostics import diagnostics
 from core.inference.effects import compute_effects, gap_curves, slope_tests
@@ -152,7 +161,7 @@ def analyze(
     total = sum(_cost(keys) for keys, _ in chosen) or 1.0
     done = 0.0
     for keys, section in chosen:
-        run.progress = _within(progress, done / total, _cost(keys) / total)  # the bootstrap's own share
+        run.progress = within(progress, done / total, _cost(keys) / total)  # the bootstrap's own share
         with np.errstate(all="ignore"), nullcontext() if keys & BLAS_THREADED_PARTS else single_threaded_blas:
             result.update(section(run))
         done += _cost(keys)
@@ -347,13 +356,6 @@ SECTION_COST = {
 
 def _cost(keys: frozenset[str]) -> float:
     return max((SECTION_COST.get(k, 1.0) for k in keys), default=1.0)
-
-
-def _within(progress: Progress, start: float, span: float) -> Progress:
-    """``progress`` for a section that covers ``span`` of the whole from ``start`` on."""
-    if progress is None:
-        return None
-    return lambda share: progress(min(start + span * share, 1.0))
 
 
 # The result sections in the order they are computed: (parts that ask for it, how).

@@ -63,6 +63,13 @@ SINGULAR = 1e-10
 Progress = Callable[[float], Any] | None
 
 
+def within(progress: Progress, start: float, span: float) -> Progress:
+    """``progress`` for a piece of work that covers ``span`` of the whole from ``start`` on."""
+    if progress is None:
+        return None
+    return lambda share: progress(min(start + span * share, 1.0))
+
+
 @dataclass(frozen=True)
 class Target:
     """What one entry's bootstrap is about: the model's expected outcome moving from the design

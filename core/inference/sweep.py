@@ -40,7 +40,7 @@ import pandas as pd
 import scipy.linalg as sla
 
 from core.errors import DataError, FormwiseError, SpecError
-from core.inference.bootstrap import Progress
+from core.inference.bootstrap import Progress, within
 from core.inference.effects import default_change, effect_arrays, exact_interval
 from core.inference.retransform import fit_on_original_scale
 from core.model import engine
@@ -229,9 +229,9 @@ def _setup(
                 keep &= ~bad
     design = base
     if not keep.all():
-        within = np.zeros(len(data), dtype=bool)
-        within[base.rows[keep]] = True
-        design = build_design(data, model_spec, columns, within)
+        common = np.zeros(len(data), dtype=bool)
+        common[base.rows[keep]] = True
+        design = build_design(data, model_spec, columns, common)
     change = _focus_change(design, focus)
     return _columns(model_spec, design, focus, change, lists, left_out, int((~keep).sum()))
 
@@ -347,12 +347,8 @@ def _fit_all(setup: _Setup, progress: Progress = None) -> list[_Fit]:
                 fit.error = str(exc)
         _report(progress, 0.3)
         if pending:
-            _second_pass(setup, shift, pending, _within(progress, 0.3, 0.7))
+            _second_pass(setup, shift, pending, within(progress, 0.3, 0.7))
     return fits
-
-
-def _within(progress: Progress, start: float, span: float) -> Progress:
-    return None if progress is None else lambda share: progress(start + span * share)
 
 
 def _model_spec(setup: _Setup, fit: _Fit) -> ModelSpec:
