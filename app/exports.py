@@ -19,7 +19,7 @@ import streamlit as st
 
 import core
 from app import charts, intake, jobs, keys
-from app.gridspec import spec_json
+from app.gridspec import spec_json, with_sweep
 from core.inference.choices import zero_note
 from core.model.spec import parse_spec
 from core.model.specfile import parse_spec_document, spec_document
@@ -270,15 +270,15 @@ def report_section(good: dict[str, Any], column_cache: Callable[[str], core.Colu
     saved = saved_specs(ss.get(keys.SAVED_MODELS) or [], good["data_id"])
     spec = good["spec"]
     ppml = spec.get("estimator") == "ppml"
-    with_sweep = st.checkbox(
+    sweep_asked = st.checkbox(
         "Include every combination of forms",
         key=keys.REPORT_SWEEP,
         disabled=ppml,
         help="Adds the Forms view's comparison: the focus effect under every plausible combination of transforms."
         + (" Not available with PPML." if ppml else ""),
     )
-    if with_sweep and not ppml:
-        spec = {**spec, "sweep": spec.get("sweep") or {}}
+    if sweep_asked and not ppml:
+        spec = with_sweep(spec, ss.get(keys.SWEEP_VARY))
     key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
     jobs.report_done()
     running = jobs.job("report")

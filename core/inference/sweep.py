@@ -21,6 +21,10 @@ Tuerlinckx, Gelman & Vanpaemel 2016, Perspectives on Psychological Science 11):
    focus effect, Σᵢ(ũᵢ·z̃ᵢ'a)² with a = (Z'WZ)⁻¹c, and the sums behind the original-scale R² are
    added up for all models at once.
 
+A variable can be held at the spec's own form (``vary`` names the ones that change); without
+``vary``, a model with more variables than ``MAX_MODELS`` combinations allow holds the last ones
+in the spec's order (``_varied``), so a wide table still gets its sweep.
+
 Models whose outcome needs the smearing estimate (IHS, square root, shifted log, Box-Cox: S(η)
 averages over every residual), covariance kinds other than classical, HC0 and HC1, and designs
 whose condition number exceeds ``core.model.ols.NORMAL_EQUATIONS_MAX_CONDITION`` are fitted one
@@ -32,6 +36,8 @@ from __future__ import annotations
 
 import functools
 import itertools
+import math
+from collections.abc import Iterable
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -51,7 +57,7 @@ from core.model.spec import ModelSpec, RegressorSpec, parse_change
 from core.model.transforms import Category, Transform, menu_codes, parse_transform
 
 MAX_MODELS = 1_024
-SWEEP_KEYS = {"focus", "candidates"}
+SWEEP_KEYS = {"focus", "candidates", "vary"}
 # The plausible forms a sweep tries when the spec names none (the advisor's rules of the trade,
 # core.intake.advisor): level, and one log-type form (log where every value is above zero, else
 # IHS where none is negative); 0/1 indicators in levels only. Quadratics, square roots and
@@ -85,6 +91,9 @@ class _Setup:
     outcomes: list[_Choice]
     left_out: list[dict[str, Any]]
     n_left_out: int
+    forms: dict[str, list[str]] = None  # every variable's candidates, held or not (codes)
+    held: list[str] = None  # variables that could vary but keep the spec's form
+    held_for_cap: bool = False  # held so that the models stay within MAX_MODELS
 
 
 def sweep_section(
@@ -129,7 +138,7 @@ def sweep_rows(data: pd.DataFrame, raw_spec: dict, model_spec: ModelSpec) -> np.
 
 
 # --- the spec entry and the common rows ---------------------------------------------------------
-def _parse(raw_spec: dict, model_spec: ModelSpec) -> tuple[str, dict[str, list[Transform]]]:
+def _parse(raw_spec: dict, model_spec: ModelSpec) -> tuple[str, dict[str, list[Transform]], list[str] | None]:
     entry = raw_spec.get("sweep")
     entry = {} if entry is None else entry
     if not isinstance(entry, dict):
@@ -163,7 +172,23 @@ def _parse(raw_spec: dict, model_spec: ModelSpec) -> tuple[str, dict[str, list[T
         if (column in categories) != all(isinstance(t, Category) for t in found):
             raise SpecError(f"{where}: a category stays a category and a numeric regressor cannot become one in a sweep.")
         candidates[column] = found
-    return focus, candidates
+    vary = entry.get("vary")
+    if vary is not None:
+        known = [model_spec.outcome_column, *names]
+        if not isinstance(vary, list) or not all(isinstance(c, str) for c in vary):
+            raise SpecError('spec.sweep.vary: must be a list of column names like ["price", "income"].')
+        unknown = [c for c in vary if c not in known]
+        if unknown:
+            raise SpecError(
+                f"spec.sweep.vary: '{unknown[0]}' is neither the outcome nor a regressor of this model; "
+                f"use some of: {', '.join(known)}."
+            )
+        held = [c for c in candidates if c not in vary]
+        if held:
+            raise SpecError(
+                f"spec.sweep.candidates.{held[0]}: names forms for a variable that spec.sweep.vary holds; add it to vary."
+            )
+    return focus, candidates, vary
 
 
 def _default(values: np.ndarray, role: str, binary: bool) -> list[Transform]:
@@ -189,7 +214,7 @@ def _setup(
             f"spec.sweep: the sweep compares forms of models without moderators; '{crossed[0]}' has one ('by'). "
             "Remove 'by' to sweep the forms, then add it back to the form you keep."
         )
-    focus, given = _parse(raw_spec, model_spec)
+    focus, given, vary = _parse(raw_spec, model_spec)
     # A cache of its own when the caller keeps none: the common rows' design reuses the columns
     # the base design converted.
     columns = ColumnCache() if columns is None else columns
@@ -209,13 +234,10 @@ def _setup(
         if transform.code not in {t.code for t in found}:
             found = [transform, *found]
         lists[column] = found
-    n_models = int(np.prod([len(v) for v in lists.values()]))
-    if n_models > MAX_MODELS:
-        sizes = " x ".join(f"{len(v)} ({c})" for c, v in lists.items() if len(v) > 1)
-        raise SpecError(
-            f"spec.sweep: {sizes} make {n_models:,} models; a sweep fits at most {MAX_MODELS:,}. "
-            "Name fewer candidates in spec.sweep.candidates."
-        )
+    varied, for_cap = _varied(lists, [model_spec.outcome_column, focus, *given], vary)
+    forms = {c: [t.code for t in found] for c, found in lists.items()}
+    held = [c for c, found in lists.items() if len(found) > 1 and c not in varied]
+    lists = {c: found if c in varied else [own[c]] for c, found in lists.items()}
     keep = np.ones(len(base.rows), dtype=bool)
     left_out = []
     for column, found in lists.items():
@@ -233,7 +255,43 @@ def _setup(
         common[base.rows[keep]] = True
         design = build_design(data, model_spec, columns, common)
     change = _focus_change(design, focus)
-    return _columns(model_spec, design, focus, change, lists, left_out, int((~keep).sum()))
+    setup = _columns(model_spec, design, focus, change, lists, left_out, int((~keep).sum()))
+    return replace(setup, forms=forms, held=held, held_for_cap=for_cap)
+
+
+def _varied(lists: dict[str, list[Transform]], first: list[str], vary: list[str] | None) -> tuple[set[str], bool]:
+    """The variables whose forms the sweep varies (the others keep the spec's form), and whether
+    some were held only to stay within ``MAX_MODELS``.
+
+    With ``vary`` given, exactly those. Otherwise every variable, unless that makes more than
+    ``MAX_MODELS`` models: then ``first`` (the outcome, the focus and the variables named in
+    candidates) and, in the spec's order, each further variable whose forms still fit."""
+
+    def count(columns: Iterable[str]) -> int:
+        return math.prod(len(lists[c]) for c in set(columns))
+
+    def sizes(columns: Iterable[str]) -> str:
+        return " x ".join(f"{len(lists[c])} ({c})" for c in lists if c in set(columns) and len(lists[c]) > 1)
+
+    if vary is not None:
+        if count(vary) > MAX_MODELS:
+            raise SpecError(
+                f"spec.sweep.vary: {sizes(vary)} make {count(vary):,} models; a sweep fits at most {MAX_MODELS:,}. "
+                "Vary fewer variables."
+            )
+        return set(vary), False
+    if count(lists) <= MAX_MODELS:
+        return set(lists), False
+    if count(first) > MAX_MODELS:
+        raise SpecError(
+            f"spec.sweep: {sizes(first)} make {count(first):,} models; a sweep fits at most {MAX_MODELS:,}. "
+            "Name fewer candidates in spec.sweep.candidates."
+        )
+    chosen = set(first)
+    for column in lists:
+        if column not in chosen and count([*chosen, column]) <= MAX_MODELS:
+            chosen.add(column)
+    return chosen, True
 
 
 def _focus_change(design: Design, focus: str) -> str:
@@ -603,6 +661,9 @@ def _summary(setup: _Setup, fits: list[_Fit]) -> dict[str, Any]:
         "n_left_out": setup.n_left_out,
         "left_out": setup.left_out,
         "n_models": len(models),
+        "forms": setup.forms,
+        "held": setup.held,
+        "held_for_cap": setup.held_for_cap,
         "not_fitted": [{"transforms": f.transforms, "reason": f.error} for f in fits if f.error is not None],
         "models": models,
         "by_choice": by_choice,
