@@ -278,7 +278,7 @@ def report_section(good: dict[str, Any], column_cache: Callable[[str], core.Colu
         + (" Not available with PPML." if ppml else ""),
     )
     if sweep_asked and not ppml:
-        spec = with_sweep(spec, ss.get(keys.SWEEP_VARY))
+        spec = with_sweep(spec, ss.get(keys.SWEEP_VARY), ss.get(keys.SWEEP_FOCUS))
     key = (good["data_id"], spec_json(spec), json.dumps(saved, sort_keys=True))
     jobs.report_done()
     running = jobs.job("report")

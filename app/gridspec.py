@@ -295,16 +295,19 @@ def with_time_and_scenarios(
     return out, notes
 
 
-def with_sweep(spec: dict[str, Any], vary: list[str] | None) -> dict[str, Any]:
-    """``spec`` with a sweep entry (its own, else the defaults) and the Forms view's choice of
-    the variables whose forms vary, those of them still in the model (None: the sweep's own
-    choice, every variable within its cap)."""
+def with_sweep(spec: dict[str, Any], vary: list[str] | None, focus: str | None = None) -> dict[str, Any]:
+    """``spec`` with a sweep entry (its own, else the defaults) and the Forms view's choices: the
+    variables whose forms vary, those of them still in the model (None or none left: the sweep's
+    own choice, every variable within its cap), and the regressor whose effect is compared (when
+    it still is one)."""
     entry = dict(spec.get("sweep") or {})
+    regressors = [r["column"] for r in spec.get("regressors") or []]
     if vary is not None:
-        used = {spec["outcome"]["column"], *(r["column"] for r in spec.get("regressors") or [])}
-        kept = [c for c in vary if c in used]
-        if kept:  # none left: the sweep's own choice again
+        kept = [c for c in vary if c == spec["outcome"]["column"] or c in regressors]
+        if kept:
             entry["vary"] = kept
+    if focus in regressors:
+        entry["focus"] = focus
     return {**spec, "sweep": entry}
 
 

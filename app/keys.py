@@ -18,6 +18,7 @@ SAVE_NAME = "save_name"
 REPORT = "report"
 REPORT_SWEEP = "report_sweep"  # the report includes the forms sweep
 SWEEP_VARY = "sweep_vary"  # the Forms view: the variables whose forms vary (None: the sweep's own choice)
+SWEEP_FOCUS = "sweep_focus"  # the Forms view: the regressor whose effect is compared (None: the sweep's own)
 SWEEP_NOTE = "sweep_note"  # the Forms view: why the last choice of variables was not taken
 PROFILE_PICK = "profile_pick"
 CURVE_OVERLAY = "curve_overlay"

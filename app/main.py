@@ -72,8 +72,9 @@ def use_data(
     ss[keys.GRID_BASE] = spec_to_grid(spec, frame, profile)
     # A new table starts with its identifier and date columns locked out again.
     ss.pop(keys.UNLOCK_LOCKED, None)
-    # The Forms view's choice of variables to vary belongs to the old table's columns.
+    # The Forms view's choices (the variables to vary, the focus) belong to the old table's columns.
     ss.pop(keys.SWEEP_VARY, None)
+    ss.pop(keys.SWEEP_FOCUS, None)
     ss[keys.PREVIOUS_GRID] = ss[keys.GRID_BASE]
     history.forget()
     # A fresh editor key discards the old grid's pending edits.

@@ -40,7 +40,7 @@ def sweep_view(ctx: Context) -> None:
     if ctx.ppml:
         st.info("The forms sweep compares least-squares models; switch PPML off to use it.")
         return
-    spec = with_sweep(ctx.spec, st.session_state.get(keys.SWEEP_VARY))
+    spec = with_sweep(ctx.spec, st.session_state.get(keys.SWEEP_VARY), st.session_state.get(keys.SWEEP_FOCUS))
     result = ctx.analyze_long({"sweep"}, "forms", "Fitting every combination of plausible forms on the same rows", spec)
     if result is None:
         return
@@ -49,6 +49,11 @@ def sweep_view(ctx: Context) -> None:
     varying = forms.varying(sweep)
     current = {ctx.outcome: ctx.result["outcome"]["transform"], **ctx.transforms}
     _vary_control(sweep)
+    left, right = st.columns([1, 2.6], vertical_alignment="center")
+    with left:
+        _focus_control(sweep, [r["column"] for r in ctx.spec.get("regressors") or []])
+    with right:
+        _held_caption(sweep)
     st.markdown(plain(forms.summary_sentence(sweep)))
     if sweep["n_left_out"]:
         st.caption(plain(f"{sweep['n_left_out']} row(s) left out so that every form can take every row."))
@@ -68,6 +73,25 @@ def sweep_view(ctx: Context) -> None:
     if st.button("Load this model into the grid", key="sweep_load"):
         _load(ctx, spec_of_model(ctx.spec, sweep, models[int(pick) - 1]["transforms"]))
         st.rerun()
+
+
+def _focus_control(sweep: dict[str, Any], regressors: list[str]) -> None:
+    """The regressor whose effect every model states."""
+    ss = st.session_state
+    key = f"sweep_focus_{'|'.join(regressors)}"  # a new set of regressors starts from the sweep's focus
+    if key not in ss:
+        ss[key] = sweep["focus"]["column"]
+
+    def chosen() -> None:
+        ss[keys.SWEEP_FOCUS] = ss[key]
+
+    st.selectbox(
+        "Effect of",
+        regressors,
+        key=key,
+        on_change=chosen,
+        help="The regressor whose effect each model states, for the change set in the grid's Change column.",
+    )
 
 
 def _vary_control(sweep: dict[str, Any]) -> None:
@@ -106,13 +130,18 @@ def _vary_control(sweep: dict[str, Any]) -> None:
     )
     if ss.get(keys.SWEEP_NOTE):
         st.warning(plain(ss[keys.SWEEP_NOTE]))
+
+
+def _held_caption(sweep: dict[str, Any]) -> None:
+    """The variables that keep their form in the grid, and why."""
     held = sweep["held"]
     if held:
         why = f"To stay within {MAX_MODELS:,} models, " if sweep["held_for_cap"] else ""
+        one = len(held) == 1
         st.caption(
             plain(
-                f"{why}{join_words(held)} keep{'s' if len(held) == 1 else ''} the form {'it has' if len(held) == 1 else 'they have'} "
-                "in the grid; choose above which variables' forms to try."
+                f"{why}{join_words(held)} keep{'s' if one else ''} the form {'it has' if one else 'they have'} in the grid; "
+                "choose above which variables' forms to try."
             )
         )
 

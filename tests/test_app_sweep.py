@@ -93,3 +93,12 @@ def test_a_wide_real_table_opens_in_the_forms_view_and_the_variables_to_vary_can
     assert any("the sweep fits at most 1,024" in w.value for w in at.warning)
     assert at.session_state["sweep_vary"] == [outcome, focus, other]
     assert next(m for m in at.multiselect if m.label == "Try the forms of").value == [outcome, focus, other]
+
+    # The effect compared: another regressor, and every model states its effect.
+    picker = next(b for b in at.selectbox if b.label == "Effect of")
+    assert any(f"in {picker.value} on the expected outcome" in m.value.replace("\\", "") for m in at.markdown)
+    other_focus = next(c for c in picker.options if c != picker.value and c in frame.columns)
+    picker.set_value(other_focus).run()
+    assert not at.exception, at.exception
+    assert not at.error, [e.value for e in at.error]
+    assert any(f"in {other_focus} on the expected outcome" in m.value.replace("\\", "") for m in at.markdown)
