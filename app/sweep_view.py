@@ -17,7 +17,6 @@ from core.inference.sweep import MAX_MODELS, spec_of_model
 from core.output import forms
 from core.output import tables as core_tables
 from core.output.escape import plain
-from core.output.text import join_words
 
 # The ranked models listed on screen; the table downloads hold every one. A static table reads
 # like the report and draws at once; a scrolling grid of 512 rows held the view back.
@@ -134,16 +133,9 @@ def _vary_control(sweep: dict[str, Any]) -> None:
 
 def _held_caption(sweep: dict[str, Any]) -> None:
     """The variables that keep their form in the grid, and why."""
-    held = sweep["held"]
+    held = forms.held_sentence(sweep)
     if held:
-        why = f"To stay within {MAX_MODELS:,} models, " if sweep["held_for_cap"] else ""
-        one = len(held) == 1
-        st.caption(
-            plain(
-                f"{why}{join_words(held)} keep{'s' if one else ''} the form {'it has' if one else 'they have'} in the grid; "
-                "choose above which variables' forms to try."
-            )
-        )
+        st.caption(plain(f"{held} Choose above which variables' forms to try."))
 
 
 def _models(sweep: dict[str, Any], columns: list[str]) -> int:

@@ -16,7 +16,7 @@ import core
 from core.errors import FormwiseError, SpecError
 from core.inference.sweep import MAX_MODELS, sweep_rows
 from core.model.spec import parse_spec
-from core.output import forms
+from core.output import forms, report
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -156,6 +156,11 @@ def test_a_wide_model_holds_variables_at_their_own_form_to_stay_within_the_cap()
     # A held variable keeps the spec's form in every model.
     for column in sweep["held"]:
         assert {m["transforms"][column] for m in sweep["models"]} == {"level"}
+    # Said in words, on screen and in the report's sweep section.
+    words = forms.held_sentence(sweep)
+    assert words.startswith("To stay within 1,024 models, ") and all(c in words for c in sweep["held"])
+    assert words in report._sweep_section(sweep, chart=object()).sentence
+    assert forms.held_sentence({**sweep, "held": []}) is None
 
 
 def test_vary_names_the_variables_whose_forms_change() -> None:

@@ -8,7 +8,9 @@ from typing import Any
 
 import pandas as pd
 
+from core.inference.sweep import MAX_MODELS
 from core.output.numbers import sig
+from core.output.text import join_words
 
 
 def varying(sweep: dict[str, Any]) -> list[str]:
@@ -39,6 +41,16 @@ def summary_sentence(sweep: dict[str, Any]) -> str:
         f"{head}, the effect of {focus['change']} in {focus['column']} on the expected outcome runs from "
         f"{sig(min(found))}\u00a0% to {sig(max(found))}\u00a0%; the best model by AIC on the original scale gives {best_words}."
     )
+
+
+def held_sentence(sweep: dict[str, Any]) -> str | None:
+    """The variables that keep the spec's form in every model, and why; None when none does."""
+    held = sweep.get("held") or []
+    if not held:
+        return None
+    one = len(held) == 1
+    why = f"To stay within {MAX_MODELS:,} models, " if sweep.get("held_for_cap") else ""
+    return f"{why}{join_words(held)} keep{'s' if one else ''} {'its' if one else 'their'} form in the model in every combination."
 
 
 def ranked_table(sweep: dict[str, Any], columns: list[str], limit: int | None = None) -> pd.DataFrame:

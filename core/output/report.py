@@ -181,7 +181,8 @@ def _sweep_section(sweep: dict[str, Any] | None, chart: Chart | None) -> SweepSe
     shown = min(SWEEP_RANKED_ROWS, sweep["n_models"])
     title = f"The {shown} best of {sweep['n_models']} models by AIC on the original scale"
     ranked = from_frame(title, forms.ranked_table(sweep, columns, SWEEP_RANKED_ROWS))
-    return SweepSection(forms.summary_sentence(sweep), chart, moves, ranked, sweep["n_models"], sweep["n_left_out"])
+    sentence = " ".join(filter(None, [forms.summary_sentence(sweep), forms.held_sentence(sweep)]))
+    return SweepSection(sentence, chart, moves, ranked, sweep["n_models"], sweep["n_left_out"])
 
 
 def build_report(
