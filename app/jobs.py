@@ -23,8 +23,12 @@ import core
 from app import keys
 from core.output.escape import plain
 
-# The finished work shows at most this long after it ends; a poll redraws only the progress box.
+# A poll redraws only the progress box. Each poll first waits up to WAIT_SECONDS for the work to
+# end (the script thread waits; the interpreter lock is free for the work), so the finished work
+# shows a few milliseconds after it ends instead of up to a poll's length later; a click meanwhile
+# is taken up when the wait is over.
 POLL_SECONDS = 0.25
+WAIT_SECONDS = 0.2
 # Above this many rows the residual checks and the forms sweep run as a job (a second or more
 # at 1,000,000 rows on 2 cores); below it they are quicker than the progress box would be.
 JOB_MIN_ROWS = 200_000
@@ -106,6 +110,8 @@ def _progress(name: str, what: str, stop_words: str) -> None:
     current = job(name)
     if current is None:
         return
+    if current.running and not current.stop.is_set():
+        current.finished.wait(WAIT_SECONDS)
     if current.running:
         seconds = time.monotonic() - current.started
         stage = f": {current.stage}" if current.stage else ""
